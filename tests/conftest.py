@@ -2,6 +2,12 @@
 
 import os
 
+# One BLAS thread per test process: on the 2-core CI machine, multi-threaded BLAS on small
+# matrices competes with itself and slows the suite many times over.  Set before numpy loads.
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
+os.environ.setdefault("OMP_NUM_THREADS", "1")
+os.environ.setdefault("MKL_NUM_THREADS", "1")
+
 import matplotlib
 
 matplotlib.use("Agg")
