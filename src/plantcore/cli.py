@@ -1,0 +1,306 @@
+"""Command line: ``plantcore inspect|reduce|compare|report|demo|audit|sweep``.
+
+This module only parses arguments, calls the library and prints or writes what the result
+objects render; there are no numerics here.  Bad input (a ``ValueError`` from the library,
+including :class:`plantcore.ModelFileError`) prints one line on stderr and exits 2; no
+traceback is shown and no output file is left behind.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from .errors import NumericalBreakdown
+
+__all__ = ["main"]
+
+EXIT_OK = 0
+EXIT_NOT_EQUIVALENT = 1
+EXIT_BAD_INPUT = 2
+EXIT_INTERNAL = 3
+
+
+class _UsageError(Exception):
+    """Raised by the argument parser instead of printing usage and exiting."""
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):  # one line, exit 2, handled in main()
+        raise _UsageError(f"{self.prog}: {message}")
+
+
+def _one_line(text: str) -> str:
+    return " ".join(str(text).split())
+
+
+# --- subcommands -----------------------------------------------------------------------------
+# Each handler takes the parsed arguments and returns an exit code.  Handlers live here only
+# as thin glue; numerics and formatting belong to the library and report modules.
+
+def _cmd_inspect(args) -> int:
+    import json
+
+    from .analysis import analyze
+    from .io import load_model
+
+    model = load_model(args.model)
+    analysis = analyze(model, tol=args.tol)
+    if args.format == "json":
+        print(json.dumps(analysis.to_dict(), indent=2, allow_nan=False))
+    elif args.format == "markdown":
+        print(analysis.to_markdown(), end="")
+    else:
+        print(analysis.to_text(), end="")
+    return EXIT_OK
+
+
+def _cmd_reduce(args) -> int:
+    from .io import check_output_path, load_model, save_model
+    from .minimal import minimal_realization
+
+    model = load_model(args.model)
+    check_output_path(args.output, inputs=(args.model,))  # refuse before computing
+    minimal = minimal_realization(model, tol=args.tol)
+    reduced = minimal.model
+    print(f"minimal realization: {model.n} -> {minimal.order} states "
+          f"({minimal.removed_uncontrollable} uncontrollable and "
+          f"{minimal.removed_unobservable} unobservable removed)")
+    if minimal.fragile:
+        print("warning: a rank decision lies within a factor 100 of the tolerance; "
+              "the order depends on the tolerance.")
+    if args.order is not None or args.max_error is not None:
+        from .balanced import balanced_truncation, truncation_error
+
+        truncated = balanced_truncation(reduced, order=args.order, max_error=args.max_error)
+        reduced = truncated.model
+        measured = truncation_error(model, reduced)
+        kept = (f"; {truncated.unstable_order} unstable kept unreduced"
+                if truncated.unstable_order else "")
+        print(f"balanced truncation: {truncated.original_order} -> {truncated.order} states"
+              f"{kept}")
+        print(f"error bound (2 x sum of discarded Hankel singular values): "
+              f"{truncated.error_bound:.6g}")
+        unit = "rad/sample" if reduced.is_discrete else "rad/s"
+        print(f"measured error (peak gain of original - reduced): {measured.value:.6g} "
+              f"at {measured.frequency:.6g} {unit}")
+    save_model(reduced, args.output, inputs=(args.model,))
+    print(f"reduced model written to {args.output}")
+    from .equivalence import check_equivalence
+
+    print()
+    if args.order is not None or args.max_error is not None:
+        print("The certificate below compares the truncated model with the original; a "
+              "truncation removes real dynamics, so 'not equivalent' is expected and the "
+              "peak error is what to judge against the bound.")
+    print(check_equivalence(model, reduced).to_text(labels=(args.model, args.output)))
+    return EXIT_OK
+
+
+# --- compare: handler ---
+def _cmd_compare(args) -> int:
+    from .equivalence import check_equivalence
+    from .io import load_model
+
+    first = load_model(args.model_a)
+    second = load_model(args.model_b)
+    certificate = check_equivalence(first, second, tol=args.tol, exact=args.exact)
+    print(certificate.to_text(labels=(args.model_a, args.model_b)))
+    return EXIT_OK if certificate.equivalent else EXIT_NOT_EQUIVALENT
+
+
+# --- report: handler ---
+def _cmd_report(args) -> int:
+    from .html_report import write_html_report
+    from .io import load_model
+
+    model = load_model(args.model)
+    contents = write_html_report(model, args.output, tol=args.tol, order=args.order,
+                                 max_error=args.max_error, source=args.model).contents
+    red = contents.reduction
+    reduced = f", reduced {red.order}" if red is not None else ""
+    print(f"report written to {args.output} ({model.n} states, minimal "
+          f"{contents.analysis.minimal_order}{reduced})")
+    return EXIT_OK
+
+
+# --- demo: handler ---
+def _cmd_demo(args) -> int:
+    from .demo import run_demo
+
+    run_demo(args.output, example=args.example)
+    return EXIT_OK
+
+
+# --- audit: handler ---
+def _cmd_audit(args) -> int:
+    from .audit_report import audit_html, audit_text
+    from .estimator import audit_from_file
+
+    audit = audit_from_file(args.jacobians, expected_unobservable=args.expected, tol=args.tol)
+    if args.output:  # written before anything is printed: a refused output prints one line only
+        from .io import atomic_write
+
+        # the page is rendered only once the output path has passed atomic_write's checks
+        atomic_write(args.output,
+                     lambda f: f.write(audit_html(audit, source=args.jacobians).encode("utf-8")),
+                     inputs=(args.jacobians, args.expected))
+    print(audit_text(audit, source=args.jacobians))
+    if args.output:
+        print(f"report written to {args.output}")
+    return EXIT_OK
+
+
+# --- sweep: handler ---
+def _cmd_sweep(args) -> int:
+    from .sweep import sweep
+    from .sweep_report import check_output_folder, write_sweep_folder
+    from .sweep_spec import load_sweep_spec
+
+    spec = load_sweep_spec(args.spec)
+    check_output_folder(args.output)
+    executor = args.executor or ("dask" if args.scheduler else "local")
+    if executor == "dask" and not args.scheduler:
+        raise ValueError("--executor dask needs --scheduler ADDRESS (e.g. tcp://127.0.0.1:8786).")
+    if args.scheduler and executor != "dask":
+        raise ValueError(f"--scheduler is only used with --executor dask, not {executor}.")
+    if executor == "dask":
+        try:
+            import distributed  # noqa: F401  (optional extra)
+        except ImportError:
+            raise ValueError("--executor dask needs dask.distributed; install it with "
+                             "python -m pip install 'plantcore[cluster]'.") from None
+    reduced_order = args.reduced_order if args.reduced_order is not None else spec.reduced_order
+    tol = args.tol if args.tol is not None else spec.tolerance
+    result = sweep(spec.build, spec.points, executor=executor, scheduler=args.scheduler,
+                   reduced_order=reduced_order, tol=tol)
+    files = write_sweep_folder(result, args.output, spec=spec)
+    print(f"swept {len(result.rows)} points in {result.elapsed_seconds:.1f} s "
+          f"({len(result.failed)} failed); wrote {len(files)} files to {args.output}")
+    for row in result.failed[:3]:
+        print(f"failed point: {row['error']}")
+    return EXIT_OK
+
+
+
+COMMANDS = {
+    "inspect": _cmd_inspect,
+    "reduce": _cmd_reduce,
+    "sweep": _cmd_sweep,
+    "compare": _cmd_compare,
+    "report": _cmd_report,
+    "demo": _cmd_demo,
+    "audit": _cmd_audit,
+    # --- more commands ---
+}
+
+
+def _build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="plantcore",
+                     description="Controllability, observability, Kalman decomposition and "
+                                 "certified reduction of linear state-space models.")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    p = sub.add_parser("inspect", help="part sizes, rank decisions and verdicts of a model")
+    p.add_argument("model", help="model file (.toml, .json or .npz)")
+    p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
+    p.add_argument("--format", choices=("text", "markdown", "json"), default="text")
+
+    p = sub.add_parser("reduce", help="write a minimal (or balanced-truncated) model")
+    p.add_argument("model", help="model file (.toml, .json or .npz)")
+    p.add_argument("-o", "--output", required=True, help="file for the reduced model")
+    group = p.add_mutually_exclusive_group()
+    group.add_argument("--order", type=int, default=None,
+                       help="balanced truncation to this order after minimal realization")
+    group.add_argument("--max-error", type=float, default=None, dest="max_error",
+                       help="balanced truncation to the lowest order whose error bound is below this")
+    p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
+
+    # --- compare: parser ---
+    p = sub.add_parser("compare", help="certify that two models have the same transfer matrix "
+                                       "(exit 0 equivalent, 1 not, 2 bad input)")
+    p.add_argument("model_a", metavar="MODEL_A", help="reference model file (.toml, .json or .npz)")
+    p.add_argument("model_b", metavar="MODEL_B", help="model file to check against it")
+    p.add_argument("--tol", type=float, default=1e-9,
+                   help="largest accepted peak error relative to the peak gain of MODEL_A "
+                        "(default 1e-9)")
+    p.add_argument("--exact", action="store_true",
+                   help="also compare in exact rational arithmetic and let that decide "
+                        "(small models; file numbers are taken at their exact binary value)")
+    # --- report: parser ---
+    p = sub.add_parser("report", help="write a self-contained HTML report with plots")
+    p.add_argument("model", help="model file (.toml, .json or .npz)")
+    p.add_argument("-o", "--output", required=True, help="HTML file to write")
+    p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
+    group = p.add_mutually_exclusive_group()
+    group.add_argument("--order", type=int, default=None,
+                       help="order of the balanced truncation shown in the report")
+    group.add_argument("--max-error", type=float, default=None, dest="max_error",
+                       help="truncate to the lowest order whose error bound is below this "
+                            "(default: a tenth of the peak gain)")
+    # --- demo: parser ---
+    p = sub.add_parser("demo", help="run inspect, reduce, compare and report on a packaged example")
+    p.add_argument("-o", "--output", default=None, metavar="FOLDER",
+                   help="new (or empty) folder for the results; default "
+                        "plantcore-demo-YYYYMMDD-HHMMSS in the working directory")
+    p.add_argument("--example", default="thermal_process",
+                   help="packaged example to use (default thermal_process; also motion_axis)")
+    # --- audit: parser ---
+    p = sub.add_parser("audit", help="observability audit of the Jacobians a linearized "
+                                     "estimator used")
+    p.add_argument("jacobians", metavar="JACOBIANS.npz",
+                   help="archive with transition_jacobians (K, n, n), measurement_jacobians "
+                        "(K, p, n) and optionally expected_unobservable (n, d), "
+                        "measurement_noise, state_scale, state_names")
+    p.add_argument("--expected", default=None, metavar="BASIS.npy",
+                   help="expected unobservable basis (n, d); overrides the one in the archive")
+    p.add_argument("-o", "--output", default=None, metavar="REPORT.html",
+                   help="also write a self-contained HTML report with plots")
+    p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
+    # --- sweep: parser ---
+    p = sub.add_parser("sweep", help="analyze a model family over a grid or random draws of "
+                                     "its parameters")
+    p.add_argument("spec", help="sweep specification (.toml) with expressions in parameters")
+    p.add_argument("-o", "--output", required=True,
+                   help="new (or empty) folder for the table, plots and summary")
+    p.add_argument("--executor", choices=("serial", "local", "dask"), default=None,
+                   help="where the points run (default: local process pool, or dask with "
+                        "--scheduler)")
+    p.add_argument("--scheduler", default=None,
+                   help="Dask scheduler address, e.g. tcp://127.0.0.1:8786")
+    p.add_argument("--reduced-order", type=int, default=None, dest="reduced_order",
+                   help="also measure the error of a balanced truncation to this order")
+    p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
+    return parser
+
+
+def main(argv=None) -> int:
+    """Entry point of the ``plantcore`` console script."""
+    parser = _build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except _UsageError as exc:
+        print(_one_line(exc), file=sys.stderr)
+        return EXIT_BAD_INPUT
+    if not args.command:
+        parser.print_help(sys.stderr)
+        return EXIT_BAD_INPUT
+    try:
+        return COMMANDS[args.command](args)
+    except (ValueError, TypeError, OSError) as exc:
+        print(f"plantcore {args.command}: error: {_one_line(exc)}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except NumericalBreakdown as exc:
+        print(f"plantcore {args.command}: numerical breakdown: {_one_line(exc)}", file=sys.stderr)
+        return EXIT_INTERNAL
+    except KeyboardInterrupt:
+        print("plantcore: interrupted", file=sys.stderr)
+        return 130
+    except Exception as exc:  # a defect or numerical breakdown: still one line, distinct code
+        print(f"plantcore {args.command}: internal error ({type(exc).__name__}): {_one_line(exc)}",
+              file=sys.stderr)
+        return EXIT_INTERNAL
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

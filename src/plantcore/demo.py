@@ -1,0 +1,233 @@
+"""The end-to-end demonstration behind ``plantcore demo``.
+
+:func:`run_demo` takes a packaged example model (by default the four-zone curing oven of
+:mod:`plantcore.examples`), and does what a user would do with their own model:
+
+1. **inspect** it (Kalman parts, rank decisions with their margins, modes, verdicts);
+2. **reduce** it: the minimal realization, then a balanced truncation to the lowest order
+   whose guaranteed error is at most a tenth of the peak gain
+   (:data:`plantcore.html_report.DEFAULT_RELATIVE_ERROR`);
+3. **compare**: certify that the minimal model has the same transfer function as the
+   original, and measure the error of the truncated model against its bound;
+4. **report**: write the self-contained HTML report.
+
+Everything is computed before anything is written; the files then go into a folder that did
+not exist (or was empty) through :func:`plantcore.io.atomic_write`, so an existing folder's
+contents are never replaced and no half-written file is ever left behind.  Only files
+packaged with plantcore are read, through :mod:`importlib.resources`, so the demo works
+offline right after ``pip install``.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import json
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+
+__all__ = ["DemoResult", "DEMO_FILES", "default_demo_folder", "run_demo"]
+
+#: The files the demo writes, with what each holds.
+DEMO_FILES = {
+    "report.html": "the HTML report (open it in a web browser; it needs no network)",
+    "inspection.txt": "the plain-text diagnosis (what `plantcore inspect` prints)",
+    "original_model.toml": "a copy of the packaged model that was analysed",
+    "minimal_model.toml": "the minimal realization (same transfer function)",
+    "reduced_model.toml": "the balanced-truncated model (error within the bound)",
+    "certificate.txt": "the equivalence certificate: original against minimal",
+    "certificate.json": "the same certificate, machine-readable",
+    "reduced_model_check.txt": "original against the reduced model: measured error",
+}
+
+
+@dataclass(frozen=True)
+class DemoResult:
+    """What :func:`run_demo` did.
+
+    Attributes
+    ----------
+    folder : pathlib.Path
+        The folder the files were written to.
+    files : dict
+        File name -> path of every file written (the keys of :data:`DEMO_FILES`, less
+        ``reduced_model*`` files when no reduction was possible).
+    contents : plantcore.html_report.ReportContents
+        The analysis, reduction and certificates shown in the report.
+    summary : str
+        The short summary that was printed.
+    """
+
+    folder: Path
+    files: dict = field(repr=False)
+    contents: object = field(repr=False)
+    summary: str = field(repr=False)
+
+
+def default_demo_folder(base=".", now=None) -> Path:
+    """``plantcore-demo-YYYYMMDD-HHMMSS`` inside ``base`` (the name only; nothing created)."""
+    now = now or _dt.datetime.now()
+    return Path(base) / f"plantcore-demo-{now:%Y%m%d-%H%M%S}"
+
+
+def _check_folder(folder) -> Path | None:
+    """Refuse a folder the demo may not write into (before any work is done)."""
+    if folder is None:
+        return None
+    path = Path(os.fsdecode(os.fspath(folder)))
+    if path.exists():
+        if not path.is_dir():
+            raise ValueError(f"{path}: exists and is not a folder; give a new folder name.")
+        if any(path.iterdir()):
+            raise ValueError(f"{path}: the folder exists and is not empty; the demo never "
+                             "overwrites files, so give a new or an empty folder.")
+    elif not path.parent.is_dir():
+        raise ValueError(f"{path}: the folder {path.parent} does not exist; create it first.")
+    return path
+
+
+def _make_folder(folder) -> tuple[Path, bool]:
+    """Create the output folder; return it and whether this call created it.
+
+    A given folder may exist only when empty.  Without a folder, a new one with a time stamp
+    is made in the working directory (a suffix ``-2``, ``-3``, ... avoids a clash).
+    """
+    path = _check_folder(folder)
+    if path is not None:
+        if path.exists():
+            return path, False
+        try:
+            path.mkdir()
+        except FileExistsError:  # appeared in the meantime: check it again
+            return _make_folder(folder)
+        return path, True
+    base = default_demo_folder()
+    for k in range(1, 100):
+        path = base if k == 1 else base.with_name(f"{base.name}-{k}")
+        try:
+            path.mkdir()
+        except FileExistsError:
+            continue
+        return path, True
+    raise ValueError(f"{base}: could not find a new folder name; give one with -o.")  # pragma: no cover
+
+
+def _summary(c, example: str, folder: Path, written: dict) -> str:
+    from .html_report import PART_LABELS
+
+    a = c.analysis
+    m = c.model
+    domain = "continuous time" if not m.is_discrete else f"discrete time, sample time {m.dt:g}"
+    margins = [d.margin for d in a.decisions]
+    smallest = min(margins) if margins else float("inf")
+    lines = [f"plantcore demo: {m.name or example}",
+             f"  model       {m.n} states, {m.n_inputs} inputs, {m.n_outputs} outputs, {domain} "
+             f"(packaged example '{example}')",
+             "  parts       " + "; ".join(f"{s} {PART_LABELS[p]}" for p, s in
+                                          zip(PART_LABELS, a.sizes)),
+             f"  decisions   {len(a.decisions)} rank decisions, smallest margin {smallest:.3g} "
+             + ("(FRAGILE: the answer depends on the tolerance)" if a.fragile else "(clear)"),
+             f"  verdicts    stabilizable: {'yes' if a.stabilizable else 'no'}, "
+             f"detectable: {'yes' if a.detectable else 'no'}, "
+             f"near cancellations: {len(a.narrow_modes)}"]
+    mr = a.minimal
+    cert = c.certificate
+    verdict = ("not checked" if cert is None else
+               ("EQUIVALENT" if cert.equivalent else "NOT EQUIVALENT")
+               + f" (relative peak error {cert.relative_error:.2g})")
+    lines.append(f"  minimal     {m.n} -> {mr.order} states ({mr.removed_uncontrollable} "
+                 f"uncontrollable, {mr.removed_unobservable} unobservable removed); "
+                 f"certificate: {verdict}")
+    red = c.reduction
+    if red is not None:
+        measured = c.reduced_certificate.peak_error if c.reduced_certificate is not None else None
+        gain = f" (peak gain {c.peak_gain.value:.3g})" if c.peak_gain is not None else ""
+        lines.append(f"  reduced     {mr.order} -> {red.order} states by balanced truncation; "
+                     f"error bound {red.error_bound:.3g}, measured "
+                     f"{'n/a' if measured is None else f'{measured:.3g}'}{gain}")
+    else:
+        lines.append(f"  reduced     none: {c.reduction_problem}")
+    lines.append(f"  written to  {folder}{os.sep}")
+    width = max(len(k) for k in written)
+    for name in written:
+        lines.append(f"    {name:<{width}}  {DEMO_FILES[name]}")
+    return "\n".join(lines)
+
+
+def run_demo(folder=None, *, example: str = "thermal_process", tol=None, echo=print,
+             progress=None) -> DemoResult:
+    """Inspect, reduce, certify and report a packaged example, writing every result.
+
+    Parameters
+    ----------
+    folder : str or os.PathLike, optional
+        Where to write; it must not exist yet, or be empty.  Default: a new folder
+        ``plantcore-demo-YYYYMMDD-HHMMSS`` in the working directory.
+    example : str, optional
+        Which packaged example (see :func:`plantcore.list_examples`).
+    tol : float, optional
+        Relative rank tolerance (default as in :mod:`plantcore.rank`).
+    echo : callable or None, optional
+        Called with the summary text (default :func:`print`); None for silence.
+    progress : bool or None, optional
+        Progress on standard error: None (default) when it is a terminal.
+
+    Returns
+    -------
+    DemoResult
+
+    Raises
+    ------
+    ValueError
+        Unknown example, or a folder that exists and is not empty (nothing is written).
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> out = os.path.join(tempfile.mkdtemp(), "demo")
+    >>> result = run_demo(out, echo=None, progress=False)
+    >>> sorted(result.files) == sorted(DEMO_FILES)
+    True
+    >>> result.contents.certificate.equivalent
+    True
+    """
+    from .examples import example_path
+    from .html_report import collect_report, render_html
+    from .io import atomic_write_text, load_model, save_model
+
+    source = example_path(example)            # ValueError for an unknown example
+    model = load_model(source)
+    _check_folder(folder)                     # refuse a non-empty folder before any work
+    contents = collect_report(model, tol=tol, source=os.path.basename(source), progress=progress)
+    html_text = render_html(contents, progress=progress)
+    inspection = contents.analysis.to_text()
+    cert = contents.certificate
+    texts = {"report.html": html_text, "inspection.txt": inspection + "\n"}
+    if cert is not None:
+        texts["certificate.txt"] = cert.to_text() + "\n"
+        texts["certificate.json"] = json.dumps(cert.to_dict(), indent=2, allow_nan=False) + "\n"
+    if contents.reduced_certificate is not None:
+        texts["reduced_model_check.txt"] = contents.reduced_certificate.to_text() + "\n"
+    models = {"original_model.toml": model, "minimal_model.toml": contents.minimal_model}
+    if contents.reduction is not None:
+        models["reduced_model.toml"] = contents.reduction.model
+
+    path, created = _make_folder(folder)
+    written = {}
+    try:
+        for name in DEMO_FILES:
+            if name in models:
+                written[name] = save_model(models[name], path / name, inputs=(source,))
+            elif name in texts:
+                written[name] = atomic_write_text(path / name, texts[name], inputs=(source,))
+    except BaseException:
+        if created and not written:
+            try:
+                path.rmdir()
+            except OSError:
+                pass
+        raise
+    summary = _summary(contents, example, path, written)
+    if echo is not None:
+        echo(summary)
+    return DemoResult(path, written, contents, summary)

@@ -1,0 +1,980 @@
+"""A self-contained HTML report of one model: verdicts, parts, decisions, modes and plots.
+
+The report is one HTML file with everything inside it: the style sheet is inline, the three
+plots are PNG images embedded as base64 ``data:`` addresses, and there is no script, no
+external style sheet, no web font and no address on any network, so the file opens the same
+way on an offline machine, in an e-mail attachment or in a design-review archive, and prints
+cleanly (a print style sheet drops the on-screen navigation and keeps sections whole).
+
+Two steps, kept apart:
+
+* :func:`collect_report` runs the library (analysis, minimal realization, balanced
+  truncation, equivalence certificates, peak gain) and keeps the results in a
+  :class:`ReportContents`.
+* :func:`render_html` turns a :class:`ReportContents` into the HTML text.  It reads result
+  objects only; apart from sampling the frequency response for its plot (evaluating the
+  transfer matrices on a frequency grid and taking singular values) it decides nothing.
+
+Every name that comes from a model (model, state, input and output names) is escaped with
+:func:`html.escape` (``quote=True``) before it enters the page, and none is ever placed in
+a plot, where matplotlib would interpret ``$`` as mathematics.
+"""
+
+from __future__ import annotations
+
+import base64
+import datetime as _dt
+import html
+import io
+import math
+import os
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .report import SAFETY_CAUTION
+
+__all__ = [
+    "DEFAULT_RELATIVE_ERROR",
+    "PART_LABELS",
+    "ReportContents",
+    "WrittenReport",
+    "collect_report",
+    "render_html",
+    "analysis_html",
+    "write_html_report",
+]
+
+#: When neither an order nor a largest error is asked for, the report (and ``plantcore
+#: demo``) truncates to the lowest order whose guaranteed error bound is at most this
+#: fraction of the model's peak gain.  A tenth is a common first cut for design models whose
+#: controllers are later checked against the full model; the report shows the bound and the
+#: measured error so the reader can judge.
+DEFAULT_RELATIVE_ERROR = 0.1
+
+#: Plain-language labels of the four Kalman parts, in state order.
+PART_LABELS = {
+    "controllable_observable": "controllable and observable",
+    "controllable_unobservable": "controllable, unobservable",
+    "uncontrollable_observable": "uncontrollable, observable",
+    "uncontrollable_unobservable": "uncontrollable and unobservable",
+}
+_PART_MEANING = {
+    "controllable_observable": "the inputs move these states and the outputs see them: the "
+                               "whole input-output behaviour lives here",
+    "controllable_unobservable": "the inputs move these states but no output sees them",
+    "uncontrollable_observable": "no input moves these states, but the outputs see them "
+                                 "(they show up only through initial conditions)",
+    "uncontrollable_unobservable": "no input moves these states and no output sees them",
+}
+# Our own palette: a slate blue, an ochre, a brick red and a warm grey, distinguishable in
+# print and for the common colour-vision deficiencies; marker shapes repeat the information.
+_PART_STYLE = {
+    "controllable_observable": dict(color="#2c5d8a", marker="o", size=7, filled=True),
+    "controllable_unobservable": dict(color="#c98a1b", marker="s", size=11, filled=False),
+    "uncontrollable_observable": dict(color="#a3362c", marker="^", size=13, filled=False),
+    "uncontrollable_unobservable": dict(color="#6f6a62", marker="D", size=15, filled=False),
+}
+_MODEL_STYLE = {
+    "original": dict(color="#262626"),
+    "minimal": dict(color="#2c5d8a"),
+    "reduced": dict(color="#c98a1b"),
+}
+
+
+# =============================================================================================
+# Collecting the results
+# =============================================================================================
+
+@dataclass(frozen=True)
+class ReportContents:
+    """Everything one report shows, computed by the library.
+
+    Attributes
+    ----------
+    analysis : plantcore.analysis.Analysis
+        The diagnosis of the original model (parts, decisions, modes, verdicts).
+    certificate : EquivalenceCertificate or None
+        Original model against its minimal realization (None only when the comparison
+        itself failed; ``certificate_problem`` says why).
+    certificate_problem : str
+        Why there is no certificate, or ``""``.
+    reduction : ReducedModel or None
+        Balanced truncation of the minimal realization, or None (see ``reduction_problem``).
+    reduction_rule : str
+        How the reduced order was chosen, in one sentence.
+    reduction_problem : str
+        Why there is no reduced model, or ``""``.
+    reduced_certificate : EquivalenceCertificate or None
+        Original model against the reduced model: its ``peak_error`` is the error actually
+        reached, to compare with the bound.
+    peak_gain : PeakGain or None
+        Peak gain of the original model.
+    source : str or None
+        The file the model came from, shown in the header.
+    created : str
+        Local date and time the report was made (ISO format, minutes).
+    """
+
+    analysis: object
+    certificate: object
+    certificate_problem: str
+    reduction: object
+    reduction_rule: str
+    reduction_problem: str
+    reduced_certificate: object
+    peak_gain: object
+    source: str | None = None
+    created: str = field(default_factory=lambda: _dt.datetime.now().isoformat(timespec="minutes"))
+
+    @property
+    def model(self):
+        """The original model."""
+        return self.analysis.model
+
+    @property
+    def minimal_model(self):
+        """The minimal realization's model."""
+        return self.analysis.minimal.model
+
+
+def _progress(progress, label, total):
+    from .progress import Progress
+
+    if progress is not None and not isinstance(progress, bool):
+        raise ValueError(f"progress must be True, False or None (automatic), got {progress!r}.")
+    return Progress(label, total, enabled=progress)
+
+
+def collect_report(model, *, tol=None, order=None, max_error=None, source=None,
+                   analysis=None, progress=None) -> ReportContents:
+    """Run the analysis, reduction and certificates that a report shows.
+
+    Parameters
+    ----------
+    model : StateSpaceModel, python-control StateSpace, or tuple (A, B, C[, D])
+    tol : float, optional
+        Relative rank tolerance (see :mod:`plantcore.rank`).
+    order : int, optional
+        Order of the balanced truncation of the minimal realization.
+    max_error : float, optional
+        Largest acceptable error bound (peak gain of the difference, in the model's units);
+        the lowest order that meets it is chosen.  ``order`` and ``max_error`` exclude each
+        other; with neither, the bound may be :data:`DEFAULT_RELATIVE_ERROR` times the peak
+        gain.
+    source : str, optional
+        File name to show in the report's header.
+    analysis : Analysis, optional
+        An analysis of ``model`` already made (it is reused, not repeated).
+    progress : bool or None, optional
+        Show progress on standard error: ``None`` (default) when it is a terminal,
+        ``True`` always, ``False`` never.
+
+    Returns
+    -------
+    ReportContents
+
+    Raises
+    ------
+    ValueError
+        For invalid options (both ``order`` and ``max_error``, an order above the minimal
+        order, a ``max_error`` that no truncation can certify).  Problems of the default
+        reduction (a mode on the stability boundary) are reported in the contents instead.
+    """
+    from .analysis import analyze
+    from .balanced import balanced_truncation
+    from .equivalence import check_equivalence
+    from .norms import peak_gain as _peak_gain
+
+    if order is not None and max_error is not None:
+        raise ValueError("give either order or max_error, not both: order fixes the number of "
+                         "states, max_error lets the error bound choose it.")
+    if order is not None and (isinstance(order, bool) or not isinstance(order, (int, np.integer))
+                              or order < 0):
+        raise ValueError(f"order must be a whole number of states, 0 or more, got {order!r}.")
+    bar = _progress(progress, "report", 5)
+    try:
+        if analysis is None:
+            bar.step("analysing the model")
+            analysis = analyze(model, tol=tol)
+        else:
+            bar.step("reusing the analysis")
+        model = analysis.model
+        minimal = analysis.minimal
+        r = minimal.order
+        if order is not None and order > r:
+            raise ValueError(f"order {order} is above the minimal order {r}; a balanced truncation "
+                             f"can only remove states, so choose an order of at most {r}.")
+        bar.step("peak gain")
+        try:
+            gain = _peak_gain(model)
+        except ValueError:
+            gain = None
+        bar.step("certifying the minimal realization")
+        certificate, certificate_problem = None, ""
+        try:
+            certificate = check_equivalence(model, minimal.model)
+        except (ValueError, ArithmeticError) as exc:
+            certificate_problem = f"the comparison could not be made: {exc}"
+        bar.step("balanced truncation")
+        reduction, rule, problem = None, "", ""
+        if order is not None:
+            rule = f"order {order}, as requested"
+            reduction = balanced_truncation(minimal.model, order=order)
+        elif max_error is not None:
+            rule = f"the lowest order whose error bound is at most {max_error:.4g}, as requested"
+            reduction = balanced_truncation(minimal.model, max_error=max_error)
+        elif r == 0:
+            problem = "the minimal realization has no states; there is nothing to truncate."
+        elif gain is None or not math.isfinite(gain.value) or gain.value == 0.0:
+            problem = ("the model has a mode on the stability boundary or no gain, so no "
+                       "relative error bound can be set; give --order to truncate anyway.")
+        else:
+            limit = DEFAULT_RELATIVE_ERROR * gain.value
+            rule = (f"the lowest order whose error bound is at most "
+                    f"{DEFAULT_RELATIVE_ERROR:g} x the peak gain ({limit:.4g})")
+            try:
+                reduction = balanced_truncation(minimal.model, max_error=limit)
+            except ValueError as exc:
+                problem = f"balanced truncation was not possible: {exc}"
+        bar.step("checking the reduced model")
+        reduced_certificate = None
+        if reduction is not None:
+            try:
+                reduced_certificate = check_equivalence(model, reduction.model)
+            except (ValueError, ArithmeticError):
+                reduced_certificate = None
+    finally:
+        bar.close()
+    return ReportContents(analysis, certificate, certificate_problem, reduction, rule, problem,
+                          reduced_certificate, gain,
+                          None if source is None else os.fsdecode(os.fspath(source)))
+
+
+# =============================================================================================
+# Formatting helpers
+# =============================================================================================
+
+def _e(value) -> str:
+    """HTML-escaped text (quotes too)."""
+    return html.escape(str(value), quote=True)
+
+
+def _num(x, digits: int = 3) -> str:
+    if x is None:
+        return "&ndash;"
+    x = float(x)
+    if math.isnan(x):
+        return "&ndash;"
+    if math.isinf(x):
+        return "&infin;" if x > 0 else "&minus;&infin;"
+    if x == 0:
+        return "0"
+    text = f"{x:.{digits}g}"
+    if "e" in text:
+        mant, exp = text.split("e")
+        mant = mant.replace("-", "&minus;")
+        return f"{mant}&times;10<sup>{int(exp)}</sup>".replace("<sup>-", "<sup>&minus;")
+    return text.replace("-", "&minus;")
+
+
+def _complex(z, digits: int = 4) -> str:
+    z = complex(z)
+    re, im = z.real, z.imag
+    if im == 0:
+        return _num(re, digits)
+    sign = "+" if im > 0 else "&minus;"
+    return f"{_num(re, digits)} {sign} {_num(abs(im), digits)}j"
+
+
+def _yes_no(flag: bool) -> str:
+    return "yes" if flag else "no"
+
+
+def _png(fig) -> str:
+    """A matplotlib figure as an ``<img>`` source (base64 PNG, no metadata)."""
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=110, metadata={"Software": None})
+    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
+
+
+def _figure(width=7.0, height=4.2):
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(width, height), layout="constrained")
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def _style_axes(ax) -> None:
+    ax.grid(True, which="major", color="#d9d4c7", linewidth=0.7)
+    ax.grid(True, which="minor", color="#ece8de", linewidth=0.4)
+    for side in ("top", "right"):
+        ax.spines[side].set_visible(False)
+    ax.tick_params(labelsize=9)
+    ax.set_axisbelow(True)
+
+
+# =============================================================================================
+# Plots
+# =============================================================================================
+
+def _eigenvalue_plot(contents: ReportContents) -> tuple[str, str]:
+    """Eigenvalues in the complex plane, marked by Kalman part."""
+    model = contents.model
+    modes = contents.analysis.modes
+    fig = _figure(8.0, 4.4)
+    ax = fig.add_subplot()
+    _style_axes(ax)
+    values = np.array([complex(m.value) for m in modes], dtype=complex)
+    note = ""
+    if model.is_discrete:
+        t = np.linspace(0.0, 2.0 * np.pi, 361)
+        ax.plot(np.cos(t), np.sin(t), color="#8c8577", linewidth=1.0, zorder=1,
+                label="unit circle (stability boundary)")
+        ax.set_aspect("equal", adjustable="datalim")
+        ax.set_xlabel("real part")
+        ax.set_ylabel("imaginary part")
+    else:
+        ax.axvline(0.0, color="#8c8577", linewidth=1.0, zorder=1,
+                   label="imaginary axis (stability boundary)")
+        ax.set_xlabel("real part (1 / time unit)")
+        ax.set_ylabel("imaginary part (rad / time unit)")
+        nz = np.abs(values.real[values.real != 0])
+        if nz.size and nz.max() / nz.min() > 50:
+            ax.set_xscale("symlog", linthresh=float(nz.min()) / 2, linscale=0.5)
+            note = " The real axis is on a symmetric logarithmic scale so that slow and fast modes both show."
+        ni = np.abs(values.imag[values.imag != 0])
+        if ni.size and ni.max() / ni.min() > 50:
+            ax.set_yscale("symlog", linthresh=float(ni.min()) / 2, linscale=0.5)
+            note += " The imaginary axis is on a symmetric logarithmic scale."
+    for part in ("uncontrollable_unobservable", "uncontrollable_observable",
+                 "controllable_unobservable", "controllable_observable"):
+        sel = [m for m in modes if m.part == part]
+        if not sel:
+            continue
+        st = _PART_STYLE[part]
+        z = np.array([complex(m.value) for m in sel])
+        ax.scatter(z.real, z.imag, s=st["size"] ** 2, marker=st["marker"],
+                   facecolors=st["color"] if st["filled"] else "none", edgecolors=st["color"],
+                   linewidths=1.6, zorder=3 if st["filled"] else 2,
+                   label=f"{PART_LABELS[part]} ({len(sel)})")
+    narrow = np.array([complex(m.value) for m in modes if m.narrow], dtype=complex)
+    if narrow.size:
+        ax.scatter(narrow.real, narrow.imag, s=22 ** 2, marker="o", facecolors="none",
+                   edgecolors="#262626", linewidths=0.9, linestyle=(0, (2, 2)), zorder=4,
+                   label=f"near cancellation ({narrow.size})")
+    if not len(modes):
+        ax.text(0.5, 0.5, "the model has no states", transform=ax.transAxes, ha="center")
+    ax.legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.02, 1.0), frameon=False,
+              borderaxespad=0.0, markerscale=0.7, labelspacing=1.0)
+    alt = "Eigenvalues of the original model in the complex plane, marked by Kalman part."
+    return _png(fig), alt + note
+
+
+def _frequency_grid(contents: ReportContents, points: int) -> np.ndarray:
+    model = contents.model
+    values = np.array([complex(m.value) for m in contents.analysis.modes], dtype=complex)
+    if model.is_discrete:
+        dt = model.dt
+        nyquist = np.pi / dt
+        nz = values[np.abs(values) > 0]
+        w = np.abs(np.log(nz)) / dt if nz.size else np.array([])
+        w = w[w > 0]
+        low = 0.1 * w.min() if w.size else 1e-3 * nyquist
+        low = min(low, 1e-2 * nyquist)
+        return np.geomspace(low, nyquist, points)
+    w = np.abs(values)
+    w = w[w > 0]
+    if not w.size:
+        return np.geomspace(1e-2, 1e2, points)
+    return np.geomspace(0.1 * w.min(), 10.0 * w.max(), points)
+
+
+def _singular_values(model, w: np.ndarray) -> np.ndarray:
+    """Singular values of the transfer matrix on the imaginary axis (or unit circle)."""
+    k = min(model.n_inputs, model.n_outputs)
+    out = np.full((w.size, k), np.nan)
+    for i, wi in enumerate(w):
+        point = np.exp(1j * wi * model.dt) if model.is_discrete else 1j * wi
+        try:
+            G = model.transfer_at(point)
+        except ValueError:  # the grid point is an eigenvalue
+            continue
+        if k:
+            out[i] = np.linalg.svd(G, compute_uv=False)
+    return out
+
+
+def _frequency_plot(contents: ReportContents) -> tuple[str, str]:
+    """Singular values of original (sampled), minimal and reduced models, overlaid."""
+    model = contents.model
+    fine = _frequency_grid(contents, 400)
+    # The original may be large: sample it more coarsely, shown as markers.
+    coarse = _frequency_grid(contents, 40 if model.n > 200 else 70)
+    fig = _figure(7.0, 4.2)
+    ax = fig.add_subplot()
+    _style_axes(ax)
+    curves = [("original", model, coarse), ("minimal", contents.minimal_model, fine)]
+    if contents.reduction is not None:
+        curves.append(("reduced", contents.reduction.model, fine))
+    positive = []
+    for label, m, w in curves:
+        sv = _singular_values(m, w)
+        sv = np.where(sv > 0, sv, np.nan)
+        st = _MODEL_STYLE[label]
+        text = f"{label}, {m.n} states"
+        for j in range(sv.shape[1]):
+            name = text if j == 0 else None
+            if label == "original":
+                ax.plot(w, sv[:, j], linestyle="none", marker="o", markersize=4.5,
+                        markerfacecolor="none", markeredgecolor=st["color"],
+                        markeredgewidth=0.9, label=name, zorder=3)
+            else:
+                ax.plot(w, sv[:, j], color=st["color"], linewidth=1.8 if label == "minimal" else 1.6,
+                        linestyle="-" if label == "minimal" else (0, (5, 3)), label=name, zorder=2)
+        positive.append(sv[np.isfinite(sv)])
+    ax.set_xscale("log")
+    allv = np.concatenate(positive) if positive else np.array([])
+    if allv.size and allv.min() > 0:
+        ax.set_yscale("log")
+    if model.is_discrete:
+        ax.axvline(np.pi / model.dt, color="#8c8577", linewidth=1.0, linestyle=":")
+        ax.set_xlabel("frequency (rad/s; dotted line: half the sampling rate)")
+    else:
+        ax.set_xlabel("frequency (rad / time unit)")
+    ax.set_ylabel("gain (singular values)" if min(model.n_inputs, model.n_outputs) > 1 else "gain")
+    if model.n_inputs and model.n_outputs:
+        ax.legend(fontsize=8, loc="best", framealpha=0.9)
+    alt = ("Frequency response of the original model (markers), its minimal realization "
+           "(solid line) and the balanced-truncated model (dashed line).")
+    if min(model.n_inputs, model.n_outputs) > 1:
+        alt += " Each model shows all singular values of its transfer matrix."
+    return _png(fig), alt
+
+
+def _hankel_plot(contents: ReportContents) -> tuple[str, str] | None:
+    red = contents.reduction
+    if red is not None:
+        hsv = np.asarray(red.hankel_singular_values, dtype=float)
+        cut = red.stable_order
+    else:
+        hsv = contents.analysis.hankel_singular_values
+        if hsv is None:
+            return None
+        hsv = np.asarray(hsv, dtype=float)
+        cut = None
+    if not hsv.size:
+        return None
+    fig = _figure(6.8, 3.6)
+    ax = fig.add_subplot()
+    _style_axes(ax)
+    idx = np.arange(1, hsv.size + 1)
+    floor = max(hsv[0] * 1e-17, np.finfo(float).tiny)
+    shown = np.maximum(hsv, floor)
+    kept = idx <= cut if cut is not None else np.ones(hsv.size, dtype=bool)
+    ax.bar(idx[kept], shown[kept], color="#2c5d8a", width=0.6, label="kept")
+    if (~kept).any():
+        ax.bar(idx[~kept], shown[~kept], color="#e0b8a8", edgecolor="#a3362c", width=0.6,
+               label="discarded")
+    ax.set_yscale("log")
+    ax.set_xlabel("state of the balanced minimal model")
+    ax.set_ylabel("Hankel singular value")
+    ax.set_xticks(idx if hsv.size <= 30 else idx[:: max(1, hsv.size // 15)])
+    if cut is not None and cut < hsv.size:
+        ax.axvline(cut + 0.5, color="#a3362c", linestyle=(0, (4, 3)), linewidth=1.2)
+        ax.text(cut + 0.6, shown[0], f"cut after {cut}; error bound {red.error_bound:.3g}",
+                fontsize=8, color="#a3362c", va="top")
+    ax.legend(fontsize=8, loc="lower left", framealpha=0.9)
+    alt = ("Hankel singular values of the minimal model, largest first; bars right of the "
+           "dashed line are discarded by the balanced truncation.")
+    return _png(fig), alt
+
+
+# =============================================================================================
+# HTML
+# =============================================================================================
+
+_CSS = """
+:root { --ink:#1f2328; --muted:#5b5f66; --rule:#d9d4c7; --paper:#fffdf8; --band:#f3efe4;
+        --slate:#2c5d8a; --ochre:#c98a1b; --brick:#a3362c; --stone:#6f6a62;
+        --good:#2f6b3a; --good-bg:#e6f0e2; --warn:#8a4b08; --warn-bg:#fbecd6; }
+* { box-sizing: border-box; }
+body { margin:0; background:var(--paper); color:var(--ink);
+       font: 15px/1.5 "Segoe UI", "DejaVu Sans", "Helvetica Neue", Arial, sans-serif; }
+main { max-width: 62rem; margin: 0 auto; padding: 1.2rem 1.6rem 3rem; }
+header.report-head { border-left: 0.55rem solid var(--slate); background: var(--band);
+       padding: 0.9rem 1.2rem; margin: 0 0 1.2rem; }
+header.report-head h1 { margin: 0 0 0.2rem; font-size: 1.55rem; font-weight: 600; }
+header.report-head p { margin: 0.1rem 0; color: var(--muted); }
+nav.contents { font-size: 0.9rem; margin: 0 0 1.4rem; color: var(--muted); }
+nav.contents a { color: var(--slate); text-decoration: none; margin-right: 0.9rem;
+       white-space: nowrap; }
+section { margin: 0 0 2rem; }
+h2 { font-size: 1.2rem; font-weight: 600; border-bottom: 2px solid var(--rule);
+     padding-bottom: 0.2rem; margin: 0 0 0.7rem; }
+h2 .num { color: var(--slate); margin-right: 0.4rem; }
+p.lead { color: var(--muted); margin-top: 0; }
+table { border-collapse: collapse; width: 100%; font-size: 0.9rem; margin: 0.4rem 0 0.8rem; }
+th, td { text-align: left; padding: 0.28rem 0.55rem; border-bottom: 1px solid var(--rule);
+         vertical-align: top; }
+th { background: var(--band); font-weight: 600; }
+td.n { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+tbody tr:nth-child(even) td { background: #faf7f0; }
+.tiles { display: grid; grid-template-columns: repeat(auto-fill, minmax(13.5rem, 1fr));
+         gap: 0.7rem; }
+.tile { border: 1px solid var(--rule); border-top: 0.35rem solid var(--stone);
+        padding: 0.55rem 0.75rem; background: #fff; }
+.tile.good { border-top-color: var(--good); }
+.tile.warn { border-top-color: var(--warn); }
+.tile .q { font-size: 0.82rem; color: var(--muted); text-transform: uppercase;
+           letter-spacing: 0.04em; }
+.tile .a { font-size: 1.25rem; font-weight: 600; }
+.tile.good .a { color: var(--good); }
+.tile.warn .a { color: var(--warn); }
+.tile .why { font-size: 0.85rem; color: var(--muted); }
+.stack { display: flex; height: 1.6rem; border: 1px solid var(--rule); margin: 0.3rem 0 0.6rem; }
+.stack span { display: block; height: 100%; color: #fff; font-size: 0.8rem;
+              line-height: 1.6rem; text-align: center; overflow: hidden; }
+.swatch { display: inline-block; width: 0.8rem; height: 0.8rem; margin-right: 0.35rem;
+          vertical-align: -0.05rem; }
+.p1 { background: var(--slate); } .p2 { background: var(--ochre); }
+.p3 { background: var(--brick); } .p4 { background: var(--stone); }
+.bar { display: inline-block; height: 0.6rem; background: var(--slate); vertical-align: middle; }
+.bar.fragile { background: var(--brick); }
+.flag { color: var(--warn); font-weight: 600; }
+.ok { color: var(--good); font-weight: 600; }
+figure { margin: 0.4rem 0 0.8rem; }
+figure img { max-width: 100%; height: auto; border: 1px solid var(--rule); background: #fff; }
+figcaption { font-size: 0.85rem; color: var(--muted); }
+pre { background: var(--band); padding: 0.7rem 0.9rem; overflow-x: auto; font-size: 0.82rem;
+      line-height: 1.4; white-space: pre-wrap; }
+code, pre, .mono { font-family: "DejaVu Sans Mono", Consolas, "Liberation Mono", monospace; }
+ul.names { columns: 2; font-size: 0.88rem; padding-left: 1.1rem; }
+details summary { cursor: pointer; color: var(--slate); }
+section#caution { border: 2px solid var(--brick); background: #fbf1ee; padding: 0.8rem 1rem; }
+section#caution h2 { border: none; color: var(--brick); }
+footer { color: var(--muted); font-size: 0.8rem; border-top: 1px solid var(--rule);
+         padding-top: 0.5rem; }
+@media print {
+  body { background: #fff; font-size: 10.5pt; }
+  main { max-width: none; padding: 0; }
+  nav.contents { display: none; }
+  section, figure, table, .tile { break-inside: avoid; }
+  h2 { break-after: avoid; }
+  .tile, header.report-head, .stack span, .bar, .swatch, section#caution {
+      -webkit-print-color-adjust: exact; print-color-adjust: exact; }
+  a { color: inherit; text-decoration: none; }
+}
+"""
+
+_SECTIONS = [
+    ("model", "The model"),
+    ("verdicts", "Verdicts"),
+    ("part-sizes", "Kalman parts"),
+    ("rank-decisions", "Rank decisions"),
+    ("modes", "Modes"),
+    ("eigenvalues", "Eigenvalue map"),
+    ("frequency-response", "Frequency response"),
+    ("hankel-singular-values", "Hankel singular values and truncation"),
+    ("certificate", "Equivalence certificate"),
+    ("caution", "Validation and safety"),
+]
+
+
+def _section(sid: str, body: str, lead: str = "") -> str:
+    number = [s for s, _ in _SECTIONS].index(sid) + 1
+    title = dict(_SECTIONS)[sid]
+    lead_html = f'<p class="lead">{lead}</p>' if lead else ""
+    return (f'<section id="{sid}">\n<h2><span class="num">{number}</span>{_e(title)}</h2>\n'
+            f"{lead_html}\n{body}\n</section>\n")
+
+
+def _names_list(names, what: str) -> str:
+    if not names:
+        return f"<p>No {what}.</p>"
+    items = "".join(f"<li><code>{_e(x)}</code></li>" for x in names)
+    if len(names) > 12:
+        return (f"<details><summary>{len(names)} {what}</summary><ul class=\"names\">{items}"
+                "</ul></details>")
+    return f'<ul class="names">{items}</ul>'
+
+
+def _model_section(c: ReportContents) -> str:
+    m = c.model
+    domain = ("continuous time" if not m.is_discrete
+              else f"discrete time, sample time {_num(m.dt, 6)}")
+    rows = [
+        ("Name", _e(m.name) if m.name else "<em>unnamed</em>"),
+        ("File", f"<code>{_e(c.source)}</code>" if c.source else "<em>given in Python</em>"),
+        ("Time domain", domain),
+        ("States, inputs, outputs", f"{m.n}, {m.n_inputs}, {m.n_outputs}"),
+        ("Rank tolerance (relative)", _num(c.analysis.tolerance)),
+    ]
+    if c.peak_gain is not None:
+        pg = c.peak_gain
+        unit = "rad/sample" if m.is_discrete else "rad per time unit"
+        rows.append(("Peak gain", f"{_num(pg.value, 4)} at frequency {_num(pg.frequency, 4)} {unit}"))
+    table = "<table><tbody>" + "".join(f"<tr><th>{a}</th><td>{b}</td></tr>" for a, b in rows) \
+        + "</tbody></table>"
+    names = (f"<h3>Inputs</h3>{_names_list(m.inputs, 'inputs')}"
+             f"<h3>Outputs</h3>{_names_list(m.outputs, 'outputs')}"
+             f"<h3>States</h3>{_names_list(m.states, 'states')}")
+    return _section("model", table + names)
+
+
+def _tile(question: str, answer: str, why: str, good: bool | None) -> str:
+    cls = "tile" + ("" if good is None else (" good" if good else " warn"))
+    return (f'<div class="{cls}"><div class="q">{question}</div><div class="a">{answer}</div>'
+            f'<div class="why">{why}</div></div>')
+
+
+def _verdict_section(c: ReportContents) -> str:
+    a = c.analysis
+    m = c.model
+    r = a.minimal_order
+    tiles = [
+        _tile("Minimal", _yes_no(a.is_minimal),
+              f"{r} of the {m.n} states shape the input-output behaviour"
+              + ("." if a.is_minimal else f"; {m.n - r} can be removed."), a.is_minimal),
+        _tile("Stabilizable", _yes_no(a.stabilizable),
+              "every mode that is not stable can be moved by the inputs" if a.stabilizable
+              else "a mode that is not stable lies out of reach of every input", a.stabilizable),
+        _tile("Detectable", _yes_no(a.detectable),
+              "every mode that is not stable is seen by the outputs" if a.detectable
+              else "a mode that is not stable is invisible to every output", a.detectable),
+    ]
+    margins = [d.margin for d in a.decisions]
+    smallest = min(margins) if margins else math.inf
+    tiles.append(_tile("Rank decisions", "tolerance-sensitive" if a.fragile else "clear",
+                       f"smallest margin {_num(smallest)} (a factor below 100 would be fragile)",
+                       not a.fragile))
+    cert = c.certificate
+    if cert is not None:
+        tiles.append(_tile("Minimal model certified", _yes_no(cert.equivalent),
+                           "same transfer function as the original" if cert.equivalent
+                           else "the comparison found a difference; see section 9",
+                           bool(cert.equivalent)))
+    else:
+        tiles.append(_tile("Minimal model certified", "not checked", _e(c.certificate_problem), False))
+    red = c.reduction
+    if red is not None:
+        measured = (c.reduced_certificate.peak_error if c.reduced_certificate is not None
+                    else None)
+        within = measured is None or measured <= red.error_bound * (1 + 1e-6) + 1e-300
+        tiles.append(_tile("Reduced model", f"{red.order} states",
+                           f"guaranteed error at most {_num(red.error_bound)}; measured "
+                           f"{_num(measured)}", within))
+    narrow = a.narrow_modes
+    tiles.append(_tile("Near cancellations", str(len(narrow)),
+                       "modes that pass the controllability or observability test only "
+                       f"narrowly (margin below {_num(a.narrow_margin)})", None if not narrow else False))
+    body = '<div class="tiles">' + "".join(tiles) + "</div>"
+    du, do = a.distance_to_uncontrollability, a.distance_to_unobservability
+    body += (f"<p>Estimated distance (relative to the model's scale) to the nearest model that "
+             f"is uncontrollable: {_num(du.value)}; unobservable: {_num(do.value)}. "
+             "Both are upper bounds found by a local search.</p>")
+    return _section("verdicts", body)
+
+
+def _parts_section(c: ReportContents) -> str:
+    a = c.analysis
+    sizes = tuple(a.sizes)
+    names = list(PART_LABELS)
+    n = max(sum(sizes), 1)
+    stack = "".join(
+        f'<span class="p{i + 1}" style="width:{100.0 * s / n:.2f}%">{s if s else ""}</span>'
+        for i, s in enumerate(sizes) if s)
+    rows = []
+    for i, (part, size) in enumerate(zip(names, sizes)):
+        directions = a.part_directions.get(part, ())
+        shown = directions[:6]
+        more = len(directions) - len(shown)
+        desc = "<br>".join(f"<code>{_e(d)}</code>" for d in shown)
+        if more > 0:
+            desc += f"<br>and {more} more"
+        rows.append(f'<tr><td><span class="swatch p{i + 1}"></span>{i + 1}. {PART_LABELS[part]}'
+                    f'</td><td class="n">{size}</td><td>{_PART_MEANING[part]}</td>'
+                    f"<td>{desc or '&ndash;'}</td></tr>")
+    table = ("<table><thead><tr><th>Part</th><th>States</th><th>Meaning</th>"
+             "<th>Spanned by (in the model's state names)</th></tr></thead><tbody>"
+             + "".join(rows) + "</tbody></table>")
+    mr = a.minimal
+    lead = (f"The {c.model.n} states split into four parts (Kalman decomposition, condition "
+            f"number of the transformation {_num(a.decomposition.condition)}). The minimal "
+            f"realization keeps part 1: {mr.removed_uncontrollable} uncontrollable and "
+            f"{mr.removed_unobservable} unobservable states are removed.")
+    return _section("part-sizes", f'<div class="stack">{stack}</div>' + table, lead)
+
+
+def _decisions_section(c: ReportContents) -> str:
+    a = c.analysis
+    rows = []
+    for d in a.decisions:
+        width = 0.0 if not math.isfinite(d.margin) else min(100.0, 10.0 * math.log10(max(d.margin, 1.0)))
+        if not math.isfinite(d.margin):
+            width = 100.0
+        bar = f'<span class="bar{" fragile" if d.fragile else ""}" style="width:{width * 0.6:.1f}px"></span>'
+        status = '<span class="flag">fragile</span>' if d.fragile else '<span class="ok">clear</span>'
+        rows.append(
+            f"<tr><td>{_e(d.label)}</td><td class=\"n\">{d.rank} of {d.size}</td>"
+            f"<td class=\"n\">{_num(d.smallest_kept) if d.rank else 'none'}</td>"
+            f"<td class=\"n\">{_num(d.largest_dropped)}</td>"
+            f"<td class=\"n\">{_num(d.tolerance)}</td><td class=\"n\">{_num(d.margin)} {bar}</td>"
+            f"<td>{status}</td></tr>")
+    table = ("<table><thead><tr><th>Decision</th><th>Rank</th><th>Smallest kept</th>"
+             "<th>Largest dropped</th><th>Tolerance</th><th>Margin</th><th>Status</th></tr>"
+             "</thead><tbody>" + "".join(rows) + "</tbody></table>")
+    if not rows:
+        table = "<p>The model has no states, so no rank was decided.</p>"
+    lead = ("Every rank was decided from singular values of blocks produced by orthogonal "
+            "transformations. Values are relative to the model's scale. The margin is how far "
+            "the decision lies from the tolerance, as a factor; below 100 the answer depends on "
+            "the tolerance and the decision is marked fragile.")
+    return _section("rank-decisions", table, lead)
+
+
+def _modes_section(c: ReportContents) -> str:
+    a = c.analysis
+    rows = []
+    for k, mode in enumerate(a.modes, start=1):
+        stable = "marginal" if getattr(mode, "marginal", False) else _yes_no(mode.stable)
+        note = '<span class="flag">near cancellation</span>' if mode.narrow else ""
+        part = mode.part
+        idx = list(PART_LABELS).index(part) + 1 if part in PART_LABELS else 0
+        rows.append(
+            f"<tr><td class=\"n\">{k}</td><td class=\"n\">{_complex(mode.value)}</td>"
+            f"<td>{stable}</td><td><span class=\"swatch p{idx}\"></span>"
+            f"{_e(PART_LABELS.get(part, part))}</td>"
+            f"<td class=\"n\">{_num(mode.controllability_margin)}</td>"
+            f"<td class=\"n\">{_num(mode.observability_margin)}</td><td>{note}</td></tr>")
+    table = ("<table><thead><tr><th>#</th><th>Eigenvalue</th><th>Stable</th><th>Part</th>"
+             "<th>Controllability margin</th><th>Observability margin</th><th>Note</th></tr>"
+             "</thead><tbody>" + "".join(rows) + "</tbody></table>")
+    if not rows:
+        table = "<p>The model has no states.</p>"
+    lead = ("One row per eigenvalue. The margins are the smallest singular values of "
+            "[A &minus; &lambda;I, B] and [A &minus; &lambda;I; C], relative to the model's scale: "
+            "the size of the smallest change of the data that would make the mode "
+            "uncontrollable or unobservable.")
+    return _section("modes", table, lead)
+
+
+def _figure_html(src_alt, caption: str) -> str:
+    src, alt = src_alt
+    return (f'<figure><img src="{src}" alt="{_e(alt)}">'
+            f"<figcaption>{_e(caption or alt)}</figcaption></figure>")
+
+
+def _hankel_section(c: ReportContents, plot) -> str:
+    red = c.reduction
+    parts = []
+    if plot is not None:
+        parts.append(_figure_html(plot, plot[1]))
+    if red is not None:
+        measured = c.reduced_certificate.peak_error if c.reduced_certificate is not None else None
+        rows = [
+            ("Order chosen by", _e(c.reduction_rule)),
+            ("States", f"{c.model.n} original &rarr; {c.analysis.minimal_order} minimal &rarr; "
+                       f"{red.order} reduced"),
+            ("Error bound (2 &times; sum of the distinct discarded values)", _num(red.error_bound, 4)),
+            ("Measured peak error of the reduced model", _num(measured, 4)),
+        ]
+        if red.unstable_order:
+            rows.append(("Unstable states kept unreduced", str(red.unstable_order)))
+        parts.append("<table><tbody>" + "".join(f"<tr><th>{a}</th><td>{b}</td></tr>" for a, b in rows)
+                     + "</tbody></table>")
+        hsv = np.asarray(red.hankel_singular_values, dtype=float)
+        cells = "".join(
+            f"<tr><td class=\"n\">{i + 1}</td><td class=\"n\">{_num(v, 4)}</td>"
+            f"<td>{'kept' if i < red.stable_order else 'discarded'}</td></tr>"
+            for i, v in enumerate(hsv))
+        parts.append(f"<details open><summary>All {hsv.size} values</summary><table><thead><tr><th>#"
+                     f"</th><th>Value</th><th></th></tr></thead><tbody>{cells}</tbody></table>"
+                     "</details>")
+    else:
+        parts.append(f"<p>No reduced model: {_e(c.reduction_problem or c.analysis.hankel_note)}</p>")
+    lead = ("A balanced truncation of the minimal realization keeps the states with the largest "
+            "Hankel singular values. The peak gain of the error never exceeds twice the sum of "
+            "the distinct discarded values.")
+    return _section("hankel-singular-values", "\n".join(parts), lead)
+
+
+def _certificate_section(c: ReportContents) -> str:
+    cert = c.certificate
+    parts = []
+    if cert is None:
+        parts.append(f"<p>{_e(c.certificate_problem)}</p>")
+    else:
+        verdict = ('<span class="ok">equivalent</span>' if cert.equivalent
+                   else '<span class="flag">not equivalent</span>')
+        parts.append(f"<p>Original ({c.model.n} states) against the minimal realization "
+                     f"({c.analysis.minimal_order} states): {verdict}.</p>")
+        parts.append(f"<pre>{_e(cert.to_text(caution=False))}</pre>")
+    rc = c.reduced_certificate
+    if rc is not None:
+        parts.append("<details open><summary>Original against the reduced model</summary>"
+                     f"<pre>{_e(rc.to_text(caution=False))}</pre></details>")
+    lead = ("The certificate compares transfer functions, not matrices: two models are "
+            "equivalent when a minimal realization of their difference has no states and their "
+            "direct feedthrough agrees.")
+    return _section("certificate", "\n".join(parts), lead)
+
+
+def render_html(contents: ReportContents, *, progress=None) -> str:
+    """The HTML text of a report.
+
+    Parameters
+    ----------
+    contents : ReportContents
+        From :func:`collect_report`.
+    progress : bool or None, optional
+        As for :func:`collect_report`.
+
+    Returns
+    -------
+    str
+        A complete HTML document, self-contained (no network addresses, no scripts).
+    """
+    from . import __version__
+
+    c = contents
+    bar = _progress(progress, "report plots", 3)
+    try:
+        bar.step("eigenvalue map")
+        eig = _eigenvalue_plot(c)
+        bar.step("frequency response")
+        freq = _frequency_plot(c)
+        bar.step("Hankel singular values")
+        hank = _hankel_plot(c)
+    finally:
+        bar.close()
+    m = c.model
+    title = m.name or (os.path.basename(c.source) if c.source else "unnamed model")
+    nav = "".join(f'<a href="#{sid}">{i + 1} {_e(t)}</a>' for i, (sid, t) in enumerate(_SECTIONS))
+    body = [
+        f'<header class="report-head"><h1>Model report: {_e(title)}</h1>'
+        f"<p>{m.n} states &middot; {m.n_inputs} inputs &middot; {m.n_outputs} outputs &middot; "
+        f"{'discrete' if m.is_discrete else 'continuous'} time</p>"
+        f"<p>Made by plantcore {_e(__version__)} on {_e(c.created)}</p></header>",
+        f'<nav class="contents">{nav}</nav>',
+        _model_section(c),
+        _verdict_section(c),
+        _parts_section(c),
+        _decisions_section(c),
+        _modes_section(c),
+        _section("eigenvalues", _figure_html(eig, eig[1]),
+                 "Where each eigenvalue lies, and which Kalman part it belongs to. Nested "
+                 "symbols are repeated eigenvalues that belong to different parts."),
+        _section("frequency-response", _figure_html(freq, freq[1]),
+                 "The original and the minimal model must coincide; the reduced model may "
+                 "depart from them by at most the error bound."),
+        _hankel_section(c, hank),
+        _certificate_section(c),
+        _section("caution", f"<p>{_e(SAFETY_CAUTION)}</p>"),
+        "<footer>This report is self-contained: it loads nothing from any network.</footer>",
+    ]
+    return ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
+            "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
+            f"<title>Model report: {_e(title)}</title>\n<style>{_CSS}</style>\n</head>\n"
+            "<body>\n<main>\n" + "\n".join(body) + "\n</main>\n</body>\n</html>\n")
+
+
+def analysis_html(analysis) -> str:
+    """HTML report of an :class:`plantcore.analysis.Analysis` (used by ``Analysis.to_html``).
+
+    The reduction follows the default rule (:data:`DEFAULT_RELATIVE_ERROR`).
+    """
+    contents = collect_report(analysis.model, tol=analysis.tolerance, analysis=analysis)
+    return render_html(contents)
+
+
+@dataclass(frozen=True)
+class WrittenReport:
+    """An HTML report written to a file.
+
+    Attributes
+    ----------
+    path : pathlib.Path
+        The file written.
+    contents : ReportContents
+        What the report shows (analysis, reduction, certificates).
+    """
+
+    path: object
+    contents: ReportContents = field(repr=False)
+
+
+def _check_output(path, protected) -> None:
+    """Refuse an output that cannot be written *before* the (possibly long) work.
+
+    The same checks are made again, authoritatively, by :func:`plantcore.io.atomic_write`
+    when the file is written; this early look only spares the user a wasted run.
+    """
+    from .errors import ModelFileError
+
+    display = os.fsdecode(os.fspath(path))
+    target = os.path.realpath(display)
+    if os.path.isdir(target):
+        raise ModelFileError(display, "output", "is a folder; give a file name.")
+    folder = os.path.dirname(target)
+    if not os.path.isdir(folder):
+        raise ModelFileError(display, "output", f"the folder {os.path.dirname(display) or folder} "
+                                                "does not exist; create it first.")
+    for item in protected:
+        item = os.fsdecode(os.fspath(item))
+        try:
+            same = os.path.exists(target) and os.path.samefile(target, item)
+        except OSError:
+            same = False
+        if same or os.path.realpath(item) == target:
+            raise ModelFileError(display, "output", f"is the same file as the input {item}; "
+                                                    "refusing to overwrite an input, choose another name.")
+
+
+def write_html_report(model, path, *, tol=None, order=None, max_error=None, source=None,
+                      inputs=(), progress=None):
+    """Analyse a model and write its HTML report to ``path`` (atomically).
+
+    Parameters
+    ----------
+    model : StateSpaceModel, python-control StateSpace, or tuple (A, B, C[, D])
+    path : str or os.PathLike
+        The HTML file to write.
+    tol, order, max_error : optional
+        As for :func:`collect_report`.
+    source : str, optional
+        The model's file name, shown in the report; it is also protected from being
+        overwritten.
+    inputs : iterable of paths, optional
+        Further files that must not be overwritten.
+    progress : bool or None, optional
+        As for :func:`collect_report`.
+
+    Returns
+    -------
+    WrittenReport
+        The file written and what it shows.
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> import plantcore as pc
+    >>> out = os.path.join(tempfile.mkdtemp(), "r.html")
+    >>> report = write_html_report(([[-1.0, 0.0], [0.0, -2.0]], [[1.0], [0.0]], [[1.0, 1.0]]),
+    ...                            out, progress=False)
+    >>> report.contents.analysis.minimal_order
+    1
+    >>> text = report.path.read_text(encoding="utf-8")
+    >>> 'id="certificate"' in text and "http" not in text
+    True
+    """
+    from .io import atomic_write_text
+
+    protected = tuple(inputs) + ((source,) if source is not None else ())
+    _check_output(path, protected)
+    contents = collect_report(model, tol=tol, order=order, max_error=max_error, source=source,
+                              progress=progress)
+    text = render_html(contents, progress=progress)
+    return WrittenReport(atomic_write_text(path, text, inputs=protected), contents)

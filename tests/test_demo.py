@@ -1,0 +1,112 @@
+"""Tests for ``plantcore demo`` (plantcore.demo)."""
+
+from __future__ import annotations
+
+import json
+import os
+import re
+
+import numpy as np
+import pytest
+
+import plantcore as pc
+from plantcore.cli import main
+from plantcore.demo import DEMO_FILES, default_demo_folder, run_demo
+
+
+@pytest.fixture(scope="module")
+def demo_run(tmp_path_factory):
+    import contextlib
+    import io
+
+    folder = tmp_path_factory.mktemp("demo") / "out"
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        code = main(["demo", "-o", str(folder)])
+    return code, folder, out.getvalue(), err.getvalue()
+
+
+def test_demo_writes_every_promised_file(demo_run):
+    code, folder, out, err = demo_run
+    assert code == 0
+    assert sorted(os.listdir(folder)) == sorted(DEMO_FILES)  # and nothing else (no temporaries)
+    assert err == ""  # stderr is not a terminal here: no progress
+    for name in DEMO_FILES:
+        assert name in out
+        assert os.path.getsize(folder / name) > 0
+
+
+def test_demo_models_and_certificate(demo_run):
+    _, folder, out, _ = demo_run
+    original = pc.load_model(folder / "original_model.toml")
+    minimal = pc.load_model(folder / "minimal_model.toml")
+    reduced = pc.load_model(folder / "reduced_model.toml")
+    packaged = pc.load_example("thermal_process")
+    np.testing.assert_array_equal(original.A, packaged.A)
+    assert (original.n, minimal.n, reduced.n) == (11, 7, 3)
+    assert reduced.inputs == packaged.inputs and reduced.outputs == packaged.outputs
+    # The written files tell the same story when read back (an independent recomputation).
+    assert pc.check_equivalence(original, minimal).equivalent
+    cert = json.loads((folder / "certificate.json").read_text(encoding="utf-8"))
+    assert cert["equivalent"] is True and cert["difference_order"] == 0
+    text = (folder / "certificate.txt").read_text(encoding="utf-8")
+    assert "EQUIVALENT" in text and pc.report.SAFETY_CAUTION in text
+    check = (folder / "reduced_model_check.txt").read_text(encoding="utf-8")
+    assert "NOT EQUIVALENT" in check
+    inspection = (folder / "inspection.txt").read_text(encoding="utf-8")
+    assert inspection == pc.analyze(packaged).to_text() + "\n"
+    # the summary names the sizes and the verdict
+    assert "11 -> 7 states" in out and "7 -> 3 states" in out and "EQUIVALENT" in out
+
+
+def test_demo_report_is_complete_and_offline(demo_run):
+    _, folder, _, _ = demo_run
+    text = (folder / "report.html").read_text(encoding="utf-8")
+    for sid in ("model", "verdicts", "part-sizes", "rank-decisions", "modes", "eigenvalues",
+                "frequency-response", "hankel-singular-values", "certificate", "caution"):
+        assert f'<section id="{sid}">' in text
+    lowered = text.lower()
+    assert "http://" not in lowered and "https://" not in lowered
+    assert "<script" not in lowered and "<link" not in lowered
+    assert "thermal_process.toml" in text  # the packaged source is named, without its path
+
+
+def test_demo_refuses_a_non_empty_folder(tmp_path, capsys):
+    (tmp_path / "keep.txt").write_text("mine", encoding="utf-8")
+    code = main(["demo", "-o", str(tmp_path)])
+    said = capsys.readouterr()
+    assert code == 2 and said.out == ""
+    assert len(said.err.strip().splitlines()) == 1 and "not empty" in said.err
+    assert os.listdir(tmp_path) == ["keep.txt"]
+    assert (tmp_path / "keep.txt").read_text(encoding="utf-8") == "mine"
+
+
+def test_demo_refuses_a_file_and_a_missing_parent(tmp_path):
+    target = tmp_path / "afile"
+    target.write_text("x", encoding="utf-8")
+    with pytest.raises(ValueError, match="not a folder"):
+        run_demo(target, echo=None, progress=False)
+    with pytest.raises(ValueError, match="does not exist"):
+        run_demo(tmp_path / "no" / "such", echo=None, progress=False)
+    with pytest.raises(ValueError, match="no packaged example called 'kettle'"):
+        run_demo(tmp_path / "new", example="kettle", echo=None, progress=False)
+    assert sorted(os.listdir(tmp_path)) == ["afile"]
+
+
+def test_demo_default_folder_in_the_working_directory(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / default_demo_folder().name).mkdir()  # a clash is avoided, not overwritten
+    code = main(["demo", "--example", "motion_axis"])
+    assert code == 0
+    made = sorted(p for p in os.listdir(tmp_path) if os.listdir(tmp_path / p))
+    assert len(made) == 1 and re.fullmatch(r"plantcore-demo-\d{8}-\d{6}(-\d+)?", made[0])
+    assert sorted(os.listdir(tmp_path / made[0])) == sorted(DEMO_FILES)
+    out = capsys.readouterr().out
+    assert "14 -> 6 states" in out and "near cancellations: 2" in out
+
+
+def test_default_folder_name():
+    import datetime
+
+    when = datetime.datetime(2031, 2, 3, 4, 5, 6)
+    assert default_demo_folder("base", when).as_posix() == "base/plantcore-demo-20310203-040506"
