@@ -13,12 +13,24 @@ executor first so that neither pays the one-time import of the library in its wo
 The executors run in alternating rounds over slices of the points, so that background
 load on a shared machine affects both alike.
 
+Besides wall-clock throughput (the target's measure), the benchmark records the CPU time
+each executor spent: the worker processes' CPU seconds (the local pool's children, reaped
+when the pool closes; each Dask worker's ``time.process_time``, which counts all of its
+threads) and this process's own (which hosts the Dask scheduler and client, or the pool's
+feeder).  On a machine that other jobs keep busy, wall-clock throughput measures the share
+of the cores each executor obtained as much as its efficiency; CPU milliseconds per point
+measure the work done.  The load average is printed so that a loaded run can be told apart.
+
 Usage::
 
-    python benchmarks/bench_sweep.py            # 10,000 points (takes a while)
+    python benchmarks/bench_sweep.py            # 10,000 points (a few minutes)
     python benchmarks/bench_sweep.py --quick    # 600 points, a first check
     python benchmarks/bench_sweep.py --points 2000 --rounds 4
     python benchmarks/bench_sweep.py --points 2000 --json result.json
+
+Set ``OPENBLAS_NUM_THREADS=1`` (or the variable of your BLAS) for a run: the Dask workers
+get one BLAS thread each from Dask's own defaults, the local pool's workers inherit this
+process's setting.
 
 The target is Dask at 80 % or more of the local pool's throughput.
 """
@@ -86,6 +98,22 @@ def same_tables(a, b) -> bool:
     return len(a.rows) == len(b.rows)
 
 
+def _worker_cpu():
+    """CPU seconds of the calling process (run on each Dask worker)."""
+    import time as _time
+
+    return _time.process_time()
+
+
+def _cpu_snapshot(client, executor):
+    """``(own CPU seconds, worker CPU seconds)`` so far, for the given executor."""
+    t = os.times()
+    own = t.user + t.system
+    if executor == "local":
+        return own, t.children_user + t.children_system
+    return own, float(sum(client.run(_worker_cpu).values()))
+
+
 def timed(label, function):
     start = time.perf_counter()
     value = function()
@@ -110,11 +138,14 @@ def main(argv=None) -> int:
     print(f"sweep benchmark: {count} points of a {2 * SEGMENTS}-state model, {workers} worker "
           f"process(es) on {os.cpu_count()} core(s)", file=sys.stderr)
 
+    load_start = os.getloadavg()[0]
     # Single process: the cost of one point without any executor.
     warm = make_points(2 * workers, seed=1)
     pc.sweep(boom_model, warm, executor="serial", progress=False)       # imports, caches
+    cpu0 = time.process_time()
     serial, t_serial = timed("serial reference", lambda: pc.sweep(
         boom_model, points[:args.serial_points], executor="serial", progress=False))
+    cpu_serial = time.process_time() - cpu0
 
     # The two executors run in alternating rounds (local then Dask, then Dask then local,
     # ...) over slices of the points, so that both see the same machine: on a shared
@@ -125,6 +156,7 @@ def main(argv=None) -> int:
     # that the forked workers inherit it.
     (cluster, client), t_start = timed("Dask cluster start", lambda: _cluster(workers))
     t_local = t_dask = 0.0
+    cpu = {"local": [0.0, 0.0], "dask": [0.0, 0.0]}      # [own, workers] CPU seconds
     local_rows, dask_rows = [], []
     try:
         pc.sweep(boom_model, warm, executor="local", progress=False)
@@ -134,11 +166,15 @@ def main(argv=None) -> int:
             chunk = points[bounds[r]:bounds[r + 1]]
             order = ("local", "dask") if r % 2 == 0 else ("dask", "local")
             for executor in order:
+                own0, work0 = _cpu_snapshot(client, executor)
                 start = time.perf_counter()
                 part = pc.sweep(boom_model, chunk, executor=executor,
                                 scheduler=client if executor == "dask" else None,
                                 progress=False)
                 seconds = time.perf_counter() - start
+                own1, work1 = _cpu_snapshot(client, executor)
+                cpu[executor][0] += own1 - own0
+                cpu[executor][1] += work1 - work0
                 if executor == "local":
                     t_local += seconds
                     local_rows.extend(part.rows)
@@ -146,7 +182,7 @@ def main(argv=None) -> int:
                     t_dask += seconds
                     dask_rows.extend(part.rows)
             print(f"  round {r + 1}/{args.rounds}: local {t_local:.1f} s, Dask {t_dask:.1f} s "
-                  "so far", file=sys.stderr, flush=True)
+                  f"so far (load average {os.getloadavg()[0]:.1f})", file=sys.stderr, flush=True)
     finally:
         client.close()
         cluster.close()
@@ -166,6 +202,16 @@ def main(argv=None) -> int:
         "dask_points_per_second": count / t_dask,
         "dask_points_per_second_per_core": count / t_dask / workers,
         "dask_over_local": t_local / t_dask,
+        "serial_cpu_ms_per_point": 1e3 * cpu_serial / len(serial.rows),
+        "local_cpu_ms_per_point": 1e3 * sum(cpu["local"]) / count,
+        "local_worker_cpu_ms_per_point": 1e3 * cpu["local"][1] / count,
+        "dask_cpu_ms_per_point": 1e3 * sum(cpu["dask"]) / count,
+        "dask_worker_cpu_ms_per_point": 1e3 * cpu["dask"][1] / count,
+        "dask_over_local_cpu_efficiency": sum(cpu["local"]) / sum(cpu["dask"]),
+        "local_core_share": sum(cpu["local"]) / t_local / workers,
+        "dask_core_share": sum(cpu["dask"]) / t_dask / workers,
+        "load_average_start": load_start,
+        "load_average_end": os.getloadavg()[0],
         "rounds": args.rounds,
         "dask_cluster_start_seconds": t_start,
         "failed_points": len(local.failed),
@@ -183,6 +229,17 @@ def main(argv=None) -> int:
     print(f"Dask / local throughput: {ratio:.2f} (target >= 0.80: "
           f"{'met' if ratio >= 0.8 else 'NOT met'}); tables identical: "
           f"{'yes' if identical else 'NO'}; failed points: {len(local.failed)}")
+    print()
+    print(f"{'executor':<10} {'CPU ms/point':>13} {'of which workers':>17} {'share of cores':>15}")
+    print(f"{'serial':<10} {results['serial_cpu_ms_per_point']:>13.2f} {'':>17} {'':>15}")
+    for name in ("local", "dask"):
+        print(f"{name:<10} {results[name + '_cpu_ms_per_point']:>13.2f} "
+              f"{results[name + '_worker_cpu_ms_per_point']:>17.2f} "
+              f"{results[name + '_core_share']:>15.2f}")
+    print(f"Dask / local on CPU time (local CPU per point / Dask CPU per point): "
+          f"{results['dask_over_local_cpu_efficiency']:.2f}; load average "
+          f"{results['load_average_start']:.1f} at start, {results['load_average_end']:.1f} at end "
+          f"on {os.cpu_count()} core(s)")
     if args.json:
         with open(args.json, "w", encoding="utf-8") as handle:
             json.dump(results, handle, indent=2)

@@ -287,6 +287,13 @@ def main(argv=None) -> int:
         return EXIT_BAD_INPUT
     try:
         return COMMANDS[args.command](args)
+    except BrokenPipeError:
+        # The reader of our output went away (e.g. piped into `head`): not an error of ours.
+        import os
+
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return EXIT_OK
     except (ValueError, TypeError, OSError) as exc:
         print(f"plantcore {args.command}: error: {_one_line(exc)}", file=sys.stderr)
         return EXIT_BAD_INPUT
