@@ -16,6 +16,7 @@ import numpy as np
 import scipy.linalg
 
 from .balanced import hankel_singular_values
+from .errors import NumericalBreakdown
 from .kalman import PART_NAMES, KalmanDecomposition, _prepare, kalman_decomposition
 from .minimal import MinimalRealization, minimal_realization
 from .model import StateSpaceModel
@@ -267,9 +268,11 @@ def analyze(model, tol=None) -> Analysis:
         elif n_stable < model.n:
             note = (f"{model.n - n_stable} unstable mode(s) have no Hankel singular value; the "
                     "values are those of the stable part.")
-    except ValueError as exc:
+    except (ValueError, NumericalBreakdown) as exc:
+        # The Hankel stage may give up (e.g. modes on or near the stability boundary); the
+        # structural analysis does not depend on it and is still delivered.
         hsv = None
-        note = str(exc)
+        note = f"Hankel singular values not available: {exc}"
     return Analysis(
         model=model,
         tolerance=float(p.tol),
