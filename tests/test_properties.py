@@ -698,10 +698,6 @@ def test_one_input_column_in_other_units_keeps_the_structure(factor):
 
 # --- known defects, as minimal reproducers (strict xfail: remove the mark once fixed) -----------
 
-@pytest.mark.xfail(strict=True, reason="issue 7 finding: the decision scale includes the raw "
-                   "column norms of B, so one input in units 1e13 times larger makes every "
-                   "coupling in A look like rounding: wrong, non-fragile sizes (2, 0, 0, 3) "
-                   "(fragile from 1e10 on)")
 def test_reproducer_one_input_in_large_units():
     m0 = _MAGNITUDE_CASE.model
     B = m0.B.copy()
@@ -710,10 +706,6 @@ def test_reproducer_one_input_in_large_units():
     assert kd.fragile or tuple(kd.sizes) == (2, 1, 1, 1)
 
 
-@pytest.mark.xfail(strict=True, reason="issue 7 finding: input/output units move the rank "
-                   "decisions (they enter the equilibration and the decision scale): this "
-                   "model is fragile, (6, 15, 0, 1) instead of (3, 6, 3, 10), in unit inputs, "
-                   "and the same answer becomes non-fragile when the input is in units 3.5e-6")
 def test_reproducer_input_units_hide_fragility():
     # Found by the extreme-scaling property test (input/output scalings within 1e+-6).
     B, J, S = gen.SubBlock, "jordan", "spread"
@@ -733,17 +725,12 @@ def test_reproducer_input_units_hide_fragility():
     assert scaled.fragile or tuple(scaled.sizes) == g.sizes
 
 
-@pytest.mark.xfail(strict=True, reason="issue 7 finding: the same scale mixes in C, so the "
-                   "system on a time axis stretched by 1e25, (1e-25 A, 1e-25 B, C), loses its "
-                   "couplings in A: wrong, non-fragile sizes (fragile from 1e-20 on)")
 def test_reproducer_slow_time_scale():
     m0 = _MAGNITUDE_CASE.model
     kd = pc.kalman_decomposition(pc.StateSpaceModel(m0.A * 1e-25, m0.B * 1e-25, m0.C, m0.D))
     assert kd.fragile or tuple(kd.sizes) == (2, 1, 1, 1)
 
 
-@pytest.mark.xfail(strict=True, reason="issue 7 finding: an output row in units 1e26 times "
-                   "larger gives wrong, non-fragile sizes (same cause as for inputs)")
 def test_reproducer_one_output_in_large_units():
     m0 = _MAGNITUDE_CASE.model
     C = m0.C.copy()
@@ -752,10 +739,6 @@ def test_reproducer_one_output_in_large_units():
     assert kd.fragile or tuple(kd.sizes) == (2, 1, 1, 1)
 
 
-@pytest.mark.xfail(strict=True, reason="issue 7 finding: a fragile Kalman decomposition with "
-                   "cond(T) = 5.7e8 and residual 8e-9 does not reconstruct A (relative error "
-                   "0.86) and says so only through fragile=True: no AccuracyWarning, no "
-                   "NumericalBreakdown")
 def test_reproducer_fragile_decomposition_that_does_not_reconstruct():
     # Found by test_unstructured_models_keep_every_invariant (near-tolerance couplings 1e-9).
     A = np.zeros((7, 7))
@@ -784,11 +767,6 @@ def test_reproducer_fragile_decomposition_that_does_not_reconstruct():
     assert warned or err <= 1e-6, err
 
 
-@pytest.mark.xfail(strict=True, reason="issue 7 finding: on a stress model (23 states, hiding "
-                   "similarity of condition 1e3) kalman_decomposition returns, with only "
-                   "fragile=True, cond(T) = 1e13, ||T T_inv - I|| = 1e-3, ||A_z|| = 5e13 for "
-                   "||A|| = 522 and a relative reconstruction error of 2e10: T_inv is not an "
-                   "inverse and no AccuracyWarning or NumericalBreakdown is issued")
 def test_reproducer_singular_transformation_returned_silently():
     # Found by test_stress_models_keep_every_invariant at 10x the default examples.
     B, J, S = gen.SubBlock, "jordan", "spread"
@@ -810,8 +788,6 @@ def test_reproducer_singular_transformation_returned_silently():
     assert warned or err <= 1e-6, err
 
 
-@pytest.mark.xfail(strict=True, reason="issue 7 finding: entries near 1e154 overflow inside "
-                   "the SVD and numpy's LinAlgError ('SVD did not converge') escapes")
 def test_reproducer_huge_entries_raise_linalgerror():
     # (With RuntimeWarnings as errors, 'overflow encountered in dot' escapes even earlier.)
     m0 = _MAGNITUDE_CASE.model

@@ -18,18 +18,28 @@ coordinates (``x = T z``) the model has the exact zero pattern::
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass, field
 from typing import NamedTuple
 
 import numpy as np
 import scipy.linalg
 
-from .errors import NumericalBreakdown
+import warnings
+
+from .errors import AccuracyWarning, NumericalBreakdown
 from .model import StateSpaceModel, as_model
-from .rank import RankDecision, any_fragile, equilibrate, io_scaled, resolve_tolerance
-from .staircase import _scale_of, _staircase_core
+from ._crosscheck import modal_decision, modal_measures
+from ._fastpaths import reduce_staircase
+from .rank import any_fragile, equilibrate, io_scaled, resolve_tolerance
+from .staircase import _input_gains, _scale_of
 
 __all__ = ["PartSizes", "KalmanDecomposition", "kalman_decomposition", "PART_NAMES"]
+
+# T with a condition number above this is reported with an AccuracyWarning; above the limit
+# the decomposition is refused (T_inv would have fewer than about four correct digits).
+_CONDITION_WARNING = 1e8
+_CONDITION_LIMIT = 1e12
 
 PART_NAMES = (
     "controllable_observable",
@@ -73,30 +83,60 @@ def _prepare(model, tol) -> _Prepared:
     return _Prepared(model, tol, eq.state_scaling, A, B, C, B_dec, C_dec, scale)
 
 
-@dataclass(frozen=True)
-class _ControllableObservable:
-    """Orthonormal bases (equilibrated coordinates) from the two nested staircases."""
+def _relabel(decisions, old: str, new: str) -> tuple:
+    """The same decisions under another label prefix."""
+    return tuple(dataclasses.replace(d, label=new + d.label[len(old):]) if d.label.startswith(old)
+                 else d for d in decisions)
 
-    V_c: np.ndarray        # n x nc, controllable subspace
-    Z: np.ndarray          # nc x nc orthogonal; first n1 columns: observable part of (A11, C1)
+
+@dataclass
+class _Nested:
+    """The controllability staircase, then the observability staircase of its controllable
+    part (internal).
+
+    ``red1`` reduces ``(A, B)`` (equilibrated, decision-scaled inputs; the decision-scaled
+    ``C`` carried along) and ``red2`` reduces the dual ``(A11^T, C1^T)`` of the controllable
+    part, carrying ``[B1^T; A12^T]`` along, so that in the coordinates
+    ``W1 = U1 diag(Z, I)`` every block of the model is available without a product with a
+    full matrix.  When the whole state is controllable (``direct``), ``red2`` is computed on
+    the original coordinates instead (``W1 = Z``): the staircase of an orthogonally
+    transformed model has the same steps and singular values, and ``U1`` is then never
+    needed.
+    """
+
+    red1: object
+    red2: object
+    n: int
+    nc: int
     n1: int
+    direct: bool
     decisions: tuple
 
 
-def _controllable_then_observable(p: _Prepared) -> _ControllableObservable:
-    """Controllability staircase, then the observability staircase of the controllable part."""
+def _nested(p: _Prepared, *, keep_A: bool = True) -> _Nested:
+    """Run the two nested staircases; ``keep_A=False`` drops what only kalman needs."""
     n = p.model.n
-    A_t, _, _, U, blocks, dec_c = _staircase_core(
-        p.A, p.B_dec, np.zeros((0, n)), scale=p.scale, tol=p.tol, label="controllability")
-    nc = int(sum(blocks))
-    V_c = U[:, :nc]
-    A11 = A_t[:nc, :nc]
-    C1 = p.C_dec @ V_c
-    _, _, _, Z, blocks_o, dec_o = _staircase_core(
-        A11.T, C1.T, np.zeros((0, nc)), scale=p.scale, tol=p.tol,
-        label="observability of the controllable part")
-    n1 = int(sum(blocks_o))
-    return _ControllableObservable(V_c, Z, n1, tuple(dec_c) + tuple(dec_o))
+    red1 = reduce_staircase(p.A, p.B_dec, p.C_dec, scale=p.scale, tol=p.tol,
+                            label="controllability")
+    nc = red1.rank
+    label = "observability of the controllable part"
+    if nc == n:
+        red1 = dataclasses.replace(red1, A=None, B=None, C=None, transforms=[])
+        red2 = reduce_staircase(p.A.T, p.C_dec.T, p.B_dec.T, scale=p.scale, tol=p.tol,
+                                label=label)
+        direct = True
+    else:
+        A11t = np.array(red1.A[:nc, :nc].T, order="F")
+        carried = np.vstack([red1.B[:nc, :].T, red1.A[:nc, nc:].T])
+        C1t = red1.C[:, :nc].T
+        if not keep_A:
+            red1 = dataclasses.replace(red1, A=None)
+        red2 = reduce_staircase(A11t, C1t, carried, scale=p.scale, tol=p.tol, label=label,
+                                overwrite_a=True)
+        del A11t, carried, C1t
+        direct = False
+    return _Nested(red1, red2, n, nc, red2.rank, direct,
+                   tuple(red1.decisions) + tuple(red2.decisions))
 
 
 @dataclass(frozen=True)
@@ -183,21 +223,27 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
 
     Notes
     -----
-    The construction uses three orthogonal staircase reductions on the equilibrated model
+    The construction uses orthogonal staircase reductions on the equilibrated model
     (Van Dooren 1981; Varga 1981) and never the Krylov matrix:
 
-    * the controllability staircase gives an orthonormal basis ``V_c`` of R;
+    * the controllability staircase gives an orthonormal basis of R;
     * the observability staircase of the controllable part ``(A11, C V_c)`` splits R into
       R ∩ N (part 2) and its orthogonal complement in R (part 1);
     * the observability staircase of the *whole* model gives N.  Part 4 is the orthogonal
       complement of R ∩ N inside N.  (Splitting the uncontrollable quotient system on its
       own would be wrong: an uncontrollable state may be seen only through its coupling
-      into controllable, measured states.)
+      into controllable, measured states.)  When everything is controllable, the second
+      staircase already is this one: it is then computed on the model itself and its
+      decisions are recorded under both labels.
     * part 3 is the orthogonal complement of R + N.
 
     Each part has an orthonormal basis; ``T`` is well conditioned unless N is nearly
-    inside R + (part 3) directions, which ``condition`` reports.  The zero pattern is then
-    imposed exactly and the size of what was zeroed is reported as ``residual``.
+    inside R + (part 3) directions, which ``condition`` reports.  The model, ``T`` and
+    ``T_inv`` are assembled from the staircase forms in the coordinates of the first two
+    staircases, where parts 1 and 2 are coordinate blocks: only part 4 couples to part 1,
+    so ``T_inv`` follows from projections and a small pseudo-inverse, without inverting
+    ``T``.  The zero pattern is then imposed exactly and the size of what was zeroed
+    (including what the staircases dropped) is reported as ``residual``.
 
     The two rank decisions that determine N and R ∩ N are made separately; when they are
     not consistent (only possible when a decision is fragile), a
@@ -227,72 +273,202 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
     """
     p = _prepare(model, tol)
     n = p.model.n
-    co = _controllable_then_observable(p)
-    nc = co.V_c.shape[1]
-    n1 = co.n1
+    m = p.model.n_inputs
+    g_in = _input_gains(p.B, p.B_dec)
+    g_out = _input_gains(p.C.T, p.C_dec.T)
+    # modal cross-check measures, taken before the staircases overwrite their input
+    left_g = modal_measures(p.A, p.B_dec, scale=p.scale, side="left")
+    right_g = modal_measures(p.A, p.C_dec, scale=p.scale, side="right")
+    nest = _nested(p)
+    red1, red2, nc, n1 = nest.red1, nest.red2, nest.nc, nest.n1
+    decisions_c = nest.decisions
     n2 = nc - n1
-    T1 = co.V_c @ co.Z[:, :n1]
-    T2 = co.V_c @ co.Z[:, n1:]
-    # Unobservable subspace of the whole model.
-    _, _, _, U_o, blocks_o, dec_o = _staircase_core(
-        p.A.T, p.C_dec.T, np.zeros((0, n)), scale=p.scale, tol=p.tol, label="observability")
-    no = int(sum(blocks_o))
-    W_n = U_o[:, no:]
-    nN = n - no
-    decisions = co.decisions + tuple(dec_o)
-    if n2 > nN:
-        raise NumericalBreakdown(
-            f"the rank decisions disagree: the controllable part has {n2} unobservable "
-            f"directions but the whole model only {nN}; the answer depends on the tolerance "
-            f"(tol={p.tol:g}); try a different tol.",
-            {"n2": n2, "nN": nN, "decisions": decisions})
-    P = W_n.T @ T2  # nN x n2, orthonormal columns when R ∩ N lies in N
-    if n2:
-        cosines = np.linalg.svd(P, compute_uv=False)
-        if cosines.min() < 0.5:
+    n3 = n - nc
+    # The model in the coordinates W1 (equilibrated; B and C in the user's units):
+    #   A_w = [[A_oo, 0, A13], [A_uo, A_uu, A23], [0, 0, A22]],  B_w = [B_c; 0],
+    #   C_w = [C_o, 0, C2]  with blocks of sizes n1 (observable part of the controllable
+    # part), n2 (its unobservable part, R ∩ N) and n3 (the rest).
+    B_w = np.zeros((n, m))
+    B_w[:nc, :] = red2.C[:m, :].T / g_in[None, :]
+    C_w = np.empty((p.model.n_outputs, n))
+    C_w[:, :nc] = red2.B.T / g_out[:, None]
+    if nest.direct:
+        A_w = red2.A.T
+        decisions_obs = _relabel(red2.decisions, "observability of the controllable part",
+                                 "observability")
+        n4 = 0
+        N_q = np.zeros((0, 0))
+        W1 = red2.form_U()
+        del nest, red1, red2
+    else:
+        A_w = red1.A                   # reused: A22 and the exact zeros are already there
+        A_w[:nc, :nc] = red2.A.T
+        A_w[:nc, nc:] = red2.C[m:, :].T
+        C_w[:, nc:] = red1.C[:, nc:] / g_out[:, None]
+        W1 = np.zeros((n, n), order="F")
+        W1[:nc, :nc] = red2.form_U()
+        W1[nc:, nc:] = np.eye(n3)
+        del nest, red2
+        W1 = red1.apply_U(W1, overwrite=True)
+        del red1
+        # Unobservable subspace of the whole model (a third staircase, on the equilibrated
+        # model itself so that its decisions see only the model's own rounding).
+        red3 = reduce_staircase(p.A.T, p.C_dec.T, np.zeros((0, n)), scale=p.scale,
+                                tol=p.tol, label="observability")
+        decisions_obs = tuple(red3.decisions)
+        nN = n - red3.rank
+        decisions = decisions_c + decisions_obs
+        if n2 > nN:
             raise NumericalBreakdown(
-                "the unobservable directions found inside the controllable subspace do not lie "
-                f"in the unobservable subspace (smallest cosine {cosines.min():.3g}); the answer "
-                f"depends on the tolerance (tol={p.tol:g}); try a different tol.",
-                {"cosines": cosines, "decisions": decisions})
-    Qp, _ = scipy.linalg.qr(P, mode="full") if nN else (np.zeros((0, 0)), None)
-    T4 = W_n @ Qp[:, n2:] if nN else np.zeros((n, 0))
-    n4 = T4.shape[1]
-    if n1 + n2 + n4 > n:
-        raise NumericalBreakdown(
-            f"the rank decisions disagree: a controllable subspace of dimension {nc} and an "
-            f"unobservable subspace of dimension {nN} meeting in dimension {n2} do not fit in "
-            f"{n} states; the answer depends on the tolerance (tol={p.tol:g}); see the "
-            "fragile decisions and try a different tol.",
-            {"sizes": (n1, n2, n4), "decisions": decisions})
-    M = np.hstack([T1, T2, T4])
-    T3 = _complement(M, n)
-    n3 = T3.shape[1]
-    T_e = np.hstack([T1, T2, T3, T4])
-    if n:
-        sv = np.linalg.svd(T_e, compute_uv=False)
-        if sv[-1] <= np.finfo(float).eps * n * sv[0]:
+                f"the rank decisions disagree: the controllable part has {n2} unobservable "
+                f"directions but the whole model only {nN}; the answer depends on the tolerance "
+                f"(tol={p.tol:g}); try a different tol.",
+                {"n2": n2, "nN": nN, "decisions": decisions})
+        W_n = red3.form_U(nN, first=False) if nN else np.zeros((n, 0))
+        del red3
+        P = W_n.T @ W1[:, n1:nc]   # nN x n2, orthonormal columns when R ∩ N lies in N
+        if n2:
+            cosines = np.linalg.svd(P, compute_uv=False)
+            if cosines.min() < 0.5:
+                raise NumericalBreakdown(
+                    "the unobservable directions found inside the controllable subspace do not "
+                    f"lie in the unobservable subspace (smallest cosine {cosines.min():.3g}); the "
+                    f"answer depends on the tolerance (tol={p.tol:g}); try a different tol.",
+                    {"cosines": cosines, "decisions": decisions})
+        # Part 4: the orthogonal complement of R ∩ N inside N, in W1 coordinates.
+        Qp = scipy.linalg.qr(P, mode="full")[0] if nN else np.zeros((0, 0))
+        T4 = W_n @ Qp[:, n2:]
+        del W_n, Qp, P
+        n4 = T4.shape[1]
+        if n1 + n2 + n4 > n:
+            raise NumericalBreakdown(
+                f"the rank decisions disagree: a controllable subspace of dimension {nc} and an "
+                f"unobservable subspace of dimension {nN} meeting in dimension {n2} do not fit in "
+                f"{n} states; the answer depends on the tolerance (tol={p.tol:g}); see the "
+                "fragile decisions and try a different tol.",
+                {"sizes": (n1, n2, n4), "decisions": decisions})
+        # Its W1 coordinates: (N1, ~0, N3); the R ∩ N component is rounding (T4 ⊥ R ∩ N).
+        N_q = np.vstack([W1[:, :n1].T @ T4, W1[:, nc:].T @ T4])
+    decisions = decisions_c + decisions_obs
+    # Part 4 = {W1 (N1 y, 0, N3 y)}; part 3 = block-3 directions orthogonal to range(N3).
+    N1, N3 = N_q[:n1, :], N_q[n1:, :]
+    if n4:
+        # N3 = Q [R; 0]: Q[:, n4:] spans part 3; pinv(N3) = R^-1 Q[:, :n4]^T
+        Q3, R3 = scipy.linalg.qr(N3, mode="full")
+        R3 = R3[:n4, :]
+        smin = np.linalg.svd(R3, compute_uv=False)[-1]
+        # T = W1 M with M^T M = I + [[0, N1], [N1^T, 0]] on parts 1 and 4, so the singular
+        # values of T are sqrt(1 +- sigma_i(N1)), and sigma_max(N1)^2 = 1 - sigma_min(N3)^2.
+        c = np.sqrt(max(0.0, 1.0 - smin * smin))
+        sv_max, sv_min = np.sqrt(1.0 + c), np.sqrt(smin * smin / (1.0 + c))
+        if sv_min <= np.finfo(float).eps * n * sv_max:
             raise NumericalBreakdown(
                 "the four parts are linearly dependent (the transformation is singular); the "
-                f"answer depends on the tolerance (tol={p.tol:g}).", {"singular_values": sv})
-        Ti_e = np.linalg.solve(T_e, np.eye(n))
+                f"answer depends on the tolerance (tol={p.tol:g}).",
+                {"singular_values": np.array([sv_max, sv_min])})
+        K = scipy.linalg.solve_triangular(R3, Q3[:, :n4].T)   # pseudo-inverse of N3 (n4 x n3)
+        Q3c = Q3[:, n4:]
+        del Q3, R3
+        condition = float(sv_max / sv_min)
+        if condition > _CONDITION_LIMIT:
+            raise NumericalBreakdown(
+                f"the four parts are nearly dependent (condition number of T {condition:.3g}); "
+                "T_inv would not be an accurate inverse. The answer depends on the tolerance "
+                f"(tol={p.tol:g}); see the fragile decisions and try a different tol.",
+                {"condition": condition})
     else:
-        sv = np.ones(1)
-        Ti_e = np.zeros((0, 0))
+        K = np.zeros((0, n3))
+        Q3c = None
+        condition = 1.0
+    n3c = n3 - n4
+
+    def right(X):
+        """X M: columns (parts 1, 2 | part 3 | part 4) of X in W1 coordinates."""
+        if not n4:
+            return X
+        out = np.empty((X.shape[0], n), order="F" if X.flags.f_contiguous else "C")
+        out[:, :nc] = X[:, :nc]
+        out[:, nc:nc + n3c] = X[:, nc:] @ Q3c
+        out[:, nc + n3c:] = X[:, :n1] @ N1 + X[:, nc:] @ N3
+        return out
+
+    def left(X):
+        """M^{-1} X: rows (parts 1, 2 | part 3 | part 4) from rows of X in W1 coordinates."""
+        if not n4:
+            return X
+        out = np.empty((n, X.shape[1]), order="F" if X.flags.f_contiguous else "C")
+        KX = K @ X[nc:, :]
+        out[:n1, :] = X[:n1, :] - N1 @ KX
+        out[n1:nc, :] = X[n1:nc, :]
+        out[nc:nc + n3c, :] = Q3c.T @ X[nc:, :]
+        out[nc + n3c:, :] = KX
+        return out
+
+    if n4:
+        # T's part-4 columns are T4 itself (= W1 [N1; 0; N3] up to rounding)
+        T_e = np.empty((n, n), order="F")
+        T_e[:, :nc] = W1[:, :nc]
+        T_e[:, nc:nc + n3c] = W1[:, nc:] @ Q3c
+        T_e[:, nc + n3c:] = T4
+        del T4
+        Az = _transform_staircase_model(A_w, nc, n1, N1, N3, Q3c, K)
+    else:
+        T_e = W1
+        Az = A_w
+    Ti_e = left(W1.T)
+    del W1, A_w
+    Bz = left(B_w)
+    Cz = right(C_w)
     s = p.s
     T = s[:, None] * T_e
+    del T_e
     T_inv = Ti_e / s[None, :]
-    Az = Ti_e @ p.A @ T_e
-    Bz = Ti_e @ p.B
-    Cz = p.C @ T_e
-    sizes = PartSizes(n1, n2, n3, n4)
+    del Ti_e
+    sizes = PartSizes(n1, n2, n3c, n4)
+    checks = [modal_decision(left_g, tol=p.tol, missing_found=n3c + n4,
+                             label="modal cross-check of controllability"),
+              modal_decision(right_g, tol=p.tol, missing_found=n2 + n4,
+                             label="modal cross-check of observability")]
+    decisions = decisions + tuple(d for d in checks if d is not None)
+    if condition > _CONDITION_WARNING:
+        warnings.warn(
+            f"the Kalman transformation T has condition number {condition:.3g}: the parts are "
+            "nearly dependent, and T_inv and the transformed model carry errors up to about "
+            f"{condition * np.finfo(float).eps:.1g} relative; the answer depends on the "
+            "tolerance.", AccuracyWarning, stacklevel=2)
     residual = _impose_zero_pattern(Az, Bz, Cz, sizes)
+    # and what the two staircases that give the coordinates W1 set to zero (the largest
+    # dropped singular value, relative to the model's scale)
+    residual = max([residual] + [d.largest_dropped for d in decisions_c])
     states = tuple(f"z{i + 1}" for i in range(n))
     new = StateSpaceModel(Az, Bz, Cz, p.model.D, p.model.dt, states=states,
                           inputs=p.model.inputs, outputs=p.model.outputs, name=p.model.name)
-    condition = float(sv[0] / sv[-1]) if n else 1.0
+    del Az
     return KalmanDecomposition(new, T, T_inv, condition, sizes, decisions,
                                any_fragile(decisions), residual)
+
+
+def _transform_staircase_model(A_w, nc, n1, N1, N3, Q3c, K):
+    """``M^-1 A_w M`` for the part-4 coupling ``M`` of :func:`kalman_decomposition`.
+
+    ``A_w`` is zero in rows ``nc:`` and columns ``:nc`` (R is invariant), so the products
+    that would only meet that block are skipped; rows of parts 3 and 4 in the columns of
+    parts 1 and 2 are exactly zero.
+    """
+    n = A_w.shape[0]
+    n3c = Q3c.shape[1]
+    AM = np.empty((n, n - nc))          # columns of parts 3 and 4 of A_w M
+    AM[:, :n3c] = A_w[:, nc:] @ Q3c
+    AM[:nc, n3c:] = A_w[:nc, :n1] @ N1 + A_w[:nc, nc:] @ N3
+    AM[nc:, n3c:] = A_w[nc:, nc:] @ N3
+    KX = K @ AM[nc:, :]
+    Az = np.zeros((n, n))
+    Az[:nc, :nc] = A_w[:nc, :nc]
+    Az[:nc, nc:] = AM[:nc, :]
+    Az[:n1, nc:] -= N1 @ KX
+    Az[nc:nc + n3c, nc:] = Q3c.T @ AM[nc:, :]
+    Az[nc + n3c:, nc:] = KX
+    return Az
 
 
 def _impose_zero_pattern(A, B, C, sizes) -> float:

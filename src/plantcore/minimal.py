@@ -6,7 +6,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .kalman import _controllable_then_observable, _prepare
+from ._crosscheck import modal_decision, modal_measures
+from .kalman import _input_gains, _nested, _prepare
 from .model import StateSpaceModel
 from .rank import any_fragile
 
@@ -66,7 +67,9 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
     that part keeps its observable part.  Only orthogonal transformations and an exact
     power-of-two diagonal scaling are used, so the minimal model is obtained in a backward
     stable way (Van Dooren 1981; Varga 1981).  The result is minimal with respect to the
-    tolerance; ``fragile`` says when another tolerance would change the order.
+    tolerance; ``fragile`` says when another tolerance would change the order.  The minimal
+    model is the leading block of the second staircase form (equal to ``W.T @ A @ V`` up to
+    rounding), and only the ``order`` columns of the transformation are formed.
 
     References
     ----------
@@ -88,19 +91,42 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
     """
     p = _prepare(model, tol)
     n = p.model.n
-    co = _controllable_then_observable(p)
-    nc = co.V_c.shape[1]
-    r = co.n1
-    X = co.V_c @ co.Z[:, :r]          # orthonormal, equilibrated coordinates
+    m = p.model.n_inputs
+    g_in = _input_gains(p.B, p.B_dec)
+    g_out = _input_gains(p.C.T, p.C_dec.T)
+    # modal cross-check measures, taken before the staircases overwrite their input
+    left_g = modal_measures(p.A, p.B_dec, scale=p.scale, side="left")
+    right_g = modal_measures(p.A, p.C_dec, scale=p.scale, side="right")
+    nest = _nested(p, keep_A=False)
+    red1, red2, nc, r = nest.red1, nest.red2, nest.nc, nest.n1
+    # Certainly uncontrollable modes must be among the n - nc removed as uncontrollable;
+    # certainly unobservable modes among all n - r removed.
+    checks = [modal_decision(left_g, tol=p.tol, missing_found=n - nc,
+                             label="modal cross-check of controllability"),
+              modal_decision(right_g, tol=p.tol, missing_found=n - r,
+                             label="modal cross-check of observability")]
+    decisions = tuple(nest.decisions) + tuple(d for d in checks if d is not None)
+    # The minimal model is the leading block of the second staircase, in the coordinates
+    # W1 = U1 diag(Z, I) (or Z alone when everything is controllable); only the r kept
+    # columns of W1 are formed, by applying the recorded reflectors to [Z_r; 0].
+    A_min = np.array(red2.A[:r, :r].T)
+    B_min = red2.C[:m, :r].T / g_in[None, :]
+    C_min = red2.B[:r, :].T / g_out[:, None]
+    X = red2.form_U(r)
+    del nest, red2
+    if nc < n:
+        Y = np.zeros((n, r), order="F")
+        Y[:nc, :] = X
+        X = red1.apply_U(Y) if red1.transforms else Y   # orthonormal, equilibrated
+        del Y
+    del red1
     s = p.s
     V = s[:, None] * X
     W = X / s[:, None]
-    A_min = X.T @ p.A @ X
-    B_min = X.T @ p.B
-    C_min = p.C @ X
+    del X
     states = tuple(f"z{i + 1}" for i in range(r))
     name = f"{p.model.name} (minimal)" if p.model.name else None
     new = StateSpaceModel(A_min, B_min, C_min, p.model.D, p.model.dt, states=states,
                           inputs=p.model.inputs, outputs=p.model.outputs, name=name)
-    return MinimalRealization(new, r, n - nc, nc - r, V, W, co.decisions,
-                              any_fragile(co.decisions))
+    return MinimalRealization(new, r, n - nc, nc - r, V, W, decisions,
+                              any_fragile(decisions))

@@ -33,7 +33,7 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-import scipy.linalg
+from scipy.linalg import lapack
 
 __all__ = [
     "RankDecision",
@@ -69,6 +69,12 @@ class RankDecision:
         Largest singular value dropped, relative to the model's scale; ``0.0`` when none.
     tolerance : float
         The relative tolerance used.
+    conflict : bool
+        True when this decision is a cross-check that contradicts another decision (see
+        :mod:`plantcore._crosscheck`); the answer then depends on the method and is fragile.
+    check_only : bool
+        True for a one-sided cross-check: it decides nothing itself, so only a
+        ``conflict`` (not its margins) makes it fragile.
     """
 
     label: str
@@ -77,6 +83,8 @@ class RankDecision:
     smallest_kept: float
     largest_dropped: float
     tolerance: float
+    conflict: bool = False
+    check_only: bool = False
 
     @property
     def margin(self) -> float:
@@ -90,8 +98,11 @@ class RankDecision:
 
     @property
     def fragile(self) -> bool:
-        """True when a kept or dropped value lies within a factor 100 of the tolerance."""
-        return self.margin < FRAGILITY_FACTOR
+        """True when a kept or dropped value lies within a factor 100 of the tolerance, or
+        when this cross-check contradicts the decision it checks."""
+        if self.check_only:
+            return self.conflict
+        return self.conflict or self.margin < FRAGILITY_FACTOR
 
     def to_dict(self) -> dict:
         """JSON-safe dictionary (``inf`` becomes ``None``)."""
@@ -107,12 +118,13 @@ class RankDecision:
             "tolerance": float(self.tolerance),
             "margin": safe(self.margin),
             "fragile": self.fragile,
+            "conflict": self.conflict,
         }
 
     def describe(self) -> str:
         """One line for reports."""
         kept = "none" if not math.isfinite(self.smallest_kept) else f"{self.smallest_kept:.3g}"
-        flag = "  FRAGILE" if self.fragile else ""
+        flag = "  CONFLICT" if self.conflict else ("  FRAGILE" if self.fragile else "")
         return (f"{self.label}: rank {self.rank} of {self.size}; smallest kept {kept}, "
                 f"largest dropped {self.largest_dropped:.3g}, tolerance {self.tolerance:.3g}{flag}")
 
@@ -168,11 +180,16 @@ class Equilibration:
 
     def apply(self, A, B, C):
         s = self.state_scaling
-        return (A / s[:, None]) * s[None, :], B / s[:, None], C * s[None, :]
+        A_e = A / s[:, None]
+        A_e *= s[None, :]
+        return A_e, B / s[:, None], C * s[None, :]
 
 
 def _pow2(x):
-    return np.exp2(np.round(np.log2(x)))
+    """Nearest power of two, with the exponent kept inside the double range."""
+    with np.errstate(divide="ignore", over="ignore", invalid="ignore"):
+        e = np.clip(np.round(np.log2(x)), -1000.0, 1000.0)
+    return np.exp2(e)
 
 
 def equilibrate(A, B, C, *, threshold: float = 8.0) -> Equilibration:
@@ -193,22 +210,35 @@ def equilibrate(A, B, C, *, threshold: float = 8.0) -> Equilibration:
         return Equilibration(np.ones(0))
     m, p = B.shape[1], C.shape[0]
     k = max(m, p)
-    M = np.zeros((n + k, n + k))
-    M[:n, :n] = A
-    M[:n, n:n + m] = B
-    M[n:n + p, :n] = C
-    if not np.any(M):
+    norm_M = math.sqrt(np.linalg.norm(A) ** 2 + np.linalg.norm(B) ** 2 + np.linalg.norm(C) ** 2)
+    if norm_M == 0.0:
         return Equilibration(np.ones(n))
-    _, (scale, _perm) = scipy.linalg.matrix_balance(M, permute=False, separate=True)
+    M = np.zeros((n + k, n + k), order="F")
+    # Inputs and outputs first brought to the size of A by powers of two (their units do
+    # not matter for ranks), so that an input in large units cannot dominate the balance.
+    norm_A = float(np.linalg.norm(A))
+    B_n, C_n = io_scaled(B, C, norm_A if norm_A > 0 else 1.0)
+    M[:n, :n] = A
+    M[:n, n:n + m] = B_n
+    M[n:n + p, :n] = C_n
+    # LAPACK gebal, scaling only, on our own copy (what scipy.linalg.matrix_balance calls).
+    _, _, _, scale, info = lapack.dgebal(M, scale=1, permute=0, overwrite_a=1)
+    del M
+    if info != 0:  # pragma: no cover - LAPACK argument error
+        raise RuntimeError(f"gebal failed with info={info}")
     s = np.asarray(scale[:n], dtype=float)
     # Normalise so that the io coordinate scaling is one (only ratios matter), as powers of 2.
     if k:
         s = s / np.exp2(np.round(np.log2(np.median(scale[n:]))))
     s = _pow2(s)
-    Mb = M.copy()
-    full = np.concatenate([s, np.ones(k)])
-    Mb = (Mb / full[:, None]) * full[None, :]
-    if np.linalg.norm(Mb) * threshold < np.linalg.norm(M):
+    # Frobenius norm of the scaled system matrix, a block of rows at a time.
+    sq = np.linalg.norm(B / s[:, None]) ** 2 + np.linalg.norm(C * s[None, :]) ** 2
+    step = max(1, (1 << 20) // max(n, 1))
+    for i in range(0, n, step):
+        rows = A[i:i + step, :] / s[i:i + step, None]
+        rows *= s[None, :]
+        sq += np.linalg.norm(rows) ** 2
+    if math.sqrt(sq) * threshold < norm_M:
         return Equilibration(s)
     return Equilibration(np.ones(n))
 

@@ -18,19 +18,11 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-import scipy.linalg
-from scipy.linalg import lapack
 
+from ._fastpaths import reduce_staircase
+from ._crosscheck import modal_decision, modal_measures
 from .model import StateSpaceModel, as_model
-from .rank import (
-    Equilibration,
-    RankDecision,
-    any_fragile,
-    decide_rank,
-    equilibrate,
-    io_scaled,
-    resolve_tolerance,
-)
+from .rank import Equilibration, any_fragile, equilibrate, io_scaled, resolve_tolerance
 
 __all__ = ["StaircaseForm", "controllability_staircase", "observability_staircase"]
 
@@ -77,10 +69,6 @@ class StaircaseForm:
     kind: str = "controllability"
 
 
-def _lwork(*dims) -> int:
-    return max(1, 64 * max(dims + (1,)))
-
-
 def _staircase_core(A, B, C, *, scale, tol, label):
     """Controllability staircase of arrays already equilibrated.
 
@@ -89,66 +77,13 @@ def _staircase_core(A, B, C, *, scale, tol, label):
     structural zeros set exactly.
 
     The algorithm is the staircase reduction of Van Dooren (1981) and Varga (1981): at each
-    step the block below the current diagonal position is compressed by QR with column
-    pivoting (LAPACK ``geqp3``), whose small triangular factor is then decomposed by the
-    SVD so that each rank is decided from true singular values.  Householder reflectors are
-    applied with ``ormqr`` without forming them, so one step costs ``O(n^2 r)``.
+    step the block below the current diagonal position is compressed by Householder
+    reflectors and its rank is decided from true singular values.  Steps whose block keeps
+    full column rank are done in blocked (level-3) form and the first rank-deficient step by
+    QR with column pivoting followed by an SVD; see :mod:`plantcore._fastpaths`.
     """
-    n, m = B.shape
-    A = np.array(A, dtype=float, order="F")
-    B = np.array(B, dtype=float, order="F")
-    C = np.array(C, dtype=float, order="F")
-    U = np.eye(n, order="F")
-    blocks: list[int] = []
-    decisions: list[RankDecision] = []
-    k = 0          # first row of the not-yet-reached part
-    prev = None    # columns of the previous block (None: use B)
-    step = 0
-    while k < n:
-        step += 1
-        X = B[k:, :] if prev is None else A[k:, prev[0]:prev[1]]
-        rows, cols = X.shape
-        if cols == 0:
-            break
-        qr, jpvt, tau, _, info = lapack.dgeqp3(np.asfortranarray(X))
-        if info != 0:  # pragma: no cover - LAPACK argument error
-            raise RuntimeError(f"geqp3 failed with info={info}")
-        kk = min(rows, cols)
-        R = np.triu(qr[:kk, :])
-        Ur, s, _ = np.linalg.svd(R[:, :], full_matrices=False) if kk else (np.zeros((0, 0)), np.zeros(0), None)
-        d = decide_rank(s, scale, tol, f"{label} step {step}")
-        decisions.append(d)
-        r = d.rank
-        refl = np.asfortranarray(qr[:, :kk])
-        tau = tau[:kk]
-        if kk:
-            # rows k: of A, B  <- H^T (.)
-            A[k:, :], _, info1 = lapack.dormqr("L", "T", refl, tau, A[k:, :], _lwork(n))[:3]
-            B[k:, :], _, info2 = lapack.dormqr("L", "T", refl, tau, B[k:, :], _lwork(m))[:3]
-            # columns k: of A, C, U  <- (.) H
-            A[:, k:], _, info3 = lapack.dormqr("R", "N", refl, tau, A[:, k:], _lwork(n))[:3]
-            if C.shape[0]:
-                C[:, k:], _, info4 = lapack.dormqr("R", "N", refl, tau, C[:, k:], _lwork(n))[:3]
-            U[:, k:], _, info5 = lapack.dormqr("R", "N", refl, tau, U[:, k:], _lwork(n))[:3]
-            # then the small rotation Ur on the first kk rows/columns of the trailing part
-            sl = slice(k, k + kk)
-            A[sl, :] = Ur.T @ A[sl, :]
-            B[sl, :] = Ur.T @ B[sl, :]
-            A[:, sl] = A[:, sl] @ Ur
-            if C.shape[0]:
-                C[:, sl] = C[:, sl] @ Ur
-            U[:, sl] = U[:, sl] @ Ur
-        # exact structural zeros below the kept rows in the compressed block
-        if prev is None:
-            B[k + r:, :] = 0.0
-        else:
-            A[k + r:, prev[0]:prev[1]] = 0.0
-        if r == 0:
-            break
-        blocks.append(r)
-        prev = (k, k + r)
-        k += r
-    return A, B, C, U, blocks, decisions
+    red = reduce_staircase(A, B, C, scale=scale, tol=tol, label=label)
+    return red.A, red.B, red.C, red.form_U(), red.blocks, red.decisions
 
 
 def _prepare(model, tol):
@@ -160,11 +95,21 @@ def _prepare(model, tol):
 
 
 def _scale_of(A_e, B_e, C_e) -> float:
-    parts = [np.linalg.norm(A_e)]
+    """The model's scale for rank decisions: ``||A_e||_F``.
+
+    Inputs and outputs are rescaled to this size before deciding ranks (their units do not
+    change controllability or observability), so only ``A`` sets the scale; the norms of
+    ``B`` and ``C`` are used only when ``A`` is zero.  Including them always would let an
+    input in large units make every coupling inside ``A`` look negligible.
+    """
+    norm_A = float(np.linalg.norm(A_e))
+    if norm_A > 0 and np.isfinite(norm_A):
+        return norm_A
+    parts = [0.0]
     if B_e.size:
-        parts.append(np.max(np.linalg.norm(B_e, axis=0)))
+        parts.append(float(np.max(np.linalg.norm(B_e, axis=0))))
     if C_e.size:
-        parts.append(np.max(np.linalg.norm(C_e, axis=1)))
+        parts.append(float(np.max(np.linalg.norm(C_e, axis=1))))
     scale = max(parts)
     return scale if scale > 0 else 1.0
 
@@ -184,9 +129,18 @@ def _controllability(model, tol, label="controllability"):
     scale = _scale_of(A_e, B_e, C_e)
     B_s, _ = io_scaled(B_e, C_e, scale)
     g = _input_gains(B_e, B_s)
-    A_t, B_t, C_t, U, blocks, decisions = _staircase_core(A_e, B_s, C_e, scale=scale, tol=tol, label=label)
-    B_t = B_t / g[None, :]  # back to the user's input units (exact: powers of two)
-    return model, eq, A_t, B_t, C_t, U, blocks, decisions
+    del B_e
+    # modal cross-check measures, taken before the staircase overwrites A_e
+    measures = modal_measures(A_e, B_s, scale=scale, side="left")
+    red = reduce_staircase(A_e, B_s, C_e, scale=scale, tol=tol, label=label)
+    del A_e, C_e, B_s
+    U = red.form_U()
+    red.transforms.clear()
+    B_t = red.B / g[None, :]  # back to the user's input units (exact: powers of two)
+    check = modal_decision(measures, tol=tol, missing_found=model.n - int(sum(red.blocks)),
+                           label=f"modal cross-check of {label}")
+    decisions = tuple(red.decisions) + ((check,) if check is not None else ())
+    return model, eq, red.A, B_t, red.C, U, red.blocks, decisions
 
 
 def _form(model, eq, A_t, B_t, C_t, U, blocks, decisions, kind) -> StaircaseForm:
@@ -226,11 +180,18 @@ def controllability_staircase(model, tol=None) -> StaircaseForm:
     -----
     Before deciding ranks the model is equilibrated by a diagonal similarity of powers of two
     (:func:`plantcore.rank.equilibrate`), so answers do not depend on the units of the
-    states.  Each step compresses one block by Householder QR with column pivoting followed
-    by an SVD of the small triangular factor; every rank is a count of singular values above
-    the tolerance, recorded in ``decisions``.  The Krylov matrix ``[B, AB, ...]`` is never
-    formed.  The method can mislead only when a singular value lies near the tolerance; the
-    ``fragile`` flag says so.
+    states.  Each step compresses one block by Householder reflectors and decides its rank
+    from the singular values of the small triangular factor (an SVD); every rank is a count
+    of singular values above the tolerance, recorded in ``decisions``.  The Krylov matrix
+    ``[B, AB, ...]`` is never formed.  The method can mislead only when a singular value lies
+    near the tolerance; the ``fragile`` flag says so.
+
+    Steps whose block keeps full column rank (the usual case) are carried out in blocked
+    form, several at a time, with matrix-matrix products as in LAPACK's reduction to
+    Hessenberg form [4]_ (for a single input the remaining steps *are* that reduction,
+    LAPACK ``dgehrd``); the first step found rank deficient is redone by QR with column
+    pivoting and an SVD, which moves the dropped part into rows then set exactly to zero.
+    The cost is about that of one Hessenberg reduction plus forming ``Q``.
 
     References
     ----------
@@ -239,6 +200,8 @@ def controllability_staircase(model, tol=None) -> StaircaseForm:
        IEEE Trans. Automatic Control 26(1), 111-129, 1981.
     .. [3] A. Varga, "Numerically stable algorithm for standard controllability form
        determination", Electronics Letters 17(2), 74-75, 1981.
+    .. [4] G. Quintana-Orti and R. van de Geijn, "Improving the performance of reduction to
+       Hessenberg form", ACM Trans. Math. Software 32(2), 180-194, 2006.
 
     Examples
     --------
