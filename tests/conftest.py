@@ -29,3 +29,23 @@ import sys  # noqa: E402
 
 # Make the shared test catalog importable (``import catalog``) under --import-mode=importlib.
 sys.path.insert(0, os.path.dirname(__file__))
+
+import pytest  # noqa: E402
+
+
+@pytest.fixture
+def this_interpreter_kernel(tmp_path_factory, monkeypatch):
+    """Make the notebook kernel named "python3" run this very interpreter.
+
+    A machine may carry a global "python3" kernel spec that starts another Python (which
+    would then import another installed copy of plantcore); a spec written into a private
+    folder at the head of JUPYTER_PATH takes precedence.
+    """
+    from ipykernel.kernelspec import install
+
+    prefix = tmp_path_factory.mktemp("kernel")
+    install(prefix=str(prefix), kernel_name="python3")
+    share = prefix / "share" / "jupyter"
+    old = os.environ.get("JUPYTER_PATH")
+    monkeypatch.setenv("JUPYTER_PATH", str(share) + (os.pathsep + old if old else ""))
+    return "python3"

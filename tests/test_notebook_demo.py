@@ -27,7 +27,7 @@ def test_notebook_uses_no_absolute_paths():
     assert all(not c.get("outputs") for c in nb.cells if c.cell_type == "code")  # stored clean
 
 
-def test_notebook_executes(tmp_path, monkeypatch):
+def test_notebook_executes(tmp_path, monkeypatch, this_interpreter_kernel):
     nb = nbformat.read(THERMAL, as_version=4)
     # Let the kernel pick its own inline plot backend (the test session forces Agg, which the
     # kernel would inherit and which shows nothing), as it does for a user.

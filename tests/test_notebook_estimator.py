@@ -23,7 +23,7 @@ def test_estimator_notebook_is_stored_clean():
     assert "validated against the real plant" in nb.cells[-1].source   # the safety caution
 
 
-def test_estimator_notebook_executes(tmp_path, monkeypatch):
+def test_estimator_notebook_executes(tmp_path, monkeypatch, this_interpreter_kernel):
     nb = nbformat.read(NOTEBOOK, as_version=4)
     # The kernel picks its own inline backend (the test session forces Agg, which it would
     # inherit); no time limit per cell (tests carry no wall-clock limits); the kernel runs in

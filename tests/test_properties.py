@@ -802,17 +802,12 @@ def test_reproducer_huge_entries_raise_linalgerror():
             pytest.fail(f"numpy's LinAlgError escaped: {exc}")
 
 
-@pytest.mark.xfail(strict=True, reason="issue 7 finding: h2_norm of (1e100 A, 1e100 B, C) "
-                   "returns the right value but leaks numpy 'overflow encountered in dot' "
-                   "RuntimeWarnings from its residual check")
 def test_reproducer_h2_norm_overflow_warning():
     m0 = _MAGNITUDE_CASE.model
     out = call(pc.h2_norm, pc.StateSpaceModel(m0.A * 1e100, m0.B * 1e100, m0.C, m0.D))
     assert out.ok
 
 
-@pytest.mark.xfail(strict=True, reason="issue 7 finding: h2_norm returns nan (with overflow "
-                   "RuntimeWarnings) for entries near 1e150; the true value 1.03e225 is finite")
 def test_reproducer_h2_norm_nan_for_large_entries():
     m0 = _MAGNITUDE_CASE.model
     f = 1e150

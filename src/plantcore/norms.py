@@ -582,8 +582,16 @@ def h2_norm(model) -> float:
         A, B, C, D = _equilibrated(model)
         if not _is_stable(A, discrete, origin_scale):
             return math.inf
-    total = float(np.sum(D * D)) if discrete else 0.0
+    d_part = float(np.linalg.norm(D)) if discrete else 0.0
+    gram_part = 0.0
     if model.n:
+        # B and C enter linearly: normalise them so that the Gramian is computed on data of
+        # unit size and the magnitudes are put back outside the square root (no overflow or
+        # underflow for entries near 1e+-150).
+        b_size, c_size = float(np.linalg.norm(B)), float(np.linalg.norm(C))
+        if b_size == 0.0 or c_size == 0.0:
+            return d_part
+        B, C = B / b_size, C / c_size
         use_controllability = B.shape[1] <= C.shape[0]
         if use_controllability:
             Aa, R, Out = A, B @ B.T, C
@@ -603,5 +611,5 @@ def h2_norm(model) -> float:
                 f"the Lyapunov equation for the H2 norm was solved with relative residual "
                 f"{residual / size:.1e}; the value may be inaccurate.",
                 AccuracyWarning, stacklevel=2)
-        total += float(np.sum((Out @ P) * Out))
-    return math.sqrt(max(total, 0.0))
+        gram_part = b_size * c_size * math.sqrt(max(float(np.sum((Out @ P) * Out)), 0.0))
+    return math.hypot(d_part, gram_part)
