@@ -37,7 +37,7 @@ Exact sizes are not always numerically well posed.  Staircase methods follow a c
 subdiagonal blocks; when it decays (many states driven through few inputs) rounding noise
 of ``eps ||A||`` in the hidden model reappears one step past the true rank many orders of
 magnitude larger (C. C. Paige, "Properties of numerical algorithms related to computing
-controllability", IEEE TAC 1981).  Two measures from an independent implementation, SLICOT
+controllability", IEEE TAC 1981).  Two measures from an independent implementation, slycot
 ``AB01ND`` through slycot, run on the *unhidden* Kalman form, separate the families:
 
 * :func:`well_conditioned_models` -- Jordan blocks of at most 4 states with unit
@@ -133,7 +133,7 @@ class GeneratedModel:
     output_scaling: np.ndarray   # Dy
     pbh_margin: float
     chain_decades: tuple         # ((total, worst) ctrb, (total, worst) obsv): chain_decades()
-    reference_noise: float       # SLICOT staircase noise past the true ranks, unhidden form
+    reference_noise: float       # slycot staircase noise past the true ranks, unhidden form
 
     @property
     def n(self) -> int:
@@ -255,7 +255,7 @@ def pbh_margin(A, B, C, sizes, eigenvalues) -> float:
 
 
 def _controllable_chain(A, B) -> tuple:
-    """Decades lost along the staircase of a controllable pair (external: SLICOT ``AB01ND``).
+    """Decades lost along the staircase of a controllable pair (external: slycot's ``ab01nd``).
 
     Returns ``(total, worst)``: the sum and the largest of ``-log10(σ_min(A_{j+1,j}) /
     ||A||_F)`` over the subdiagonal blocks of the controllability staircase form computed by
@@ -290,7 +290,7 @@ def _controllable_chain(A, B) -> tuple:
 
 
 def _noise_past_rank(A, B, rank) -> float:
-    """Rounding noise one step past the true controllable dimension (external: SLICOT).
+    """Rounding noise one step past the true controllable dimension (external: slycot).
 
     slycot's ``AB01ND`` staircase of the whole pair ``(A, B)`` is run with a tolerance
     below any rounding; the singular values of the compressed block that cross the true
@@ -470,10 +470,10 @@ answers were not flagged (see the report of issue 7)."""
 
 
 MAX_REFERENCE_NOISE = 1e-14
-"""Largest rounding noise (relative) that the reference staircase, SLICOT ``AB01ND`` through
+"""Largest rounding noise (relative) that the reference staircase, slycot's ``ab01nd`` through
 slycot, may see one step past the true ranks of the *unhidden* Kalman form, for a
 well-conditioned model.  Above it, the exact answer is not determined to working accuracy
-even before any hiding: plantcore's staircases and SLICOT's then agree with each other and
+even before any hiding: plantcore's staircases and slycot's then agree with each other and
 not with the construction (found at 10x the default number of examples; see the report of
 issue 7)."""
 

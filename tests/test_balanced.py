@@ -3,7 +3,7 @@
 External references:
 - Analytic Gramians of first-order systems, derived below in the test docstrings.
 - scipy.linalg.solve_continuous_lyapunov / solve_discrete_lyapunov (Bartels-Stewart) and
-  slycot sb03od (Hammarling's method in SLICOT) for the Gramian factors.
+  slycot sb03od (Hammarling's method, through slycot) for the Gramian factors.
 - slycot ab09ad (square-root balanced truncation of stable models) and ab09md (the same for
   the stable part of a model with unstable modes) for Hankel singular values and the
   reduced transfer functions.

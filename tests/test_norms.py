@@ -1,8 +1,8 @@
 """Tests of plantcore.norms (peak gain and H2 norm).
 
 External references, named beside each check:
-- slycot's L-infinity norm routine ``ab13dd`` and H2 norm routine ``ab13bd`` (SLICOT
-  library), and python-control's ``norm``.
+- slycot's L-infinity norm routine ``ab13dd`` and H2 norm routine ``ab13bd``, and
+  python-control's ``norm``.
 - A dense frequency grid followed by a bounded scalar maximization (scipy.optimize) as an
   independent, slow estimate of the peak.
 - Closed forms derived in the tests: the resonant peak of a second-order system, the H2
@@ -64,7 +64,7 @@ def gain(model, w):
 
 
 def slycot_peak(model):
-    """slycot ab13dd: L-infinity norm and peak frequency (SLICOT, Benner/Sima/Voigt)."""
+    """slycot ab13dd: L-infinity norm and peak frequency (slycot; Benner, Sima and Voigt)."""
     n, m, p = model.n, model.n_inputs, model.n_outputs
     return slycot.ab13dd("D" if model.is_discrete else "C", "I", "N", "D", n, m, p,
                          model.A, np.eye(n), model.B, model.C, model.D, 1e-10)
@@ -338,7 +338,7 @@ def test_h2_against_slycot_and_python_control(discrete):
         model = random_stable(rng, 7, m, p, discrete=discrete, feedthrough=discrete)
         ours = h2_norm(model)
         ref = slycot.ab13bd("D" if discrete else "C", "H", model.n, m, p,
-                            model.A, model.B, model.C, model.D)          # SLICOT ab13bd
+                            model.A, model.B, model.C, model.D)          # slycot ab13bd
         assert_allclose(ours, ref, rtol=1e-9)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")

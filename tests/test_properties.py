@@ -45,7 +45,7 @@ fragile 4 %, no breakdown (but the property test found a wrong non-fragile answe
 test_reproducer_input_units_hide_fragility); stress (Jordan chains up to 30 states,
 strongly non-normal blocks) -- fragile 14 %, NumericalBreakdown 2 %, wrong non-fragile sizes
 2.4 % (the staircase method's known sensitivity on long chains, reproduced identically by
-SLICOT ``AB01ND`` through slycot), so only invariants are asserted there; no known
+slycot's ``ab01nd``), so only invariants are asserted there; no known
 structure -- fragile 6 %, no NumericalBreakdown.  Over 1200 models and every public
 numerical function, with RuntimeWarnings as errors, no exception other than the documented
 ones escaped.
