@@ -234,7 +234,6 @@ def _careful_step(A, B, C, k, prev, *, scale, tol, label, step, transforms):
     ``ormqr`` to rows and columns ``k:``, the SVD rotation to the first rows, and what is
     dropped set exactly to zero.
     """
-    n = A.shape[0]
     X = B[k:, :] if prev is None else A[k:, prev[0]:prev[1]]
     rows, cols = X.shape
     if cols == 0:

@@ -226,7 +226,6 @@ def _krylov_basis(A: sympy.Matrix, B: sympy.Matrix) -> sympy.Matrix:
 
     if n == 0 or B.cols == 0:
         return sympy.zeros(n, 0)
-    blocks = [B]
     K = B
     rank = _rank(K)
     block = B

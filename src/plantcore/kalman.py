@@ -139,6 +139,20 @@ def _nested(p: _Prepared, *, keep_A: bool = True) -> _Nested:
                    tuple(red1.decisions) + tuple(red2.decisions))
 
 
+def _start(p: _Prepared, *, keep_A: bool):
+    """The common start of the decomposition and the minimal realization (internal).
+
+    Returns the input and output gains of the decision scaling, the modal cross-check
+    measures (taken first: the staircases overwrite their input), and the two nested
+    staircases.
+    """
+    g_in = _input_gains(p.B, p.B_dec)
+    g_out = _input_gains(p.C.T, p.C_dec.T)
+    measures = (modal_measures(p.A, p.B_dec, scale=p.scale, side="left"),
+                modal_measures(p.A, p.C_dec, scale=p.scale, side="right"))
+    return g_in, g_out, measures, _nested(p, keep_A=keep_A)
+
+
 @dataclass(frozen=True)
 class KalmanDecomposition:
     """The Kalman decomposition of a model.
@@ -274,12 +288,7 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
     p = _prepare(model, tol)
     n = p.model.n
     m = p.model.n_inputs
-    g_in = _input_gains(p.B, p.B_dec)
-    g_out = _input_gains(p.C.T, p.C_dec.T)
-    # modal cross-check measures, taken before the staircases overwrite their input
-    left_g = modal_measures(p.A, p.B_dec, scale=p.scale, side="left")
-    right_g = modal_measures(p.A, p.C_dec, scale=p.scale, side="right")
-    nest = _nested(p)
+    g_in, g_out, (left_g, right_g), nest = _start(p, keep_A=True)
     red1, red2, nc, n1 = nest.red1, nest.red2, nest.nc, nest.n1
     decisions_c = nest.decisions
     n2 = nc - n1

@@ -6,8 +6,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ._crosscheck import modal_decision, modal_measures
-from .kalman import _input_gains, _nested, _prepare
+from ._crosscheck import modal_decision
+from .kalman import _prepare, _start
 from .model import StateSpaceModel
 from .rank import any_fragile
 
@@ -92,12 +92,7 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
     p = _prepare(model, tol)
     n = p.model.n
     m = p.model.n_inputs
-    g_in = _input_gains(p.B, p.B_dec)
-    g_out = _input_gains(p.C.T, p.C_dec.T)
-    # modal cross-check measures, taken before the staircases overwrite their input
-    left_g = modal_measures(p.A, p.B_dec, scale=p.scale, side="left")
-    right_g = modal_measures(p.A, p.C_dec, scale=p.scale, side="right")
-    nest = _nested(p, keep_A=False)
+    g_in, g_out, (left_g, right_g), nest = _start(p, keep_A=False)
     red1, red2, nc, r = nest.red1, nest.red2, nest.nc, nest.n1
     # Certainly uncontrollable modes must be among the n - nc removed as uncontrollable;
     # certainly unobservable modes among all n - r removed.

@@ -17,7 +17,7 @@ tuples ``(A, B, C)`` / ``(A, B, C, D)`` of array-likes.
 from __future__ import annotations
 
 import numbers
-from typing import Any, Sequence
+from typing import Any
 
 import numpy as np
 

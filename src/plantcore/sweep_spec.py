@@ -643,7 +643,7 @@ def load_sweep_spec(path) -> SweepSpec:
     matrices = {}
     for key in ("A", "B", "C"):
         if key not in document:
-            reader.fail(key, f"missing; a sweep specification needs the matrices A, B and C.")
+            reader.fail(key, "missing; a sweep specification needs the matrices A, B and C.")
         matrices[key] = reader.matrix(document[key], key, names)
     matrices["D"] = reader.matrix(document["D"], "D", names) if "D" in document else None
     _check_shapes(reader, matrices)
