@@ -435,9 +435,9 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
     del Ti_e
     sizes = PartSizes(n1, n2, n3c, n4)
     checks = [modal_decision(left_g, tol=p.tol, missing_found=n3c + n4,
-                             label="modal cross-check of controllability"),
+                             label="modal cross-check: modes not proven uncontrollable"),
               modal_decision(right_g, tol=p.tol, missing_found=n2 + n4,
-                             label="modal cross-check of observability")]
+                             label="modal cross-check: modes not proven unobservable")]
     decisions = decisions + tuple(d for d in checks if d is not None)
     if condition > _CONDITION_WARNING:
         warnings.warn(

@@ -97,9 +97,9 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
     # Certainly uncontrollable modes must be among the n - nc removed as uncontrollable;
     # certainly unobservable modes among all n - r removed.
     checks = [modal_decision(left_g, tol=p.tol, missing_found=n - nc,
-                             label="modal cross-check of controllability"),
+                             label="modal cross-check: modes not proven uncontrollable"),
               modal_decision(right_g, tol=p.tol, missing_found=n - r,
-                             label="modal cross-check of observability")]
+                             label="modal cross-check: modes not proven unobservable")]
     decisions = tuple(nest.decisions) + tuple(d for d in checks if d is not None)
     # The minimal model is the leading block of the second staircase, in the coordinates
     # W1 = U1 diag(Z, I) (or Z alone when everything is controllable); only the r kept

@@ -138,7 +138,8 @@ def _controllability(model, tol, label="controllability"):
     red.transforms.clear()
     B_t = red.B / g[None, :]  # back to the user's input units (exact: powers of two)
     check = modal_decision(measures, tol=tol, missing_found=model.n - int(sum(red.blocks)),
-                           label=f"modal cross-check of {label}")
+                           label="modal cross-check: modes not proven "
+                                 + ("uncontrollable" if label == "controllability" else "unobservable"))
     decisions = tuple(red.decisions) + ((check,) if check is not None else ())
     return model, eq, red.A, B_t, red.C, U, red.blocks, decisions
 
