@@ -97,7 +97,7 @@ def _cmd_reduce(args) -> int:
     return EXIT_OK
 
 
-# --- compare: handler ---
+# --- compare ---
 def _cmd_compare(args) -> int:
     from .equivalence import check_equivalence
     from .io import load_model
@@ -109,7 +109,7 @@ def _cmd_compare(args) -> int:
     return EXIT_OK if certificate.equivalent else EXIT_NOT_EQUIVALENT
 
 
-# --- report: handler ---
+# --- report ---
 def _cmd_report(args) -> int:
     from .html_report import write_html_report
     from .io import load_model
@@ -124,7 +124,7 @@ def _cmd_report(args) -> int:
     return EXIT_OK
 
 
-# --- demo: handler ---
+# --- demo ---
 def _cmd_demo(args) -> int:
     from .demo import run_demo
 
@@ -132,7 +132,7 @@ def _cmd_demo(args) -> int:
     return EXIT_OK
 
 
-# --- audit: handler ---
+# --- audit ---
 def _cmd_audit(args) -> int:
     from .audit_report import audit_html, audit_text
     from .estimator import audit_from_file
@@ -151,7 +151,7 @@ def _cmd_audit(args) -> int:
     return EXIT_OK
 
 
-# --- sweep: handler ---
+# --- sweep ---
 def _cmd_sweep(args) -> int:
     from .sweep import sweep
     from .sweep_report import check_output_folder, write_sweep_folder
@@ -191,7 +191,6 @@ COMMANDS = {
     "report": _cmd_report,
     "demo": _cmd_demo,
     "audit": _cmd_audit,
-    # --- more commands ---
 }
 
 
@@ -216,7 +215,7 @@ def _build_parser() -> argparse.ArgumentParser:
                        help="balanced truncation to the lowest order whose error bound is below this")
     p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
 
-    # --- compare: parser ---
+    # --- compare ---
     p = sub.add_parser("compare", help="certify that two models have the same transfer matrix "
                                        "(exit 0 equivalent, 1 not, 2 bad input)")
     p.add_argument("model_a", metavar="MODEL_A", help="reference model file (.toml, .json or .npz)")
@@ -227,7 +226,7 @@ def _build_parser() -> argparse.ArgumentParser:
     p.add_argument("--exact", action="store_true",
                    help="also compare in exact rational arithmetic and let that decide "
                         "(small models; file numbers are taken at their exact binary value)")
-    # --- report: parser ---
+    # --- report ---
     p = sub.add_parser("report", help="write a self-contained HTML report with plots")
     p.add_argument("model", help="model file (.toml, .json or .npz)")
     p.add_argument("-o", "--output", required=True, help="HTML file to write")
@@ -238,14 +237,14 @@ def _build_parser() -> argparse.ArgumentParser:
     group.add_argument("--max-error", type=float, default=None, dest="max_error",
                        help="truncate to the lowest order whose error bound is below this "
                             "(default: a tenth of the peak gain)")
-    # --- demo: parser ---
+    # --- demo ---
     p = sub.add_parser("demo", help="run inspect, reduce, compare and report on a packaged example")
     p.add_argument("-o", "--output", default=None, metavar="FOLDER",
                    help="new (or empty) folder for the results; default "
                         "plantcore-demo-YYYYMMDD-HHMMSS in the working directory")
     p.add_argument("--example", default="thermal_process",
                    help="packaged example to use (default thermal_process; also motion_axis)")
-    # --- audit: parser ---
+    # --- audit ---
     p = sub.add_parser("audit", help="observability audit of the Jacobians a linearized "
                                      "estimator used")
     p.add_argument("jacobians", metavar="JACOBIANS.npz",
@@ -257,7 +256,7 @@ def _build_parser() -> argparse.ArgumentParser:
     p.add_argument("-o", "--output", default=None, metavar="REPORT.html",
                    help="also write a self-contained HTML report with plots")
     p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
-    # --- sweep: parser ---
+    # --- sweep ---
     p = sub.add_parser("sweep", help="analyze a model family over a grid or random draws of "
                                      "its parameters")
     p.add_argument("spec", help="sweep specification (.toml) with expressions in parameters")
