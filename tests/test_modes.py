@@ -361,3 +361,17 @@ def test_distance_estimate_against_brute_force_minimum(seed):
     assert est.value == pytest.approx(smin((at.real, at.imag)), rel=1e-8)          # attained
     assert est.value >= ref * (1 - 1e-6)                                          # upper bound
     assert est.value <= ref * 1.01                                                # and tight
+
+
+def test_slow_stable_mode_beside_an_integrator_stays_stable():
+    # A pure integrator (eigenvalue 0, on the boundary) beside a slow but stable mode at
+    # -1e-4 (analytic: diagonal A).  Only the integrator is marginal; the boundary test that
+    # moves rounding-perturbed defective eigenvalues onto the boundary must not take the
+    # stable one along (its sigma_min(A - 0 I) is small only because of the integrator).
+    rng = np.random.default_rng(12)
+    Q = np.linalg.qr(rng.standard_normal((3, 3)))[0]
+    A = Q @ np.diag([0.0, -1e-4, -1.0]) @ Q.T
+    modes = pc.classify_modes((A, Q @ np.ones((3, 1)), np.ones((1, 3)) @ Q.T))
+    by_value = sorted(modes, key=lambda m: m.value.real)
+    assert [m.stable for m in by_value] == [True, True, False]
+    assert [m.marginal for m in by_value] == [False, False, True]

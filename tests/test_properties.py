@@ -838,10 +838,6 @@ def test_reproducer_analyze_survives_a_hankel_breakdown():
     assert analysis.hankel_singular_values is not None or analysis.hankel_note
 
 
-@pytest.mark.xfail(strict=True, reason="issue 7 finding: a chain of four integrators in "
-                   "rotated coordinates is not recognised as lying on the stability boundary "
-                   "(eigenvalues spread by eps**(1/4) ~ 1e-4 escape the eps**(1/3) clustering), "
-                   "so two of its modes are reported stable and Hankel values of 2e16 returned")
 def test_reproducer_integrator_chain_is_marginal():
     model = _integrator_chain_model(0)
     with warnings.catch_warnings():

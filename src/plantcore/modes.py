@@ -223,9 +223,51 @@ def _stability_data(p) -> tuple[float, np.ndarray]:
     modes are stable, unstable or on the boundary.
     """
     nA = float(np.linalg.norm(p.A))
-    delta = _boundary_delta(nA, p.model.is_discrete)
+    discrete = p.model.is_discrete
+    delta = _boundary_delta(nA, discrete)
     values = _clustered_eigenvalues(p.A, _CLUSTER_FACTOR * nA)
-    return delta, values
+    return delta, _snap_to_boundary(p.A, values, delta, nA, discrete)
+
+
+_SNAP_RADIUS = 1e-3
+"""Eigenvalues within this distance (relative to ||A||) of the stability boundary are
+tested for being boundary eigenvalues perturbed by rounding (see _snap_to_boundary)."""
+
+
+def _snap_to_boundary(A, values, delta: float, nA: float, discrete: bool) -> np.ndarray:
+    """Move eigenvalues that are on the boundary up to a perturbation of size ``delta``.
+
+    A defective eigenvalue of multiplicity k on the boundary is computed up to ``eps^(1/k)``
+    away from it (a chain of four integrators in rotated coordinates comes back as four
+    values about 1e-4 off zero), far beyond the boundary tolerance.  For each eigenvalue
+    near the boundary, the nearest boundary point ``mu`` is an eigenvalue of a matrix within
+    ``sigma_min(A - mu I)`` of ``A`` (the backward-error characterisation of
+    pseudospectra; L. N. Trefethen and M. Embree, *Spectra and Pseudospectra*, 2005,
+    ch. 2); when that is at most ``delta``, the eigenvalue is replaced by ``mu`` and so
+    counts as marginal.  Simple, well-separated eigenvalues are never moved: for them
+    ``sigma_min(A - mu I)`` is about their distance to the boundary.
+    """
+    out = np.array(values, dtype=complex)
+    n = A.shape[0]
+    for i, v in enumerate(out):
+        if discrete:
+            r = abs(v)
+            gap = abs(r - 1.0)
+            mu = v / r if r > 0 else 1.0 + 0j
+        else:
+            gap = abs(v.real)
+            mu = complex(0.0, v.imag)
+        if gap <= delta or gap > _SNAP_RADIUS * max(nA, 1.0 if discrete else nA):
+            continue
+        # Another eigenvalue much closer to mu (a true boundary eigenvalue beside a slow
+        # stable one) explains a small sigma_min(A - mu I) by itself: leave v alone.
+        others = np.delete(np.asarray(values, dtype=complex), i)
+        if others.size and np.min(np.abs(others - mu)) < 0.1 * abs(v - mu):
+            continue
+        smin = np.linalg.svd(A - mu * np.eye(n), compute_uv=False)[-1]
+        if smin <= delta:
+            out[i] = mu
+    return out
 
 
 # --- PBH margins -------------------------------------------------------------------------
@@ -295,6 +337,7 @@ def _mode_table(kd, p, narrow_margin: float) -> list[Mode]:
     sizes = tuple(kd.sizes)
     n1, n2, n3, n4 = sizes
     T_e = kd.T / p.s[:, None]           # bases in equilibrated coordinates
+    Ti_e = kd.T_inv * p.s[None, :]
     # Controllable subsystem: orthonormal basis [T1, T2] of the controllable subspace (the
     # model itself when it is controllable: an orthogonal change of basis leaves the
     # singular values of [A - λI, B] unchanged).
@@ -319,6 +362,10 @@ def _mode_table(kd, p, narrow_margin: float) -> list[Mode]:
     for i, name in enumerate(PART_NAMES):
         sl = slice(cuts[i], cuts[i + 1])
         values = _clustered_eigenvalues(Az[sl, sl], cluster_tol)
+        if values.size:
+            # the part's block in equilibrated coordinates, for the boundary test
+            block = (Ti_e[sl, :] @ p.A) @ T_e[:, sl]
+            values = _snap_to_boundary(block, values, delta, nA, discrete)
         controllable = i in (0, 1)
         observable = i in (0, 2)
         # Controllable modes on the controllable subsystem, the others on the whole model
