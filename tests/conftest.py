@@ -49,3 +49,29 @@ def this_interpreter_kernel(tmp_path_factory, monkeypatch):
     old = os.environ.get("JUPYTER_PATH")
     monkeypatch.setenv("JUPYTER_PATH", str(share) + (os.pathsep + old if old else ""))
     return "python3"
+
+
+@pytest.fixture
+def run_notebook(tmp_path, monkeypatch, this_interpreter_kernel):
+    """Execute a notebook top to bottom; return (executed notebook, outputs, stream text).
+
+    The kernel picks its own inline plot backend (the session forces Agg, which it would
+    inherit and which shows nothing); no time limit per cell (tests carry no wall-clock
+    limits); the kernel runs in a scratch folder so nothing is written beside the notebook.
+    A failing cell (its asserts included) raises CellExecutionError.
+    """
+    nbformat = pytest.importorskip("nbformat")
+    nbclient = pytest.importorskip("nbclient")
+
+    def run(path):
+        nb = nbformat.read(path, as_version=4)
+        monkeypatch.delenv("MPLBACKEND", raising=False)
+        client = nbclient.NotebookClient(nb, kernel_name=this_interpreter_kernel, timeout=None,
+                                         resources={"metadata": {"path": str(tmp_path)}})
+        client.execute()
+        outputs = [o for c in nb.cells if c.cell_type == "code" for o in c.outputs]
+        assert not [o for o in outputs if o.output_type == "error"]
+        text = "".join(o.get("text", "") for o in outputs if o.output_type == "stream")
+        return nb, outputs, text
+
+    return run

@@ -23,18 +23,8 @@ def test_estimator_notebook_is_stored_clean():
     assert "validated against the real plant" in nb.cells[-1].source   # the safety caution
 
 
-def test_estimator_notebook_executes(tmp_path, monkeypatch, this_interpreter_kernel):
-    nb = nbformat.read(NOTEBOOK, as_version=4)
-    # The kernel picks its own inline backend (the test session forces Agg, which it would
-    # inherit); no time limit per cell (tests carry no wall-clock limits); the kernel runs in
-    # a scratch folder so nothing is written next to the notebook.
-    monkeypatch.delenv("MPLBACKEND", raising=False)
-    client = nbclient.NotebookClient(nb, kernel_name="python3", timeout=None,
-                                     resources={"metadata": {"path": str(tmp_path)}})
-    client.execute()  # raises CellExecutionError on the first failing cell (its asserts too)
-    outputs = [o for c in nb.cells if c.cell_type == "code" for o in c.outputs]
-    assert not [o for o in outputs if o.output_type == "error"]
-    text = "".join(o.get("text", "") for o in outputs if o.output_type == "stream")
+def test_estimator_notebook_executes(run_notebook, tmp_path):
+    _, outputs, text = run_notebook(NOTEBOOK)
     assert "rank 4 of 7 -> unobservable directions: 3" in text
     assert "SPURIOUS OBSERVABILITY" in text
     assert "unobservable directions kept: 3" in text
