@@ -225,3 +225,21 @@ def test_html_rendering_is_delegated_to_the_report_module():
     html = pc.analyze(zoned_model()).to_html()
     assert html.lstrip().lower().startswith("<!doctype html")
     assert "drying kiln" in html and "Caution" in html
+
+
+@pytest.mark.parametrize("case", catalog.catalog()[::4], ids=lambda c: f"{c.sizes}-{'-'.join(c.tags)}")
+def test_minimal_read_off_the_decomposition_matches_minimal_realization(case):
+    # analyze() reads the minimal realization off its Kalman decomposition instead of running
+    # the staircases again; it must be the one minimal_realization computes (same basis,
+    # hence the same matrices up to rounding) and satisfy the contract W^T V = I.
+    a = pc.analyze(case.model)
+    ref = pc.minimal_realization(case.model)
+    got = a.minimal
+    assert (got.order, got.removed_uncontrollable, got.removed_unobservable) == \
+        (ref.order, ref.removed_uncontrollable, ref.removed_unobservable)
+    scale = max(np.linalg.norm(case.model.A), 1.0)
+    assert_allclose(got.model.A, ref.model.A, atol=1e-10 * scale)
+    assert_allclose(got.model.B, ref.model.B, atol=1e-10 * max(np.linalg.norm(case.model.B), 1.0))
+    assert_allclose(got.model.C, ref.model.C, atol=1e-10 * max(np.linalg.norm(case.model.C), 1.0))
+    assert_allclose(got.W.T @ got.V, np.eye(got.order), atol=1e-12)
+    assert_allclose(got.V, ref.V, atol=1e-10)

@@ -18,7 +18,7 @@ import scipy.linalg
 from .balanced import hankel_singular_values
 from .errors import NumericalBreakdown
 from .kalman import PART_NAMES, KalmanDecomposition, _prepare, kalman_decomposition
-from .minimal import MinimalRealization, minimal_realization
+from .minimal import MinimalRealization, _minimal_from_decomposition
 from .model import StateSpaceModel
 from .modes import NARROW_MARGIN, DistanceEstimate, _distances, _mode_table
 from .report import SAFETY_CAUTION, describe_direction
@@ -254,7 +254,7 @@ def analyze(model, tol=None) -> Analysis:
     p = _prepare(model, tol)
     model = p.model
     kd = kalman_decomposition(model, tol)
-    mr = minimal_realization(model, tol)
+    mr = _minimal_from_decomposition(kd, p.s)
     modes = tuple(_mode_table(kd, p, NARROW_MARGIN))
     stabilizable = all(m.stable or m.controllable for m in modes)
     detectable = all(m.stable or m.observable for m in modes)

@@ -125,3 +125,28 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
                           inputs=p.model.inputs, outputs=p.model.outputs, name=name)
     return MinimalRealization(new, r, n - nc, nc - r, V, W, decisions,
                               any_fragile(decisions))
+
+
+def _minimal_from_decomposition(kd, state_scaling) -> MinimalRealization:
+    """The minimal realization read off a Kalman decomposition (internal; used by analyze).
+
+    Part 1 of the decomposition has the orthonormal (equilibrated) basis that
+    :func:`minimal_realization` computes with the same two staircases, and its diagonal
+    block, rows of ``B`` and columns of ``C`` do not depend on how the other parts were
+    completed (``A T1 = T1 A11 + T2 A21`` with ``T2`` orthogonal to ``T1``), so no staircase
+    is run twice.  The decisions are those of the decomposition (a superset).
+    """
+    sizes = kd.sizes
+    r = sizes.controllable_observable
+    n = kd.T.shape[0]
+    nc = r + sizes.controllable_unobservable
+    part = kd.part("controllable_observable")
+    V = kd.T[:, :r].copy()
+    s = np.asarray(state_scaling, dtype=float)
+    W = V / (s * s)[:, None]           # X / s with V = s X and X orthonormal
+    source = kd.model.name
+    states = tuple(f"z{i + 1}" for i in range(r))
+    name = f"{source} (minimal)" if source else None
+    model = StateSpaceModel(part.A, part.B, part.C, part.D, part.dt, states=states,
+                            inputs=part.inputs, outputs=part.outputs, name=name)
+    return MinimalRealization(model, r, n - nc, nc - r, V, W, tuple(kd.decisions), kd.fragile)

@@ -124,22 +124,17 @@ def _verdict_lines(a) -> list[tuple[str, str, str]]:
     """(name, yes/no, explanation) for the three verdicts."""
     not_stable = [m for m in a.modes if not m.stable]
     rows = []
-    if a.stabilizable:
-        why = ("every mode is stable" if not not_stable
-               else "every mode that is not stable can be moved by the inputs")
-        rows.append(("stabilizable", "yes", why))
-    else:
-        bad = [m for m in not_stable if not m.controllable]
-        rows.append(("stabilizable", "NO", "the inputs cannot move the mode(s) " + _mode_list(bad)
-                     + ", which are not stable"))
-    if a.detectable:
-        why = ("every mode is stable" if not not_stable
-               else "every mode that is not stable is seen by the outputs")
-        rows.append(("detectable", "yes", why))
-    else:
-        bad = [m for m in not_stable if not m.observable]
-        rows.append(("detectable", "NO", "the outputs cannot see the mode(s) " + _mode_list(bad)
-                     + ", which are not stable"))
+    for name, ok, attr, can, cannot in (
+            ("stabilizable", a.stabilizable, "controllable", "can be moved by the inputs",
+             "the inputs cannot move"),
+            ("detectable", a.detectable, "observable", "is seen by the outputs",
+             "the outputs cannot see")):
+        if ok:
+            why = "every mode is stable" if not not_stable else f"every mode that is not stable {can}"
+            rows.append((name, "yes", why))
+        else:
+            bad = [m for m in not_stable if not getattr(m, attr)]
+            rows.append((name, "NO", f"{cannot} the mode(s) {_mode_list(bad)}, which are not stable"))
     if a.is_minimal:
         rows.append(("minimal", "yes", "every state is controllable and observable"))
     else:
