@@ -40,3 +40,73 @@ def test_blocked_matches_careful(sizes, m):
     for red, U in ((fast, Uf), (slow, Us)):
         assert np.linalg.norm(U @ red.A @ U.T - A) <= 100 * A.shape[0] * np.finfo(float).eps * scale
         assert np.all(red.A[r:, :r] == 0.0) and np.all(red.B[r:, :] == 0.0)
+
+
+def _several_panels(n_c=170, n=250, m=3, seed=2501):
+    """A deep but well-conditioned staircase: ``n_c`` controllable states reached from ``m``
+    inputs through a chain of unit couplings (plus a weak random coupling), the rest not
+    reachable, hidden by a random orthogonal similarity.  With m = 3 that is about 57
+    blocked steps of width 3 (two panels of 32 steps), a last step of rank 2 inside the
+    second panel (redone by the careful step), then the rank-0 step.  (A dense random
+    controllable block of this depth would not do: its staircase is not well conditioned,
+    see the limitations in the README.)"""
+    rng = np.random.default_rng(seed)
+    A = 0.05 * rng.standard_normal((n, n)) / np.sqrt(n) - np.eye(n)
+    A[n_c:, :n_c] = 0.0
+    for k in range(0, n_c - m, m):  # each group of m states drives the next
+        t = min(m, n_c - k - m)
+        A[k + m:k + m + t, k:k + t] += np.eye(t)
+    B = np.zeros((n, m))
+    B[:m, :] = np.eye(m) + 0.1 * rng.standard_normal((m, m))
+    C = rng.standard_normal((2, n))
+    Q, _ = np.linalg.qr(rng.standard_normal((n, n)))
+    A, B, C = Q @ A @ Q.T, Q @ B, C @ Q.T
+    return A, B, C, np.linalg.norm(A)
+
+
+def test_several_panels_match_careful():
+    A, B, C, scale = _several_panels()
+    fast = reduce_staircase(A, B, C, scale=scale, tol=5e-11, label="c")
+    slow = careful_staircase(A, B, C, scale=scale, tol=5e-11, label="c")
+    assert fast.rank == slow.rank == 170
+    assert fast.blocks == slow.blocks
+    assert len(fast.blocks) > 40 and fast.blocks[-1] < 3  # the case does span the panels
+    Uf, Us = fast.form_U(), slow.form_U()
+    n = A.shape[0]
+    eps = np.finfo(float).eps
+    for red, U in ((fast, Uf), (slow, Us)):
+        assert_allclose(U.T @ U, np.eye(n), atol=1e-12)
+        assert np.linalg.norm(U @ red.A @ U.T - A) <= 100 * n * eps * scale
+        assert np.linalg.norm(red.C - C @ U) <= 100 * n * eps * np.linalg.norm(C)
+    cosines = np.linalg.svd(Uf[:, :170].T @ Us[:, :170], compute_uv=False)
+    assert_allclose(cosines, 1.0, atol=1e-9)
+
+
+def test_need_A_false_gives_the_same_decisions_and_U():
+    # Without the transformed A (rows above each step left alone) the steps see the same
+    # blocks, so the decisions and U agree with the full reduction to rounding.
+    A, B, C, scale = _several_panels()
+    full = reduce_staircase(A, B, C, scale=scale, tol=5e-11, label="c")
+    lean = reduce_staircase(A, B, C, scale=scale, tol=5e-11, label="c", need_A=False)
+    assert lean.blocks == full.blocks
+    assert [d.rank for d in lean.decisions] == [d.rank for d in full.decisions]
+    for a, b in zip(lean.decisions, full.decisions):
+        assert a.smallest_kept == pytest.approx(b.smallest_kept, rel=1e-10)
+    # The controllable columns of U agree; the rest is a basis of the complement chosen by
+    # the rank-0 step from rounding-level entries, so only its span is determined.
+    r = full.rank
+    assert_allclose(lean.form_U()[:, :r], full.form_U()[:, :r], atol=1e-12)
+
+
+@pytest.mark.parametrize("m", [1, 3])
+def test_apply_U_and_its_transpose_match_the_formed_U(m):
+    # Reflectors applied from the record (blocked, careful and single-input steps) agree
+    # with the explicitly formed orthogonal factor.
+    A, B, C, scale = _several_panels(m=m, n_c=60 if m == 1 else 170)
+    red = reduce_staircase(A, B, C, scale=scale, tol=5e-11, label="c")
+    U = red.form_U()
+    X = np.random.default_rng(7).standard_normal((A.shape[0], 5))
+    assert_allclose(red.apply_U(X), U @ X, atol=1e-12)
+    assert_allclose(red.apply_Ut(X), U.T @ X, atol=1e-12)
+    last = red.form_U(40, first=False)
+    assert_allclose(last, U[:, -40:], atol=1e-12)

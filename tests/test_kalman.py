@@ -199,3 +199,21 @@ def test_property_known_structure(sizes, seed, discrete, cond):
     _check(kd, case.model)
     if not kd.fragile:
         assert tuple(kd.sizes) == case.sizes
+
+
+@pytest.mark.parametrize("sizes", [(5, 1, 4, 6), (8, 1, 4, 3), (0, 2, 3, 4)])
+@pytest.mark.parametrize("cond", [30.0, 1000.0])
+def test_condition_is_the_two_norm_condition_of_T(sizes, cond):
+    # The reported condition comes from the SVD of N1 (part 1 smaller than part 4) or of
+    # the triangular factor of N3 (otherwise, and whenever 1 - sigma_max(N1)^2 < 0.01, that
+    # is a condition above about 20: the (5, 1, 4, 6) models with cond=1000 reach 59-162);
+    # both must give cond_2 of the transformation.  Reference: numpy's SVD of T itself, in
+    # the equilibrated coordinates where the parts are orthonormal (for these models the
+    # equilibration leaves the states alone, checked below).
+    from plantcore.kalman import _prepare
+    for seed in range(3):
+        ks = catalog.known_structure(sizes, inputs=2, outputs=2, seed=seed, condition=cond)
+        kd = pc.kalman_decomposition(ks.model)
+        assert tuple(kd.sizes) == sizes
+        assert np.all(_prepare(ks.model, None).s == 1.0)
+        assert kd.condition == pytest.approx(np.linalg.cond(kd.T), rel=1e-7)

@@ -49,7 +49,7 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.linalg import lapack
+from scipy.linalg import blas, lapack
 
 from .rank import RankDecision, decide_rank
 
@@ -59,6 +59,8 @@ __all__ = ["StaircaseReduction", "reduce_staircase", "careful_staircase"]
 #: used).  Larger panels mean fewer passes over the trailing matrix but more work inside
 #: the panel; 64-128 is the usual range for LAPACK's own blocked reductions.
 PANEL_COLUMNS = 96
+
+_dgemm = blas.dgemm
 
 
 def _lwork(*dims) -> int:
@@ -99,14 +101,15 @@ def _chunks(start, stop, n):
         yield slice(c, min(c + size, stop))
 
 
-def _apply_left(g, X, cols):
-    """``X[g.k:, cols] <- G X[g.k:, cols]`` (in place on X)."""
+def _apply_left(g, X, cols, *, transpose=False):
+    """``X[g.k:, cols] <- G X[g.k:, cols]`` (or ``G^T X[g.k:, cols]``), in place on X."""
     k = g.k
     n = X.shape[0]
     if isinstance(g, _CompactWY):
+        Tg = g.T.T if transpose else g.T
         for cs in _chunks(cols.start, cols.stop, n):
             sub = X[k:, cs]  # a view: updated in place
-            W = g.T @ (g.V.T @ sub)
+            W = Tg @ (g.V.T @ sub)
             sub -= g.V @ W
         return
     kk = g.tau.shape[0]
@@ -114,12 +117,14 @@ def _apply_left(g, X, cols):
         return
     for cs in _chunks(cols.start, cols.stop, n):
         sub = np.asfortranarray(X[k:, cs])
-        if g.Ur is not None:
+        if g.Ur is not None and not transpose:
             sub[:kk, :] = g.Ur @ sub[:kk, :]
-        out, _, info = lapack.dormqr("L", "N", g.refl, g.tau, sub, _lwork(*sub.shape),
-                                     overwrite_c=1)[:3]
+        out, _, info = lapack.dormqr("L", "T" if transpose else "N", g.refl, g.tau, sub,
+                                     _lwork(*sub.shape), overwrite_c=1)[:3]
         if info != 0:  # pragma: no cover - LAPACK argument error
             raise RuntimeError(f"ormqr failed with info={info}")
+        if g.Ur is not None and transpose:
+            out[:kk, :] = g.Ur.T @ out[:kk, :]
         X[k:, cs] = out
 
 
@@ -156,6 +161,14 @@ class StaircaseReduction:
         cols = slice(0, X.shape[1])
         for g in reversed(self.transforms):
             _apply_left(g, X, cols)
+        return X
+
+    def apply_Ut(self, X):
+        """``U.T @ X`` for an ``(n, q)`` array (a new Fortran-ordered array)."""
+        X = np.array(X, dtype=float, order="F")
+        cols = slice(0, X.shape[1])
+        for g in self.transforms:
+            _apply_left(g, X, cols, transpose=True)
         return X
 
     def form_U(self, ncols=None, *, first=True):
@@ -226,13 +239,14 @@ def _ormqr_into(X, index, side, trans, refl, tau):
     if not (contiguous and np.shares_memory(out, sub)):
         X[index] = out
 
-def _careful_step(A, B, C, k, prev, *, scale, tol, label, step, transforms):
+def _careful_step(A, B, C, k, prev, *, scale, tol, label, step, transforms, keep_top=True):
     """One step of the careful algorithm; returns the decision (or None: nothing to do).
 
     QR with column pivoting (``geqp3``) of the block below the current position, SVD of the
     triangular factor, rank decided from the singular values; reflectors applied with
     ``ormqr`` to rows and columns ``k:``, the SVD rotation to the first rows, and what is
-    dropped set exactly to zero.
+    dropped set exactly to zero.  With ``keep_top=False`` the rows above ``k`` of ``A`` are
+    left as they are (no later step reads them).
     """
     X = B[k:, :] if prev is None else A[k:, prev[0]:prev[1]]
     rows, cols = X.shape
@@ -257,14 +271,15 @@ def _careful_step(A, B, C, k, prev, *, scale, tol, label, step, transforms):
         _ormqr_into(A, (slice(k, None), slice(c0, None)), "L", "T", refl, tau)
         _ormqr_into(B, (slice(k, None), slice(None)), "L", "T", refl, tau)
         # columns k: of A and C  <- (.) H
-        _ormqr_into(A, (slice(None), slice(k, None)), "R", "N", refl, tau)
+        r0 = 0 if keep_top else k
+        _ormqr_into(A, (slice(r0, None), slice(k, None)), "R", "N", refl, tau)
         if C.shape[0]:
             _ormqr_into(C, (slice(None), slice(k, None)), "R", "N", refl, tau)
         # then the small rotation Ur on the first kk rows/columns of the trailing part
         sl = slice(k, k + kk)
         A[sl, c0:] = Ur.T @ A[sl, c0:]
         B[sl, :] = Ur.T @ B[sl, :]
-        A[:, sl] = A[:, sl] @ Ur
+        A[r0:, sl] = A[r0:, sl] @ Ur
         if C.shape[0]:
             C[:, sl] = C[:, sl] @ Ur
         transforms.append(_Householder(k, refl, tau, Ur))
@@ -279,6 +294,22 @@ def _careful_step(A, B, C, k, prev, *, scale, tol, label, step, transforms):
 # Blocked steps.
 # ----------------------------------------------------------------------------------------
 
+def _subtract_product(X, index, L, R):
+    """``X[index] -= L @ R``, in place by BLAS ``dgemm`` when the block is Fortran-contiguous
+    (whole columns of a Fortran array), which saves the temporary product and a pass over
+    the block; otherwise through numpy."""
+    sub = X[index]
+    if sub.size == 0:
+        return
+    if sub.flags.f_contiguous and sub.dtype == float and L.dtype == float and R.dtype == float:
+        out = _dgemm(-1.0, L, R, 1.0, sub, overwrite_c=1)
+        if np.shares_memory(out, sub):
+            return
+        X[index] = out  # pragma: no cover - overwrite not honoured by the wrapper
+        return
+    sub -= L @ R  # a view: X updated in place
+
+
 def _larft(V, tau):
     """Upper triangular ``T`` with ``H_1 ... H_w = I - V T V^T`` (LAPACK ``larft``)."""
     w = tau.shape[0]
@@ -292,7 +323,7 @@ def _larft(V, tau):
 
 
 def _blocked_steps(A, C, k, w, *, scale, tol, label, step, transforms, decisions, blocks,
-                   max_steps=None):
+                   max_steps=None, keep_top=True):
     """Band-Hessenberg steps of width ``w`` from position ``k`` while blocks have full rank.
 
     The state on entry: rows ``k:`` of ``A`` are zero in columns ``< k - w``, and the block
@@ -365,26 +396,39 @@ def _blocked_steps(A, C, k, w, *, scale, tol, label, step, transforms, decisions
             V, T, Y = V[:, :nbk], np.array(T[:nbk, :nbk]), Y[:, :nbk]
         del AV
         kS = k0 + nbk
-        # rows above the panel: right update of every column k0: (Y_top = A0[:k0, k0:] V T)
-        if k0 > 0:
-            Ytop = (A[:k0, k0:] @ V) @ T
-            for cs in _chunks(k0, n, n):
-                top = A[:k0, cs]
-                top -= Ytop @ V[cs.start - k0:cs.stop - k0, :].T  # a view: A updated in place
-            del Ytop, top
-        # trailing columns (including the next block to compress), rows k0:
-        # right update  sub <- sub - Y V_t^T, then left update  sub <- sub - V T^T V^T sub,
-        # merged into one product:  sub -= [Y, V] @ [V_t^T; W]  with
-        # W = T^T (V^T sub - (V^T Y) V_t^T)  (V^T sub read from the original values)
+        # The update of the rest of the matrix, once per panel:
+        # * rows above the panel (right update only): A[:k0, c] -= Y_top V_c^T, with
+        #   Y_top = A[:k0, k0:] V T (from the values at the panel start);
+        # * rows k0: of the trailing columns (right, then left update), merged into one
+        #   product:  A[k0:, c] -= Y V_c^T + V W  with  W = T^T (V^T A[k0:, c] - (V^T Y) V_c^T)
+        #   (V^T A[k0:, c] read from the values at the panel start).
+        # For the trailing columns both are one in-place BLAS product on whole (contiguous)
+        # columns:  A[:, c] -= [[Y_top, 0], [Y, V]] @ [V_c^T; W].  When the rows above the
+        # panel are not wanted (``keep_top=False``) only rows k0: are updated.
         tc = kS - w
-        YV = np.hstack([Y, V])
+        top = keep_top and k0 > 0
+        if top:
+            Ytop = (A[:k0, k0:] @ V) @ T
+            # the panel's own columns: only their rows above the panel change
+            if tc > k0:
+                A[:k0, k0:tc] -= Ytop @ V[:tc - k0, :].T
+            L = np.zeros((n, 2 * nbk), order="F")
+            L[:k0, :nbk] = Ytop
+            L[k0:, :nbk] = Y
+            L[k0:, nbk:] = V
+            del Ytop
+        else:
+            L = np.asfortranarray(np.hstack([Y, V]))
         VtY = V.T @ Y
         for cs in _chunks(tc, n, n):
-            sub = A[k0:, cs]
             Vt_rows = V[cs.start - k0:cs.stop - k0, :]
-            W = T.T @ (V.T @ sub - VtY @ Vt_rows.T)
-            sub -= YV @ np.vstack([Vt_rows.T, W])  # a view: A updated in place
-        del sub, W, Y, YV, Vt_rows
+            W = T.T @ (V.T @ A[k0:, cs] - VtY @ Vt_rows.T)
+            Rm = np.asfortranarray(np.vstack([Vt_rows.T, W]))
+            if top:
+                _subtract_product(A, (slice(None), cs), L, Rm)
+            else:
+                _subtract_product(A, (slice(k0, None), cs), L, Rm)
+        del W, Y, L, Rm, Vt_rows
         if C.shape[0]:
             Cs = C[:, k0:]
             Cs -= ((Cs @ V) @ T) @ V.T  # a view: C updated in place
@@ -457,12 +501,17 @@ def _hessenberg_steps(A, C, k, *, scale, tol, label, step, transforms, decisions
 # ----------------------------------------------------------------------------------------
 
 def reduce_staircase(A, B, C, *, scale, tol, label, blocked=True,
-                     overwrite_a=False) -> StaircaseReduction:
+                     overwrite_a=False, need_A=True) -> StaircaseReduction:
     """Controllability staircase of ``(A, B)``, carrying ``C`` along (see module notes).
 
     ``A`` (n, n), ``B`` (n, m), ``C`` (p, n) are copied (``A`` is used in place when
     ``overwrite_a`` and it is a Fortran-ordered float array).  ``B`` is used for the rank
     decisions.  With ``blocked=False`` every step is the careful one (the reference).
+
+    ``need_A=False`` is for callers that want only the decisions and ``U`` (the reflectors):
+    rows of ``A`` above the current step's position, which no later step reads, are then not
+    updated, so the returned ``A`` must not be used.  The decisions and ``U`` are the same
+    either way.
     """
     n, m = B.shape
     if blocked and m == 1 and n > 0:
@@ -488,12 +537,12 @@ def reduce_staircase(A, B, C, *, scale, tol, label, blocked=True,
                 break
             k, step, finished = _blocked_steps(
                 A, C, k, w, scale=scale, tol=tol, label=label, step=step,
-                transforms=transforms, decisions=decisions, blocks=blocks)
+                transforms=transforms, decisions=decisions, blocks=blocks, keep_top=need_A)
             if finished or k >= n:
                 break
             prev = (k - w, k)
         d = _careful_step(A, B, C, k, prev, scale=scale, tol=tol, label=label, step=step,
-                          transforms=transforms)
+                          transforms=transforms, keep_top=need_A)
         if d is None:
             break
         decisions.append(d)

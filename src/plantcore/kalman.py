@@ -24,6 +24,7 @@ from typing import NamedTuple
 
 import numpy as np
 import scipy.linalg
+from scipy.linalg import lapack
 
 import warnings
 
@@ -323,7 +324,7 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
         # Unobservable subspace of the whole model (a third staircase, on the equilibrated
         # model itself so that its decisions see only the model's own rounding).
         red3 = reduce_staircase(p.A.T, p.C_dec.T, np.zeros((0, n)), scale=p.scale,
-                                tol=p.tol, label="observability")
+                                tol=p.tol, label="observability", need_A=False)
         decisions_obs = tuple(red3.decisions)
         nN = n - red3.rank
         decisions = decisions_c + decisions_obs
@@ -333,10 +334,10 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
                 f"directions but the whole model only {nN}; the answer depends on the tolerance "
                 f"(tol={p.tol:g}); try a different tol.",
                 {"n2": n2, "nN": nN, "decisions": decisions})
-        W_n = red3.form_U(nN, first=False) if nN else np.zeros((n, 0))
-        del red3
-        P = W_n.T @ W1[:, n1:nc]   # nN x n2, orthonormal columns when R ∩ N lies in N
-        if n2:
+        # N is spanned by the last nN columns W_n of red3's U; W_n is never formed: the
+        # products with it are reflector applications.
+        P = red3.apply_Ut(W1[:, n1:nc])[n - nN:, :]  # W_n^T (R ∩ N): nN x n2, orthonormal
+        if n2:                                        # columns when R ∩ N lies in N
             cosines = np.linalg.svd(P, compute_uv=False)
             if cosines.min() < 0.5:
                 raise NumericalBreakdown(
@@ -344,10 +345,22 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
                     f"lie in the unobservable subspace (smallest cosine {cosines.min():.3g}); the "
                     f"answer depends on the tolerance (tol={p.tol:g}); try a different tol.",
                     {"cosines": cosines, "decisions": decisions})
-        # Part 4: the orthogonal complement of R ∩ N inside N, in W1 coordinates.
-        Qp = scipy.linalg.qr(P, mode="full")[0] if nN else np.zeros((0, 0))
-        T4 = W_n @ Qp[:, n2:]
-        del W_n, Qp, P
+        # Part 4, the orthogonal complement of R ∩ N inside N:  T4 = W_n Qp[:, n2:]
+        if nN:
+            # Qp[:, n2:] for P = Qp [Rp; 0], as the reflectors of P applied to [0; I]
+            E = np.zeros((n, nN - n2), order="F")
+            E[n - nN + n2:, :] = np.eye(nN - n2)
+            if n2:
+                refl, tau, _, info = lapack.dgeqrf(P)
+                if info != 0:  # pragma: no cover - LAPACK argument error
+                    raise RuntimeError(f"geqrf failed with info={info}")
+                E[n - nN:, :] = lapack.dormqr("L", "N", refl, tau, E[n - nN:, :],
+                                              lwork=max(1, 64 * nN))[0]
+            T4 = red3.apply_U(E, overwrite=True)
+            del E
+        else:
+            T4 = np.zeros((n, 0))
+        del red3, P
         n4 = T4.shape[1]
         if n1 + n2 + n4 > n:
             raise NumericalBreakdown(
@@ -365,9 +378,20 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
         # N3 = Q [R; 0]: Q[:, n4:] spans part 3; pinv(N3) = R^-1 Q[:, :n4]^T
         Q3, R3 = scipy.linalg.qr(N3, mode="full")
         R3 = R3[:n4, :]
-        smin = np.linalg.svd(R3, compute_uv=False)[-1]
         # T = W1 M with M^T M = I + [[0, N1], [N1^T, 0]] on parts 1 and 4, so the singular
-        # values of T are sqrt(1 +- sigma_i(N1)), and sigma_max(N1)^2 = 1 - sigma_min(N3)^2.
+        # values of T are sqrt(1 +- sigma_i(N1)), and sigma_max(N1)^2 = 1 - sigma_min(N3)^2
+        # (N1^T N1 + N3^T N3 = T4^T T4 = I).  Both ends come from the smaller of the two
+        # SVDs; from N1 only while 1 - sigma_max(N1)^2 is not a cancellation (>= 0.01, so it
+        # keeps all but about two digits), else from R3.
+        smin = None
+        if 0 < n1 < n4:
+            c_n1 = float(np.linalg.svd(N1, compute_uv=False)[0])
+            if 1.0 - c_n1 * c_n1 >= 1e-2:
+                smin = np.sqrt(1.0 - c_n1 * c_n1)
+        elif n1 == 0:
+            smin = 1.0  # N3 = V3^T T4 has orthonormal columns
+        if smin is None:
+            smin = float(np.linalg.svd(R3, compute_uv=False)[-1])
         c = np.sqrt(max(0.0, 1.0 - smin * smin))
         sv_max, sv_min = np.sqrt(1.0 + c), np.sqrt(smin * smin / (1.0 + c))
         if sv_min <= np.finfo(float).eps * n * sv_max:
@@ -401,38 +425,44 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
         out[:, nc + n3c:] = X[:, :n1] @ N1 + X[:, nc:] @ N3
         return out
 
-    def left(X):
-        """M^{-1} X: rows (parts 1, 2 | part 3 | part 4) from rows of X in W1 coordinates."""
+    def left(X, part3=None):
+        """M^{-1} X: rows (parts 1, 2 | part 3 | part 4) from rows of X in W1 coordinates
+        (``part3``: the rows of part 3, when already known)."""
         if not n4:
             return X
         out = np.empty((n, X.shape[1]), order="F" if X.flags.f_contiguous else "C")
-        KX = K @ X[nc:, :]
-        out[:n1, :] = X[:n1, :] - N1 @ KX
+        np.matmul(K, X[nc:, :], out=out[nc + n3c:, :])
+        KX = out[nc + n3c:, :]
+        out[:n1, :] = X[:n1, :]
+        out[:n1, :] -= N1 @ KX
         out[n1:nc, :] = X[n1:nc, :]
-        out[nc:nc + n3c, :] = Q3c.T @ X[nc:, :]
-        out[nc + n3c:, :] = KX
+        out[nc:nc + n3c, :] = Q3c.T @ X[nc:, :] if part3 is None else part3
         return out
 
     if n4:
-        # T's part-4 columns are T4 itself (= W1 [N1; 0; N3] up to rounding)
-        T_e = np.empty((n, n), order="F")
-        T_e[:, :nc] = W1[:, :nc]
-        T_e[:, nc:nc + n3c] = W1[:, nc:] @ Q3c
+        # T = W1 M, built in W1's storage once T_inv = M^-1 W1^T is done; T's part-4
+        # columns are T4 itself (= W1 [N1; 0; N3] up to rounding), and the part-3 rows of
+        # T_inv are the transposed part-3 columns of T (Q3c^T V3^T = (V3 Q3c)^T).
+        T3 = W1[:, nc:] @ Q3c
+        Ti_e = left(W1.T, part3=T3.T)
+        T_e = W1
+        T_e[:, nc:nc + n3c] = T3
         T_e[:, nc + n3c:] = T4
-        del T4
+        del T4, T3
         Az = _transform_staircase_model(A_w, nc, n1, N1, N3, Q3c, K)
     else:
         T_e = W1
+        Ti_e = np.array(W1.T)   # a copy: T_e and T_inv are scaled in place below
         Az = A_w
-    Ti_e = left(W1.T)
     del W1, A_w
     Bz = left(B_w)
     Cz = right(C_w)
     s = p.s
-    T = s[:, None] * T_e
-    del T_e
-    T_inv = Ti_e / s[None, :]
-    del Ti_e
+    T = T_e
+    T *= s[:, None]
+    T_inv = Ti_e
+    T_inv /= s[None, :]
+    del T_e, Ti_e
     sizes = PartSizes(n1, n2, n3c, n4)
     checks = [modal_decision(left_g, tol=p.tol, missing_found=n3c + n4,
                              label="modal cross-check: modes not proven uncontrollable"),
@@ -458,26 +488,26 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
 
 
 def _transform_staircase_model(A_w, nc, n1, N1, N3, Q3c, K):
-    """``M^-1 A_w M`` for the part-4 coupling ``M`` of :func:`kalman_decomposition`.
+    """``M^-1 A_w M`` for the part-4 coupling ``M`` of :func:`kalman_decomposition`,
+    computed in the storage of ``A_w`` (a Fortran-ordered array, returned).
 
     ``A_w`` is zero in rows ``nc:`` and columns ``:nc`` (R is invariant), so the products
     that would only meet that block are skipped; rows of parts 3 and 4 in the columns of
-    parts 1 and 2 are exactly zero.
+    parts 1 and 2 are exactly zero, and the columns of parts 1 and 2 do not change.
     """
     n = A_w.shape[0]
     n3c = Q3c.shape[1]
-    AM = np.empty((n, n - nc))          # columns of parts 3 and 4 of A_w M
-    AM[:, :n3c] = A_w[:, nc:] @ Q3c
-    AM[:nc, n3c:] = A_w[:nc, :n1] @ N1 + A_w[:nc, nc:] @ N3
+    AM = np.empty((n, n - nc), order="F")          # columns of parts 3 and 4 of A_w M
+    np.matmul(A_w[:, nc:], Q3c, out=AM[:, :n3c])
+    AM[:nc, n3c:] = A_w[:nc, :n1] @ N1
+    AM[:nc, n3c:] += A_w[:nc, nc:] @ N3
     AM[nc:, n3c:] = A_w[nc:, nc:] @ N3
-    KX = K @ AM[nc:, :]
-    Az = np.zeros((n, n))
-    Az[:nc, :nc] = A_w[:nc, :nc]
-    Az[:nc, nc:] = AM[:nc, :]
-    Az[:n1, nc:] -= N1 @ KX
-    Az[nc:nc + n3c, nc:] = Q3c.T @ AM[nc:, :]
-    Az[nc + n3c:, nc:] = KX
-    return Az
+    out = A_w[:, nc:]                              # a view: A_w updated in place
+    np.matmul(K, AM[nc:, :], out=out[nc + n3c:, :])
+    out[:nc, :] = AM[:nc, :]
+    out[:n1, :] -= N1 @ out[nc + n3c:, :]
+    out[nc:nc + n3c, :] = Q3c.T @ AM[nc:, :]
+    return A_w
 
 
 def _impose_zero_pattern(A, B, C, sizes) -> float:
