@@ -107,6 +107,14 @@ def _apply_left(g, X, cols, *, transpose=False):
     n = X.shape[0]
     if isinstance(g, _CompactWY):
         Tg = g.T.T if transpose else g.T
+        if X.flags.f_contiguous and X.dtype == float and cols.stop > cols.start:
+            # One in-place dgemm on whole (contiguous) columns, V padded with k zero rows:
+            # the wasted k rows cost less than a temporary product and a subtraction.
+            W = np.asfortranarray(Tg @ (g.V.T @ X[k:, cols]))
+            Vp = np.zeros((n, g.V.shape[1]), order="F")
+            Vp[k:, :] = g.V
+            _subtract_product(X, (slice(None), cols), Vp, W)
+            return
         for cs in _chunks(cols.start, cols.stop, n):
             sub = X[k:, cs]  # a view: updated in place
             W = Tg @ (g.V.T @ sub)
