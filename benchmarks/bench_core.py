@@ -33,7 +33,7 @@ Model kinds (our own synthetic families, seeded):
 
 Usage::
 
-    python benchmarks/bench_core.py --threads 1   # n = 100, 400, 1000, 2000 (about 25 minutes)
+    python benchmarks/bench_core.py --threads 1   # n = 100, 400, 1000, 2000 (about 30 minutes)
     python benchmarks/bench_core.py --quick       # n = 100, 400, one BLAS thread (under a minute)
     python benchmarks/bench_core.py --sizes 1000 2000 --io 4x4 --repeats 7 --json out.json
 
@@ -528,6 +528,10 @@ def print_row(r):
     times = "  ".join(f"{k} {w[k]:.3g}" for k in ("hessenberg", "ab01nd", "tb01pd",
                                                    "staircase", "kalman", "minimal") if k in w)
     print(head, " time:", times)
+    bare = r.get("bare", {})
+    if any(bare[k] != w[k] for k in bare):
+        print(" " * len(head), " time without the modal cross-check:",
+              "  ".join(f"{k} {bare[k]:.3g}" for k in bare))
     rat = [f"stair/ab01nd {ratio(w['staircase'], w.get('ab01nd', 0)):.2f}",
            f"stair/hess {ratio(w['staircase'], w['hessenberg']):.2f}",
            f"kalman/tb01pd {ratio(w['kalman'], w.get('tb01pd', 0)):.2f}",

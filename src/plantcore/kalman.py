@@ -165,10 +165,14 @@ class KalmanDecomposition:
     T, T_inv : (n, n) ndarray
         The transformation and its inverse.
     condition : float
-        2-norm condition number of ``T``.  The parts are orthonormal within themselves, but
-        parts 3 and 4 are not orthogonal to parts 1 and 2 in general; a large condition
-        number means the parts are nearly dependent (nearly unobservable or uncontrollable
-        directions close to the others).
+        2-norm condition number of ``T`` in the equilibrated state coordinates (see
+        :mod:`plantcore.rank`), where the parts are orthonormal within themselves; it is the
+        condition number of ``T`` itself whenever the equilibration leaves the states
+        unscaled, and otherwise differs from it by at most a factor equal to the ratio of
+        the largest to the smallest power-of-two state scale.  Parts 3 and 4 are not
+        orthogonal to parts 1 and 2 in general; a large condition number means the parts
+        are nearly dependent (nearly unobservable or uncontrollable directions close to
+        the others).
     sizes : PartSizes
         Dimensions of the four parts.
     decisions : tuple of RankDecision
