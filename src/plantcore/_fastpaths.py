@@ -519,7 +519,7 @@ def reduce_staircase(A, B, C, *, scale, tol, label, blocked=True,
     ``need_A=False`` is for callers that want only the decisions and ``U`` (the reflectors):
     rows of ``A`` above the current step's position, which no later step reads, are then not
     updated, so the returned ``A`` must not be used.  The decisions and ``U`` are the same
-    either way.
+    either way, to rounding.
     """
     n, m = B.shape
     if blocked and m == 1 and n > 0:
