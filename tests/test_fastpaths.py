@@ -48,8 +48,9 @@ def _several_panels(n_c=170, n=250, m=3, seed=2501):
     reachable, hidden by a random orthogonal similarity.  With m = 3 that is about 57
     blocked steps of width 3 (two panels of 32 steps), a last step of rank 2 inside the
     second panel (redone by the careful step), then the rank-0 step.  (A dense random
-    controllable block of this depth would not do: its staircase is not well conditioned,
-    see the limitations in the README.)"""
+    controllable block of this depth would not do: its staircase is badly conditioned, and
+    at 250 states the blocked and the careful reduction alike call such a model fully
+    controllable.)"""
     rng = np.random.default_rng(seed)
     A = 0.05 * rng.standard_normal((n, n)) / np.sqrt(n) - np.eye(n)
     A[n_c:, :n_c] = 0.0
