@@ -132,7 +132,7 @@ class GeneratedModel:
     input_scaling: np.ndarray    # Du
     output_scaling: np.ndarray   # Dy
     pbh_margin: float
-    chain_decades: tuple         # ((total, worst) ctrb, (total, worst) obsv): chain_decades()
+    chain_decades: tuple         # ((total, worst) controllability, (total, worst) observability): chain_decades()
     reference_noise: float       # slycot staircase noise past the true ranks, unhidden form
 
     @property

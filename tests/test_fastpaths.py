@@ -45,9 +45,10 @@ def test_blocked_matches_careful(sizes, m):
 def _several_panels(n_c=170, n=250, m=3, seed=2501):
     """A deep but well-conditioned staircase: ``n_c`` controllable states reached from ``m``
     inputs through a chain of unit couplings (plus a weak random coupling), the rest not
-    reachable, hidden by a random orthogonal similarity.  With m = 3 that is about 57
-    blocked steps of width 3 (two panels of 32 steps), a last step of rank 2 inside the
-    second panel (redone by the careful step), then the rank-0 step.  (A dense random
+    reachable, hidden by a random orthogonal similarity.  With m = 3 that is 56 steps of
+    width 3 (the first by the careful step, then blocked panels of 32 and 23 steps), a step
+    of rank 2 that ends the second panel (redone by the careful step), then the rank-0
+    step.  (A dense random
     controllable block of this depth would not do: its staircase is badly conditioned, and
     at 250 states the blocked and the careful reduction alike call such a model fully
     controllable.)"""
@@ -106,7 +107,12 @@ def test_apply_U_and_its_transpose_match_the_formed_U(m):
     A, B, C, scale = _several_panels(m=m, n_c=60 if m == 1 else 170)
     red = reduce_staircase(A, B, C, scale=scale, tol=5e-11, label="c")
     U = red.form_U()
-    X = np.random.default_rng(7).standard_normal((A.shape[0], 5))
+    # U itself is tied to the data, not only to the record: orthogonal, and it carries the
+    # input A to the returned staircase form (backward error ~ n eps).
+    n = A.shape[0]
+    assert_allclose(U.T @ U, np.eye(n), atol=1e-12)
+    assert np.linalg.norm(U @ red.A @ U.T - A) <= 100 * n * np.finfo(float).eps * scale
+    X = np.random.default_rng(7).standard_normal((n, 5))
     assert_allclose(red.apply_U(X), U @ X, atol=1e-12)
     assert_allclose(red.apply_Ut(X), U.T @ X, atol=1e-12)
     last = red.form_U(40, first=False)

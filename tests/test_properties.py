@@ -458,21 +458,21 @@ def test_unstructured_models_keep_every_invariant(model):
     kd = call(pc.kalman_decomposition, model)
     if kd.ok:
         check_kalman(kd.value, model)
-    ctrb = call(pc.controllability_staircase, model)
-    obsv = call(pc.observability_staircase, model)
+    stair_c = call(pc.controllability_staircase, model)
+    stair_o = call(pc.observability_staircase, model)
     mr = call(pc.minimal_realization, model)
-    assert ctrb.ok and obsv.ok and mr.ok, (ctrb.error, obsv.error, mr.error)
-    check_staircase(ctrb.value, model, "controllability")
-    check_staircase(obsv.value, model, "observability")
+    assert stair_c.ok and stair_o.ok and mr.ok, (stair_c.error, stair_o.error, mr.error)
+    check_staircase(stair_c.value, model, "controllability")
+    check_staircase(stair_o.value, model, "observability")
     eig = np.linalg.eigvals(model.A) if model.n else np.zeros(0)
     worst = check_minimal(mr.value, model, eig, 0)
-    results = [ctrb.value, obsv.value, mr.value] + ([kd.value] if kd.ok else [])
+    results = [stair_c.value, stair_o.value, mr.value] + ([kd.value] if kd.ok else [])
     if not any(r.fragile for r in results):
         assert worst <= TRANSFER_BOUND, worst
         if kd.ok:
             n1, n2, n3, _ = kd.value.sizes
-            assert ctrb.value.rank == n1 + n2
-            assert obsv.value.rank == n1 + n3
+            assert stair_c.value.rank == n1 + n2
+            assert stair_o.value.rank == n1 + n3
             assert mr.value.order == n1
 
 

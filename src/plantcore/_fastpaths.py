@@ -106,19 +106,16 @@ def _apply_left(g, X, cols, *, transpose=False):
     k = g.k
     n = X.shape[0]
     if isinstance(g, _CompactWY):
-        Tg = g.T.T if transpose else g.T
-        if X.flags.f_contiguous and X.dtype == float and cols.stop > cols.start:
-            # One in-place dgemm on whole (contiguous) columns, V padded with k zero rows:
-            # the wasted k rows cost less than a temporary product and a subtraction.
-            W = np.asfortranarray(Tg @ (g.V.T @ X[k:, cols]))
-            Vp = np.zeros((n, g.V.shape[1]), order="F")
-            Vp[k:, :] = g.V
-            _subtract_product(X, (slice(None), cols), Vp, W)
+        if cols.stop <= cols.start:
             return
-        for cs in _chunks(cols.start, cols.stop, n):
-            sub = X[k:, cs]  # a view: updated in place
-            W = Tg @ (g.V.T @ sub)
-            sub -= g.V @ W
+        # One product on whole columns (in place by dgemm when X is Fortran-ordered, as
+        # every caller's is), V padded with k zero rows: the wasted k rows cost less than a
+        # temporary product and a subtraction.
+        Tg = g.T.T if transpose else g.T
+        W = np.asfortranarray(Tg @ (g.V.T @ X[k:, cols]))
+        Vp = np.zeros((n, g.V.shape[1]), order="F")
+        Vp[k:, :] = g.V
+        _subtract_product(X, (slice(None), cols), Vp, W)
         return
     kk = g.tau.shape[0]
     if kk == 0:

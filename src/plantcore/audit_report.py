@@ -16,7 +16,7 @@ import math
 
 import numpy as np
 
-from .report import SAFETY_CAUTION, describe_direction
+from .report import SAFETY_CAUTION, _num, describe_direction
 
 __all__ = ["audit_text", "audit_html"]
 
@@ -25,16 +25,6 @@ def _names(audit) -> list:
     if audit.state_names is not None:
         return list(audit.state_names)
     return [f"x{i + 1}" for i in range(audit.n)]
-
-
-def _num(x: float, digits: int = 3) -> str:
-    if x is None:
-        return "-"
-    if math.isinf(x):
-        return "inf"
-    if math.isnan(x):
-        return "nan"
-    return f"{x:.{digits}g}"
 
 
 def _verdict(audit) -> str:
@@ -156,16 +146,31 @@ def _positive(values):
     return v
 
 
-def _plots(audit) -> list:
-    """Return a list of (caption, base64 PNG)."""
+def _axes(height: float):
+    """A new one-panel figure and its axes."""
     from matplotlib.figure import Figure
 
+    fig = Figure(figsize=(7.2, height), layout="constrained")
+    return fig, fig.add_subplot(1, 1, 1)
+
+
+def _dress(ax, audit, ylabel: str, title: str) -> None:
+    """The common layout of the audit plots: a log scale over the steps of the horizon."""
+    ax.set_yscale("log")
+    ax.set_xlabel("steps in the horizon")
+    ax.set_xlim(1, max(audit.horizon, 2))
+    ax.set_ylabel(ylabel)
+    ax.set_title(title)
+    ax.grid(True, lw=0.3)
+
+
+def _plots(audit) -> list:
+    """Return a list of (caption, base64 PNG)."""
     steps = np.arange(1, audit.horizon + 1)
     out = []
     colours = ["#2b6f8a", "#b5562b", "#5f7f3a", "#7a4f8c", "#8a7a2b", "#3a3a3a"]
 
-    fig = Figure(figsize=(7.2, 3.4), layout="constrained")
-    ax = fig.add_subplot(1, 1, 1)
+    fig, ax = _axes(3.4)
     growth = _positive(audit.singular_value_growth)
     for j in range(growth.shape[1]):
         ax.plot(steps, growth[:, j], color="#5b6b73", lw=0.9,
@@ -173,54 +178,38 @@ def _plots(audit) -> list:
     largest = audit.singular_value_growth[:, 0] if audit.n else np.zeros(audit.horizon)
     ax.plot(steps, _positive(largest * audit.tolerance), color="#b5562b", ls="--", lw=1.0,
             label="rank tolerance")
-    ax.set_yscale("log")
-    ax.set_xlabel("steps in the horizon")
-    ax.set_xlim(1, max(audit.horizon, 2))
-    ax.set_ylabel("singular value")
-    ax.set_title("Singular values of the observability matrix")
+    _dress(ax, audit, "singular value", "Singular values of the observability matrix")
     ax.legend(fontsize=8)
-    ax.grid(True, lw=0.3)
     out.append(("Singular values of the observability matrix of steps 1..k. Values below the "
                 "dashed line count as zero; the number of values above it is the rank.", _png(fig)))
 
     d = audit.expected_basis.shape[1]
     if d:
-        fig = Figure(figsize=(7.2, 3.4), layout="constrained")
-        ax = fig.add_subplot(1, 1, 1)
+        fig, ax = _axes(3.4)
         for i in range(d):
             finite = bool(np.isfinite(audit.implied_std_growth[:, i]).any())
             label = f"direction {i + 1}" + ("" if finite else " (infinite: not drawn)")
             ax.plot(steps, _positive(audit.implied_std_growth[:, i]), color=colours[i % 6], lw=1.2,
                     label=label)
-        ax.set_yscale("log")
-        ax.set_xlabel("steps in the horizon")
-        ax.set_xlim(1, max(audit.horizon, 2))
-        ax.set_ylabel("implied standard deviation")
-        ax.set_title("Standard deviation implied along each expected direction")
+        _dress(ax, audit, "implied standard deviation",
+               "Standard deviation implied along each expected direction")
         if np.isfinite(audit.implied_std_growth).any():
             ax.legend(fontsize=8)
         else:
             ax.text(0.5, 0.5, "no information claimed along any expected direction (infinite)",
                     transform=ax.transAxes, ha="center", va="center", fontsize=9)
-        ax.grid(True, lw=0.3)
         out.append(("Implied standard deviation along each expected unobservable direction from "
                     "the information of steps 1..k. For a consistent estimator it is infinite "
                     "(not drawn); a curve that falls marks information that does not exist.",
                     _png(fig)))
 
-        fig = Figure(figsize=(7.2, 3.0), layout="constrained")
-        ax = fig.add_subplot(1, 1, 1)
+        fig, ax = _axes(3.0)
         for i in range(d):
             ax.plot(steps, _positive(audit.leakage_growth[:, i]), color=colours[i % 6], lw=1.2,
                     label=f"direction {i + 1}")
         ax.axhline(audit.tolerance, color="#b5562b", ls="--", lw=1.0, label="rank tolerance")
-        ax.set_yscale("log")
-        ax.set_xlabel("steps in the horizon")
-        ax.set_xlim(1, max(audit.horizon, 2))
-        ax.set_ylabel("leakage")
-        ax.set_title("Leakage of each expected direction")
+        _dress(ax, audit, "leakage", "Leakage of each expected direction")
         ax.legend(fontsize=8)
-        ax.grid(True, lw=0.3)
         out.append(("Leakage ||O v|| / sigma_max(O) over steps 1..k (zero values not drawn).",
                     _png(fig)))
     return out

@@ -601,6 +601,18 @@ def _names_list(names, what: str) -> str:
     return f'<ul class="names">{items}</ul>'
 
 
+def _table(headers, rows) -> str:
+    """A table with a header row (``headers``: HTML cells' contents) over rendered rows."""
+    head = "".join(f"<th>{h}</th>" for h in headers)
+    return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>"
+
+
+def _key_value_table(pairs) -> str:
+    """A two-column table of (label, value) pairs, labels as row headers."""
+    return ("<table><tbody>" + "".join(f"<tr><th>{a}</th><td>{b}</td></tr>" for a, b in pairs)
+            + "</tbody></table>")
+
+
 def _model_section(c: ReportContents) -> str:
     m = c.model
     domain = ("continuous time" if not m.is_discrete
@@ -616,8 +628,7 @@ def _model_section(c: ReportContents) -> str:
         pg = c.peak_gain
         unit = "rad/sample" if m.is_discrete else "rad per time unit"
         rows.append(("Peak gain", f"{_num(pg.value, 4)} at frequency {_num(pg.frequency, 4)} {unit}"))
-    table = "<table><tbody>" + "".join(f"<tr><th>{a}</th><td>{b}</td></tr>" for a, b in rows) \
-        + "</tbody></table>"
+    table = _key_value_table(rows)
     names = (f"<h3>Inputs</h3>{_names_list(m.inputs, 'inputs')}"
              f"<h3>Outputs</h3>{_names_list(m.outputs, 'outputs')}"
              f"<h3>States</h3>{_names_list(m.states, 'states')}")
@@ -697,9 +708,7 @@ def _parts_section(c: ReportContents) -> str:
         rows.append(f'<tr><td><span class="swatch p{i + 1}"></span>{i + 1}. {PART_LABELS[part]}'
                     f'</td><td class="n">{size}</td><td>{_PART_MEANING[part]}</td>'
                     f"<td>{desc or '&ndash;'}</td></tr>")
-    table = ("<table><thead><tr><th>Part</th><th>States</th><th>Meaning</th>"
-             "<th>Spanned by (in the model's state names)</th></tr></thead><tbody>"
-             + "".join(rows) + "</tbody></table>")
+    table = _table(("Part", "States", "Meaning", "Spanned by (in the model's state names)"), rows)
     mr = a.minimal
     lead = (f"The {c.model.n} states split into four parts (Kalman decomposition, condition "
             f"number of the transformation {_num(a.decomposition.condition)}). The minimal "
@@ -723,9 +732,8 @@ def _decisions_section(c: ReportContents) -> str:
             f"<td class=\"n\">{_num(d.largest_dropped)}</td>"
             f"<td class=\"n\">{_num(d.tolerance)}</td><td class=\"n\">{_num(d.margin)} {bar}</td>"
             f"<td>{status}</td></tr>")
-    table = ("<table><thead><tr><th>Decision</th><th>Rank</th><th>Smallest kept</th>"
-             "<th>Largest dropped</th><th>Tolerance</th><th>Margin</th><th>Status</th></tr>"
-             "</thead><tbody>" + "".join(rows) + "</tbody></table>")
+    table = _table(("Decision", "Rank", "Smallest kept", "Largest dropped", "Tolerance", "Margin",
+                    "Status"), rows)
     if not rows:
         table = "<p>The model has no states, so no rank was decided.</p>"
     lead = ("Every rank was decided from singular values of blocks produced by orthogonal "
@@ -749,9 +757,8 @@ def _modes_section(c: ReportContents) -> str:
             f"{_e(PART_LABELS.get(part, part))}</td>"
             f"<td class=\"n\">{_num(mode.controllability_margin)}</td>"
             f"<td class=\"n\">{_num(mode.observability_margin)}</td><td>{note}</td></tr>")
-    table = ("<table><thead><tr><th>#</th><th>Eigenvalue</th><th>Stable</th><th>Part</th>"
-             "<th>Controllability margin</th><th>Observability margin</th><th>Note</th></tr>"
-             "</thead><tbody>" + "".join(rows) + "</tbody></table>")
+    table = _table(("#", "Eigenvalue", "Stable", "Part", "Controllability margin",
+                    "Observability margin", "Note"), rows)
     if not rows:
         table = "<p>The model has no states.</p>"
     lead = ("One row per eigenvalue. The margins are the smallest singular values of "
@@ -783,16 +790,14 @@ def _hankel_section(c: ReportContents, plot) -> str:
         ]
         if red.unstable_order:
             rows.append(("Unstable states kept unreduced", str(red.unstable_order)))
-        parts.append("<table><tbody>" + "".join(f"<tr><th>{a}</th><td>{b}</td></tr>" for a, b in rows)
-                     + "</tbody></table>")
+        parts.append(_key_value_table(rows))
         hsv = np.asarray(red.hankel_singular_values, dtype=float)
-        cells = "".join(
+        cells = [
             f"<tr><td class=\"n\">{i + 1}</td><td class=\"n\">{_num(v, 4)}</td>"
             f"<td>{'kept' if i < red.stable_order else 'discarded'}</td></tr>"
-            for i, v in enumerate(hsv))
-        parts.append(f"<details open><summary>All {hsv.size} values</summary><table><thead><tr><th>#"
-                     f"</th><th>Value</th><th></th></tr></thead><tbody>{cells}</tbody></table>"
-                     "</details>")
+            for i, v in enumerate(hsv)]
+        parts.append(f"<details open><summary>All {hsv.size} values</summary>"
+                     f"{_table(('#', 'Value', ''), cells)}</details>")
     else:
         parts.append(f"<p>No reduced model: {_e(c.reduction_problem or c.analysis.hankel_note)}</p>")
     lead = ("A balanced truncation of the minimal realization keeps the states with the largest "
