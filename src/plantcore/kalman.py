@@ -42,6 +42,12 @@ __all__ = ["PartSizes", "KalmanDecomposition", "kalman_decomposition", "PART_NAM
 _CONDITION_WARNING = 1e8
 _CONDITION_LIMIT = 1e12
 
+# Part 4 is taken from the quotient by R ∩ N (see _part4_from_quotient) only when the first
+# two staircases dropped singular values no larger than this many n * eps (relative to the
+# model's scale): then the quotient's data are exact to the rounding that any staircase of
+# the whole model makes anyway.
+_QUOTIENT_MAX_DROPPED = 1.0
+
 PART_NAMES = (
     "controllable_observable",
     "controllable_unobservable",
@@ -248,12 +254,18 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
     * the controllability staircase gives an orthonormal basis of R;
     * the observability staircase of the controllable part ``(A11, C V_c)`` splits R into
       R ∩ N (part 2) and its orthogonal complement in R (part 1);
-    * the observability staircase of the *whole* model gives N.  Part 4 is the orthogonal
-      complement of R ∩ N inside N.  (Splitting the uncontrollable quotient system on its
-      own would be wrong: an uncontrollable state may be seen only through its coupling
-      into controllable, measured states.)  When everything is controllable, the second
-      staircase already is this one: it is then computed on the model itself and its
-      decisions are recorded under both labels.
+    * part 4 is the orthogonal complement of R ∩ N inside N, found by an observability
+      staircase of the model without R ∩ N: the quotient by R ∩ N, whose unobservable
+      subspace is N / (R ∩ N) and whose staircase has the whole model's step ranks.  It
+      keeps the uncontrollable states' coupling into the controllable ones (splitting the
+      uncontrollable part off on its own would be wrong: an uncontrollable state may be
+      seen only through that coupling).  The quotient is used only when the first two
+      staircases dropped nothing beyond rounding (``n eps`` of the model's scale) and its
+      own decisions are clear-cut; otherwise the observability staircase of the whole
+      equilibrated model gives N, which sees only the model's own rounding.  Either way
+      the decisions are recorded as ``observability``.  When everything is controllable,
+      the second staircase already is this one: it is then computed on the model itself
+      and its decisions are recorded under both labels.
     * part 3 is the orthogonal complement of R + N.
 
     Each part has an orthonormal basis; ``T`` is well conditioned unless N is nearly
@@ -319,62 +331,28 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
         A_w[:nc, :nc] = red2.A.T
         A_w[:nc, nc:] = red2.C[m:, :].T
         C_w[:, nc:] = red1.C[:, nc:] / g_out[:, None]
+        Cq_t = np.vstack([red2.B[:n1, :], red1.C[:, nc:].T])   # see _part4_from_quotient
         W1 = np.zeros((n, n), order="F")
         W1[:nc, :nc] = red2.form_U()
         W1[nc:, nc:] = np.eye(n3)
         del nest, red2
         W1 = red1.apply_U(W1, overwrite=True)
         del red1
-        # Unobservable subspace of the whole model (a third staircase, on the equilibrated
-        # model itself so that its decisions see only the model's own rounding).
-        red3 = reduce_staircase(p.A.T, p.C_dec.T, np.zeros((0, n)), scale=p.scale,
-                                tol=p.tol, label="observability", need_A=False)
-        decisions_obs = tuple(red3.decisions)
-        nN = n - red3.rank
-        decisions = decisions_c + decisions_obs
-        if n2 > nN:
-            raise NumericalBreakdown(
-                f"the rank decisions disagree: the controllable part has {n2} unobservable "
-                f"directions but the whole model only {nN}; the answer depends on the tolerance "
-                f"(tol={p.tol:g}); try a different tol.",
-                {"n2": n2, "nN": nN, "decisions": decisions})
-        # N is spanned by the last nN columns W_n of red3's U; W_n is never formed: the
-        # products with it are reflector applications.
-        P = red3.apply_Ut(W1[:, n1:nc])[n - nN:, :]  # W_n^T (R ∩ N): nN x n2, orthonormal
-        if n2:                                        # columns when R ∩ N lies in N
-            cosines = np.linalg.svd(P, compute_uv=False)
-            if cosines.min() < 0.5:
-                raise NumericalBreakdown(
-                    "the unobservable directions found inside the controllable subspace do not "
-                    f"lie in the unobservable subspace (smallest cosine {cosines.min():.3g}); the "
-                    f"answer depends on the tolerance (tol={p.tol:g}); try a different tol.",
-                    {"cosines": cosines, "decisions": decisions})
-        # Part 4, the orthogonal complement of R ∩ N inside N:  T4 = W_n Qp[:, n2:]
-        if nN:
-            # Qp[:, n2:] for P = Qp [Rp; 0], as the reflectors of P applied to [0; I]
-            E = np.zeros((n, nN - n2), order="F")
-            E[n - nN + n2:, :] = np.eye(nN - n2)
-            if n2:
-                refl, tau, _, info = lapack.dgeqrf(P)
-                if info != 0:  # pragma: no cover - LAPACK argument error
-                    raise RuntimeError(f"geqrf failed with info={info}")
-                E[n - nN:, :] = lapack.dormqr("L", "N", refl, tau, E[n - nN:, :],
-                                              lwork=max(1, 64 * nN))[0]
-            T4 = red3.apply_U(E, overwrite=True)
-            del E
-        else:
-            T4 = np.zeros((n, 0))
-        del red3, P
-        n4 = T4.shape[1]
-        if n1 + n2 + n4 > n:
-            raise NumericalBreakdown(
-                f"the rank decisions disagree: a controllable subspace of dimension {nc} and an "
-                f"unobservable subspace of dimension {nN} meeting in dimension {n2} do not fit in "
-                f"{n} states; the answer depends on the tolerance (tol={p.tol:g}); see the "
-                "fragile decisions and try a different tol.",
-                {"sizes": (n1, n2, n4), "decisions": decisions})
-        # Its W1 coordinates: (N1, ~0, N3); the R ∩ N component is rounding (T4 ⊥ R ∩ N).
-        N_q = np.vstack([W1[:, :n1].T @ T4, W1[:, nc:].T @ T4])
+        # Part 4 (the orthogonal complement of R ∩ N inside N) and its W1 coordinates
+        # N_q = (N1, N3) in parts 1 and 3, from the quotient by R ∩ N when the first two
+        # staircases dropped nothing beyond rounding, else from the whole model.
+        found = None
+        dropped = max([0.0] + [d.largest_dropped for d in decisions_c])
+        if dropped <= _QUOTIENT_MAX_DROPPED * n * np.finfo(float).eps:
+            found = _part4_from_quotient(p, A_w, Cq_t, n1, nc)
+        del Cq_t
+        if found is None:
+            found = _part4_from_whole_model(p, W1, n1, nc, decisions_c)
+        decisions_obs, N_q, T4 = found
+        n4 = N_q.shape[1]
+        if T4 is None:
+            T4 = W1[:, :n1] @ N_q[:n1, :]              # T4 = W1 (N1, 0, N3)
+            T4 += W1[:, nc:] @ N_q[n1:, :]
     decisions = decisions_c + decisions_obs
     # Part 4 = {W1 (N1 y, 0, N3 y)}; part 3 = block-3 directions orthogonal to range(N3).
     N1, N3 = N_q[:n1, :], N_q[n1:, :]
@@ -489,6 +467,102 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
     del Az
     return KalmanDecomposition(new, T, T_inv, condition, sizes, decisions,
                                any_fragile(decisions), residual)
+
+
+def _part4_from_quotient(p: _Prepared, A_w, Cq_t, n1: int, nc: int):
+    """Part 4 from the quotient of the model by R ∩ N (internal; ``None`` when not clear-cut).
+
+    In the W1 coordinates R ∩ N is the coordinate block ``n1:nc``; it is A-invariant and
+    inside ker C, so the model without those rows and columns (parts 1 and 3) is the
+    quotient model, whose unobservable subspace is N / (R ∩ N), and its observability
+    staircase has the same steps as the whole model's (Kalman 1963).  A basis ``(N1, N3)``
+    of it lifts to ``(N1, 0, N3)``: directions in N orthogonal to R ∩ N, which is part 4.
+    The quotient is smaller than the model by ``n2`` states, and N contains R ∩ N by
+    construction.
+
+    Its data carry the rounding of the first two staircases besides the model's own; the
+    caller uses it only when those staircases dropped nothing beyond rounding, and it is
+    given up (``None``) when one of its decisions is fragile or the decisions disagree,
+    so that the whole model's staircase, which sees only the model's own rounding, decides.
+    Returns ``(decisions, N_q, None)`` with ``N_q`` the ``(n1 + n3, n4)`` orthonormal
+    basis.
+    """
+    n = A_w.shape[0]
+    n3 = n - nc
+    nq = n1 + n3
+    Aq_t = np.empty((nq, nq), order="F")       # the quotient's A, transposed (dual)
+    Aq_t[:n1, :n1] = A_w[:n1, :n1].T
+    Aq_t[:n1, n1:] = 0.0                       # A_w[nc:, :n1]: zero, R is invariant
+    Aq_t[n1:, :n1] = A_w[:n1, nc:].T
+    Aq_t[n1:, n1:] = A_w[nc:, nc:].T
+    red3 = reduce_staircase(Aq_t, Cq_t, np.zeros((0, nq)), scale=p.scale, tol=p.tol,
+                            label="observability", need_A=False, overwrite_a=True)
+    del Aq_t
+    n4 = nq - red3.rank
+    if n4 > n3 or any_fragile(red3.decisions):
+        return None
+    return tuple(red3.decisions), red3.form_U(n4, first=False), None
+
+
+def _part4_from_whole_model(p: _Prepared, W1, n1: int, nc: int, decisions_c):
+    """Part 4 from the observability staircase of the whole model (internal).
+
+    The staircase runs on the equilibrated model itself, so that its decisions see only the
+    model's own rounding.  N is spanned by the last ``nN`` columns ``W_n`` of its ``U``;
+    ``W_n`` is never formed: the products with it are reflector applications.  Raises
+    :class:`plantcore.NumericalBreakdown` when N does not contain the R ∩ N found by the
+    second staircase (only possible when a decision is fragile).  Returns
+    ``(decisions, N_q, T4)``: ``N_q`` as :func:`_part4_from_quotient` gives it, and part 4
+    in the equilibrated state coordinates.
+    """
+    n = W1.shape[0]
+    n2 = nc - n1
+    red3 = reduce_staircase(p.A.T, p.C_dec.T, np.zeros((0, n)), scale=p.scale,
+                            tol=p.tol, label="observability", need_A=False)
+    decisions_obs = tuple(red3.decisions)
+    nN = n - red3.rank
+    decisions = tuple(decisions_c) + decisions_obs
+    if n2 > nN:
+        raise NumericalBreakdown(
+            f"the rank decisions disagree: the controllable part has {n2} unobservable "
+            f"directions but the whole model only {nN}; the answer depends on the tolerance "
+            f"(tol={p.tol:g}); try a different tol.",
+            {"n2": n2, "nN": nN, "decisions": decisions})
+    P = red3.apply_Ut(W1[:, n1:nc])[n - nN:, :]  # W_n^T (R ∩ N): nN x n2, orthonormal
+    if n2:                                        # columns when R ∩ N lies in N
+        cosines = np.linalg.svd(P, compute_uv=False)
+        if cosines.min() < 0.5:
+            raise NumericalBreakdown(
+                "the unobservable directions found inside the controllable subspace do not "
+                f"lie in the unobservable subspace (smallest cosine {cosines.min():.3g}); the "
+                f"answer depends on the tolerance (tol={p.tol:g}); try a different tol.",
+                {"cosines": cosines, "decisions": decisions})
+    # Part 4, the orthogonal complement of R ∩ N inside N:  T4 = W_n Qp[:, n2:]
+    if nN > n2:
+        # Qp[:, n2:] for P = Qp [Rp; 0], as the reflectors of P applied to [0; I]
+        E = np.zeros((n, nN - n2), order="F")
+        E[n - nN + n2:, :] = np.eye(nN - n2)
+        if n2:
+            refl, tau, _, info = lapack.dgeqrf(P)
+            if info != 0:  # pragma: no cover - LAPACK argument error
+                raise RuntimeError(f"geqrf failed with info={info}")
+            E[n - nN:, :] = lapack.dormqr("L", "N", refl, tau, E[n - nN:, :],
+                                          lwork=max(1, 64 * nN))[0]
+        T4 = red3.apply_U(E, overwrite=True)
+        del E
+    else:
+        T4 = np.zeros((n, 0))
+    del red3, P
+    n4 = T4.shape[1]
+    if n1 + n2 + n4 > n:
+        raise NumericalBreakdown(
+            f"the rank decisions disagree: a controllable subspace of dimension {nc} and an "
+            f"unobservable subspace of dimension {nN} meeting in dimension {n2} do not fit in "
+            f"{n} states; the answer depends on the tolerance (tol={p.tol:g}); see the "
+            "fragile decisions and try a different tol.",
+            {"sizes": (n1, n2, n4), "decisions": decisions})
+    # Its W1 coordinates: (N1, ~0, N3); the R ∩ N component is rounding (T4 ⊥ R ∩ N).
+    return decisions_obs, np.vstack([W1[:, :n1].T @ T4, W1[:, nc:].T @ T4]), T4
 
 
 def _transform_staircase_model(A_w, nc, n1, N1, N3, Q3c, K):
