@@ -251,11 +251,21 @@ def test_part4_from_the_quotient_matches_the_whole_model(monkeypatch):
     assert len(results) == 1 and results[0] is not None       # the quotient route was taken
     monkeypatch.setattr(kalman, "_part4_from_quotient", lambda *args: None)
     via_whole = pc.kalman_decomposition(case.model)
+    # the construction's part-4 block, for its eigenvalues
+    T = case.similarity
+    A44 = np.linalg.solve(T, case.model.A @ T)[-7:, -7:]
+    expected = np.sort_complex(np.linalg.eigvals(A44))
     for kd in (via_quotient, via_whole):
         assert tuple(kd.sizes) == case.sizes and not kd.fragile
         _check(kd, case.model)
         part4 = kd.basis("uncontrollable_unobservable")
-        assert_allclose(_principal_cosines(part4, case.similarity[:, -7:]), 1.0, atol=1e-10)
+        assert_allclose(_principal_cosines(part4, T[:, -7:]), 1.0, atol=1e-10)
+        # on the quotient route the part-4 block comes from the staircase form, not from a
+        # product with the model: it must still carry the part's own dynamics
+        found = np.sort_complex(np.linalg.eigvals(kd.part("uncontrollable_unobservable").A))
+        assert_allclose(found, expected, atol=1e-9)
+    staircase_steps = [d for d in via_quotient.decisions if " step " in d.label]
+    assert via_quotient.residual >= max(d.largest_dropped for d in staircase_steps)
 
     def step_ranks(kd):
         return [d.rank for d in kd.decisions if d.label.startswith("observability step")]

@@ -187,7 +187,8 @@ class KalmanDecomposition:
         True when any decision lies within a factor 100 of the tolerance.
     residual : float
         Largest entry that was set to zero to impose the zero pattern, relative to the norm
-        of the block it lies in (``A``, ``B`` or ``C``); a measure of the accuracy reached.
+        of the block it lies in (``A``, ``B`` or ``C``), or largest singular value a
+        staircase dropped, relative to the model's scale; a measure of the accuracy reached.
     """
 
     model: StateSpaceModel
@@ -276,9 +277,13 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
     ``T``.  The zero pattern is then imposed exactly and the size of what was zeroed
     (including what the staircases dropped) is reported as ``residual``.
 
-    The two rank decisions that determine N and R ∩ N are made separately; when they are
-    not consistent (only possible when a decision is fragile), a
-    :class:`plantcore.NumericalBreakdown` is raised naming the tolerance to change.
+    On the quotient route the part-4 columns of the model are read from the staircase
+    form (part 4 is an invariant subspace there), not multiplied out.
+
+    When N comes from the whole model, the two rank decisions that determine N and R ∩ N
+    are made separately; when they are not consistent (only possible when a decision is
+    fragile), a :class:`plantcore.NumericalBreakdown` is raised naming the tolerance to
+    change.
 
     References
     ----------
@@ -324,6 +329,7 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
                                  "observability")
         n4 = 0
         N_q = np.zeros((0, 0))
+        Lam = None
         W1 = red2.form_U()
         del nest, red1, red2
     else:
@@ -348,7 +354,7 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
         del Cq_t
         if found is None:
             found = _part4_from_whole_model(p, W1, n1, nc, decisions_c)
-        decisions_obs, N_q, T4 = found
+        decisions_obs, N_q, T4, Lam = found
         n4 = N_q.shape[1]
         if T4 is None:
             T4 = W1[:, :n1] @ N_q[:n1, :]              # T4 = W1 (N1, 0, N3)
@@ -431,7 +437,7 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
         T_e[:, nc:nc + n3c] = T3
         T_e[:, nc + n3c:] = T4
         del T4, T3
-        Az = _transform_staircase_model(A_w, nc, n1, N1, N3, Q3c, K)
+        Az = _transform_staircase_model(A_w, nc, n1, N1, N3, Q3c, K, Lam)
     else:
         T_e = W1
         Ti_e = np.array(W1.T)   # a copy: T_e and T_inv are scaled in place below
@@ -460,13 +466,22 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
     residual = _impose_zero_pattern(Az, Bz, Cz, sizes)
     # and what the two staircases that give the coordinates W1 set to zero (the largest
     # dropped singular value, relative to the model's scale)
-    residual = max([residual] + [d.largest_dropped for d in decisions_c])
+    residual = max([residual] + [d.largest_dropped for d in decisions_c + decisions_obs])
     states = tuple(f"z{i + 1}" for i in range(n))
     new = StateSpaceModel(Az, Bz, Cz, p.model.D, p.model.dt, states=states,
                           inputs=p.model.inputs, outputs=p.model.outputs, name=p.model.name)
     del Az
     return KalmanDecomposition(new, T, T_inv, condition, sizes, decisions,
                                any_fragile(decisions), residual)
+
+
+class _Part4(NamedTuple):
+    """Part 4 as found by one of the two routes (internal)."""
+
+    decisions: tuple        # the observability staircase's decisions
+    N_q: np.ndarray         # its W1 coordinates in parts 1 and 3, (n1 + n3, n4), orthonormal
+    T4: np.ndarray | None   # part 4 in the equilibrated state coordinates, when formed
+    Lam: np.ndarray | None  # N_q^T A_q N_q, when the staircase gave it
 
 
 def _part4_from_quotient(p: _Prepared, A_w, Cq_t, n1: int, nc: int):
@@ -484,8 +499,8 @@ def _part4_from_quotient(p: _Prepared, A_w, Cq_t, n1: int, nc: int):
     caller uses it only when those staircases dropped nothing beyond rounding, and it is
     given up (``None``) when one of its decisions is fragile or the decisions disagree,
     so that the whole model's staircase, which sees only the model's own rounding, decides.
-    Returns ``(decisions, N_q, None)`` with ``N_q`` the ``(n1 + n3, n4)`` orthonormal
-    basis.
+    Returns a :class:`_Part4` with ``N_q`` the ``(n1 + n3, n4)`` orthonormal basis and
+    ``Lam = N_q^T A_q N_q``, the quotient's unobservable block, from the staircase form.
     """
     n = A_w.shape[0]
     n3 = n - nc
@@ -496,12 +511,13 @@ def _part4_from_quotient(p: _Prepared, A_w, Cq_t, n1: int, nc: int):
     Aq_t[n1:, :n1] = A_w[:n1, nc:].T
     Aq_t[n1:, n1:] = A_w[nc:, nc:].T
     red3 = reduce_staircase(Aq_t, Cq_t, np.zeros((0, nq)), scale=p.scale, tol=p.tol,
-                            label="observability", need_A=False, overwrite_a=True)
+                            label="observability", overwrite_a=True)
     del Aq_t
     n4 = nq - red3.rank
     if n4 > n3 or any_fragile(red3.decisions):
         return None
-    return tuple(red3.decisions), red3.form_U(n4, first=False), None
+    Lam = np.array(red3.A[nq - n4:, nq - n4:].T, order="F")
+    return _Part4(tuple(red3.decisions), red3.form_U(n4, first=False), None, Lam)
 
 
 def _part4_from_whole_model(p: _Prepared, W1, n1: int, nc: int, decisions_c):
@@ -511,9 +527,8 @@ def _part4_from_whole_model(p: _Prepared, W1, n1: int, nc: int, decisions_c):
     model's own rounding.  N is spanned by the last ``nN`` columns ``W_n`` of its ``U``;
     ``W_n`` is never formed: the products with it are reflector applications.  Raises
     :class:`plantcore.NumericalBreakdown` when N does not contain the R ∩ N found by the
-    second staircase (only possible when a decision is fragile).  Returns
-    ``(decisions, N_q, T4)``: ``N_q`` as :func:`_part4_from_quotient` gives it, and part 4
-    in the equilibrated state coordinates.
+    second staircase (only possible when a decision is fragile).  Returns a
+    :class:`_Part4` with ``N_q`` as :func:`_part4_from_quotient` gives it, and ``T4``.
     """
     n = W1.shape[0]
     n2 = nc - n1
@@ -562,29 +577,46 @@ def _part4_from_whole_model(p: _Prepared, W1, n1: int, nc: int, decisions_c):
             "fragile decisions and try a different tol.",
             {"sizes": (n1, n2, n4), "decisions": decisions})
     # Its W1 coordinates: (N1, ~0, N3); the R ∩ N component is rounding (T4 ⊥ R ∩ N).
-    return decisions_obs, np.vstack([W1[:, :n1].T @ T4, W1[:, nc:].T @ T4]), T4
+    return _Part4(decisions_obs, np.vstack([W1[:, :n1].T @ T4, W1[:, nc:].T @ T4]), T4, None)
 
 
-def _transform_staircase_model(A_w, nc, n1, N1, N3, Q3c, K):
+def _transform_staircase_model(A_w, nc, n1, N1, N3, Q3c, K, Lam=None):
     """``M^-1 A_w M`` for the part-4 coupling ``M`` of :func:`kalman_decomposition`,
     computed in the storage of ``A_w`` (a Fortran-ordered array, returned).
 
     ``A_w`` is zero in rows ``nc:`` and columns ``:nc`` (R is invariant), so the products
     that would only meet that block are skipped; rows of parts 3 and 4 in the columns of
     parts 1 and 2 are exactly zero, and the columns of parts 1 and 2 do not change.
+
+    ``Lam``, when given, is ``N_q^T A_q N_q`` from the quotient's staircase form: then the
+    part-4 columns are not multiplied out.  ``(N1, N3)`` spans an invariant subspace of the
+    quotient ``A_q`` (parts 1 and 3 of ``A_w``), ``A_q N_q = N_q Lam``, so in those columns
+    the rows of parts 1 and 3 are zero, the rows of part 4 are ``Lam`` and only the rows of
+    part 2 need a product (what the staircase dropped to make the subspace invariant is in
+    its decisions' ``largest_dropped``).
     """
     n = A_w.shape[0]
     n3c = Q3c.shape[1]
-    AM = np.empty((n, n - nc), order="F")          # columns of parts 3 and 4 of A_w M
-    np.matmul(A_w[:, nc:], Q3c, out=AM[:, :n3c])
-    AM[:nc, n3c:] = A_w[:nc, :n1] @ N1
-    AM[:nc, n3c:] += A_w[:nc, nc:] @ N3
-    AM[nc:, n3c:] = A_w[nc:, nc:] @ N3
     out = A_w[:, nc:]                              # a view: A_w updated in place
-    np.matmul(K, AM[nc:, :], out=out[nc + n3c:, :])
-    out[:nc, :] = AM[:nc, :]
-    out[:n1, :] -= N1 @ out[nc + n3c:, :]
-    out[nc:nc + n3c, :] = Q3c.T @ AM[nc:, :]
+    if Lam is None:
+        AM = np.empty((n, n - nc), order="F")      # columns of parts 3 and 4 of A_w M
+        np.matmul(A_w[:, nc:], Q3c, out=AM[:, :n3c])
+        AM[:nc, n3c:] = A_w[:nc, :n1] @ N1
+        AM[:nc, n3c:] += A_w[:nc, nc:] @ N3
+        AM[nc:, n3c:] = A_w[nc:, nc:] @ N3
+        cols = slice(None)
+    else:
+        AM = A_w[:, nc:] @ Q3c                     # columns of part 3 of A_w M
+        A24 = A_w[n1:nc, :n1] @ N1
+        A24 += A_w[n1:nc, nc:] @ N3
+        out[:, n3c:] = 0.0
+        out[n1:nc, n3c:] = A24
+        out[nc + n3c:, n3c:] = Lam
+        cols = slice(0, n3c)
+    np.matmul(K, AM[nc:, :], out=out[nc + n3c:, cols])
+    out[:nc, cols] = AM[:nc, :]
+    out[:n1, cols] -= N1 @ out[nc + n3c:, cols]
+    out[nc:nc + n3c, cols] = Q3c.T @ AM[nc:, :]
     return A_w
 
 
