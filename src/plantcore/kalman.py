@@ -368,14 +368,17 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
         R3 = R3[:n4, :]
         # T = W1 M with M^T M = I + [[0, N1], [N1^T, 0]] on parts 1 and 4, so the singular
         # values of T are sqrt(1 +- sigma_i(N1)), and sigma_max(N1)^2 = 1 - sigma_min(N3)^2
-        # (N1^T N1 + N3^T N3 = T4^T T4 = I).  Both ends come from the smaller of the two
-        # SVDs; from N1 only while 1 - sigma_max(N1)^2 is not a cancellation (>= 0.01, so it
-        # keeps all but about two digits), else from R3.
+        # (N1^T N1 + N3^T N3 = T4^T T4 = I).  Both ends come from the smaller of the two;
+        # from N1 only while 1 - sigma_max(N1)^2 is not a cancellation (>= 0.01, so it keeps
+        # all but about two digits), else from the SVD of R3.  sigma_max(N1)^2 is the
+        # largest eigenvalue of the n1 x n1 Gram matrix, whose absolute error (about n1 eps)
+        # leaves that difference at least ten correct digits.
         smin = None
         if 0 < n1 < n4:
-            c_n1 = float(np.linalg.svd(N1, compute_uv=False)[0])
-            if 1.0 - c_n1 * c_n1 >= 1e-2:
-                smin = np.sqrt(1.0 - c_n1 * c_n1)
+            c2 = float(scipy.linalg.eigh(N1 @ N1.T, eigvals_only=True,
+                                         subset_by_index=[n1 - 1, n1 - 1])[0])
+            if 1.0 - c2 >= 1e-2:
+                smin = np.sqrt(1.0 - c2)
         elif n1 == 0:
             smin = 1.0  # N3 = V3^T T4 has orthonormal columns
         if smin is None:
