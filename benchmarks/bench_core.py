@@ -33,7 +33,7 @@ Model kinds (our own synthetic families, seeded):
 
 Usage::
 
-    python benchmarks/bench_core.py --threads 1   # n = 100, 400, 1000, 2000 (about 30 minutes)
+    python benchmarks/bench_core.py --threads 1   # n = 100, 400, 1000, 2000 (15-30 minutes)
     python benchmarks/bench_core.py --quick       # n = 100, 400, one BLAS thread (under a minute)
     python benchmarks/bench_core.py --sizes 1000 2000 --io 4x4 --repeats 7 --json out.json
 
