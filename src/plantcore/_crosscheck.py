@@ -26,8 +26,22 @@ of the eigenspace and need not show the uncontrollable combination), so it raise
 alarms on repeated or defective eigenvalues.  The dual test with right eigenvectors and
 ``C`` checks observability.
 
-It costs one eigen-decomposition, ``O(n^3)`` with a larger constant than the staircase, so
-it runs only up to :data:`MODAL_CHECK_MAX_STATES` states.
+The eigenvector bound is only as good as the computed ``w``: for strongly non-normal
+``A`` (ill-conditioned eigenvalues) ``w`` carries large errors, and a mode within rounding of
+uncontrollable can show ``||w^H B|| / ||w||`` of ``1e-8`` to ``1e-4``.  Then *every* mode
+may be within the tolerance of uncontrollable while the staircase, step by step, sees clear
+margins.  So when no mode is certified by its eigenvector, the most suspicious one (the
+smallest ``||w^H B|| / ||w||``) is measured directly: ``sigma_min([A - lambda I, B])`` at
+its computed eigenvalue, the size of the smallest perturbation that makes that ``lambda``
+an uncontrollable eigenvalue (R. Eising, "Between controllable and uncontrollable",
+Systems & Control Letters 4(5), 263-264, 1984).  It is at most the eigenvector bound and
+independent of the eigenvector's accuracy, and it replaces that mode's measure.  (It is
+not tried when a mode is already certified: at a repeated eigenvalue it would count the
+same uncontrollable direction twice.)
+
+It costs one eigen-decomposition, ``O(n^3)`` with a larger constant than the staircase, and
+at most one SVD of the ``n x (n + m)`` matrix, so it runs only up to
+:data:`MODAL_CHECK_MAX_STATES` states.
 """
 
 from __future__ import annotations
@@ -42,27 +56,39 @@ from .rank import RankDecision
 MODAL_CHECK_MAX_STATES = 400
 
 
-def modal_measures(A, X, *, scale: float, side: str):
+def modal_measures(A, X, *, scale: float, tol: float, side: str):
     """``||w^H X|| / ||w||`` per left eigenvector (``side="left"``, ``X = B``) or
     ``||X v|| / ||v||`` per right eigenvector (``side="right"``, ``X = C``), relative to
     ``scale``; ``None`` when the model is too large for the check or the eigenvalue
-    computation fails.  Call it before any routine that overwrites ``A``."""
+    computation fails.  When none is at most ``tol``, the smallest is replaced by the PBH
+    distance at its eigenvalue when that is smaller (see the module notes).  Call it before
+    any routine that overwrites ``A``."""
     n = A.shape[0]
     if n == 0 or n > MODAL_CHECK_MAX_STATES or X.size == 0:
         return None
     try:
         if side == "left":
-            _, vecs = scipy.linalg.eig(A, left=True, right=False)
+            lam, vecs = scipy.linalg.eig(A, left=True, right=False)
             proj = np.linalg.norm(vecs.conj().T @ X, axis=1)
         else:
-            _, vecs = scipy.linalg.eig(A, left=False, right=True)
+            lam, vecs = scipy.linalg.eig(A, left=False, right=True)
             proj = np.linalg.norm(X @ vecs, axis=0)
     except (np.linalg.LinAlgError, ValueError):
         return None
     norms = np.linalg.norm(vecs, axis=0)
-    if not (np.all(np.isfinite(proj)) and np.all(norms > 0)):
+    if not (np.all(np.isfinite(proj)) and np.all(norms > 0) and np.all(np.isfinite(lam))):
         return None
-    return proj / norms / scale
+    values = proj / norms / scale
+    if not np.any(values <= tol):
+        i = int(np.argmin(values))
+        shifted = A - lam[i] * np.eye(n)
+        M = np.hstack([shifted, X]) if side == "left" else np.vstack([shifted, X])
+        try:
+            distance = float(np.linalg.svd(M, compute_uv=False)[-1]) / scale
+        except np.linalg.LinAlgError:
+            distance = math.inf
+        values[i] = min(values[i], distance)
+    return values
 
 
 def modal_decision(measures, *, tol: float, missing_found: int, label: str):

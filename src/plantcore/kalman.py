@@ -155,8 +155,8 @@ def _start(p: _Prepared, *, keep_A: bool):
     """
     g_in = _input_gains(p.B, p.B_dec)
     g_out = _input_gains(p.C.T, p.C_dec.T)
-    measures = (modal_measures(p.A, p.B_dec, scale=p.scale, side="left"),
-                modal_measures(p.A, p.C_dec, scale=p.scale, side="right"))
+    measures = (modal_measures(p.A, p.B_dec, scale=p.scale, tol=p.tol, side="left"),
+                modal_measures(p.A, p.C_dec, scale=p.scale, tol=p.tol, side="right"))
     return g_in, g_out, measures, _nested(p, keep_A=keep_A)
 
 

@@ -131,7 +131,7 @@ def _controllability(model, tol, label="controllability"):
     g = _input_gains(B_e, B_s)
     del B_e
     # modal cross-check measures, taken before the staircase overwrites A_e
-    measures = modal_measures(A_e, B_s, scale=scale, side="left")
+    measures = modal_measures(A_e, B_s, scale=scale, tol=tol, side="left")
     red = reduce_staircase(A_e, B_s, C_e, scale=scale, tol=tol, label=label)
     del A_e, C_e, B_s
     U = red.form_U()
