@@ -77,7 +77,8 @@ def test_sharpened_value_is_the_pbh_distance_at_the_most_suspicious_mode():
 def test_observability_side_uses_the_stacked_matrix():
     # The dual: sigma_min([A - lambda I; C]) for the right eigenvector side.  An output
     # that sees only the first of two separated modes leaves the second exactly
-    # unobservable; its eigenvector measure is already zero, so nothing is replaced.
+    # unobservable; its eigenvector measure is already zero, so nothing is replaced
+    # (measures ||C v|| for the unit eigenvectors e1, e2: 1 and 0, derived here).
     A = np.diag([-1.0, -5.0])
     C = np.array([[1.0, 0.0]])
     values = _crosscheck.modal_measures(A, C, scale=1.0, tol=5e-11, side="right")

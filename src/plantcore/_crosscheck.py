@@ -81,8 +81,16 @@ def modal_measures(A, X, *, scale: float, tol: float, side: str):
     values = proj / norms / scale
     if not np.any(values <= tol):
         i = int(np.argmin(values))
-        shifted = A - lam[i] * np.eye(n)
-        M = np.hstack([shifted, X]) if side == "left" else np.vstack([shifted, X])
+        shift = lam[i].real if lam[i].imag == 0.0 else lam[i]   # real arithmetic if it can
+        k = X.shape[1] if side == "left" else X.shape[0]
+        M = np.empty((n, n + k) if side == "left" else (n + k, n),
+                     dtype=np.result_type(A.dtype, X.dtype, shift))
+        M[:n, :n] = A
+        M[np.arange(n), np.arange(n)] -= shift
+        if side == "left":
+            M[:, n:] = X
+        else:
+            M[n:, :] = X
         try:
             distance = float(np.linalg.svd(M, compute_uv=False)[-1]) / scale
         except np.linalg.LinAlgError:
