@@ -58,7 +58,7 @@ import numpy as np
 import scipy.linalg
 
 import plantcore as pc
-import plantcore._crosscheck as crosscheck
+import plantcore.structure.crosscheck as crosscheck
 
 try:
     import slycot
@@ -226,7 +226,7 @@ def without_crosscheck(fn):
     """``fn`` with the modal cross-check of the rank decisions switched off.
 
     The cross-check (one eigendecomposition, run only up to
-    ``plantcore._crosscheck.MODAL_CHECK_MAX_STATES`` states) is a fixed extra cost below that
+    ``plantcore.structure.crosscheck.MODAL_CHECK_MAX_STATES`` states) is a fixed extra cost below that
     size and none above, so a growth fit through those sizes would mix two costs; the
     growth exponent is fitted on times without it.
     """
@@ -339,8 +339,9 @@ def accuracy(model, results):
 
 def careful_agrees(model):
     """The blocked staircase makes the same decisions as the step-by-step reference."""
-    from plantcore._fastpaths import careful_staircase, reduce_staircase
-    from plantcore.rank import equilibrate, io_scaled, resolve_tolerance
+    from plantcore.structure.staircase_kernels import careful_staircase, reduce_staircase
+    from plantcore.core.equilibration import equilibrate, io_scaled
+    from plantcore.core.rank import resolve_tolerance
 
     tol = resolve_tolerance(None, model.n)
     eq = equilibrate(model.A, model.B, model.C)

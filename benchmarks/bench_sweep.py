@@ -3,7 +3,7 @@
 The model family is our own: a lifting platform's flexible boom cut into ten segments (a
 chain of ten masses joined by springs and dampers, 20 states), driven by a force at its foot
 and measured at its tip.  Each point draws the segment stiffness, the structural damping
-and the tip load.  Every point gets the full per-point analysis of :func:`plantcore.sweep`
+and the tip load.  Every point gets the full per-point analysis of :func:`plantcore.sweeps.sweep`
 (Kalman parts, mode margins, distance estimates, Hankel singular values).
 
 Both executors get the same points and the same number of worker processes (one per core).

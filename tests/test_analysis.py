@@ -17,8 +17,8 @@ from numpy.testing import assert_allclose
 import catalog
 import plantcore as pc
 from plantcore.cli import main
-from plantcore.kalman import PART_NAMES
-from plantcore.report import SAFETY_CAUTION
+from plantcore.structure.kalman import PART_NAMES
+from plantcore.core.wording import SAFETY_CAUTION
 
 
 def _walk(obj, path="root"):

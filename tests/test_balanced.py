@@ -1,4 +1,4 @@
-"""Tests of plantcore.balanced: Gramian factors, Hankel singular values, balanced truncation.
+"""Tests of plantcore.reduction.balanced: Gramian factors, Hankel singular values, balanced truncation.
 
 External references:
 - Analytic Gramians of first-order systems, derived below in the test docstrings.
@@ -23,7 +23,7 @@ import slycot
 from numpy.testing import assert_allclose
 
 import plantcore as pc
-from plantcore.balanced import gramian_factors, truncation_error
+from plantcore.reduction.balanced import gramian_factors, truncation_error
 from plantcore.cli import main
 
 SLACK = 1e-8   # relative slack for "measured <= bound" (the bound can be attained exactly)
@@ -221,7 +221,7 @@ def test_nearly_coupled_split_warns(monkeypatch):
     model = ([[-1.0, 10.0], [0.0, 1.0]], [[1.0], [1.0]], [[1.0, 1.0]])
     red = pc.balanced_truncation(model, order=2)
     assert_allclose(red.decoupling_norm, 5.0, rtol=1e-12)
-    monkeypatch.setattr(pc.balanced, "_DECOUPLING_LIMIT", 1.0)
+    monkeypatch.setattr(pc.reduction.balanced, "_DECOUPLING_LIMIT", 1.0)
     with pytest.warns(pc.AccuracyWarning, match="nearly dependent"):
         pc.balanced_truncation(model, order=2)
 

@@ -39,7 +39,7 @@ def test_crosscheck_switch_is_restored():
     # The growth fit times the calls with the modal cross-check off; the switch must be
     # put back afterwards, also when the call fails.
     bench = _load()
-    import plantcore._crosscheck as crosscheck
+    import plantcore.structure.crosscheck as crosscheck
     before = crosscheck.MODAL_CHECK_MAX_STATES
     seen = []
 

@@ -10,7 +10,7 @@ import pytest
 
 import plantcore as pc
 from plantcore.cli import main
-from plantcore.report import SAFETY_CAUTION
+from plantcore.core.wording import SAFETY_CAUTION
 
 
 @pytest.fixture

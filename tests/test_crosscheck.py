@@ -1,4 +1,4 @@
-"""Tests of plantcore._crosscheck: the modal certificates behind the cross-check decisions.
+"""Tests of plantcore.structure.crosscheck: the modal certificates behind the cross-check decisions.
 
 External references:
 - The PBH test (M. L. J. Hautus, "Controllability and observability conditions of linear
@@ -15,8 +15,8 @@ from numpy.testing import assert_allclose
 
 import catalog
 import plantcore as pc
-from plantcore import _crosscheck
-from plantcore.kalman import _prepare
+from plantcore.structure import crosscheck as _crosscheck
+from plantcore.structure.kalman import _prepare
 
 
 def _pbh_distances(A, B, scale):

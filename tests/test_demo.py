@@ -50,7 +50,7 @@ def test_demo_models_and_certificate(demo_run):
     cert = json.loads((folder / "certificate.json").read_text(encoding="utf-8"))
     assert cert["equivalent"] is True and cert["difference_order"] == 0
     text = (folder / "certificate.txt").read_text(encoding="utf-8")
-    assert "EQUIVALENT" in text and pc.report.SAFETY_CAUTION in text
+    assert "EQUIVALENT" in text and pc.core.wording.SAFETY_CAUTION in text
     check = (folder / "reduced_model_check.txt").read_text(encoding="utf-8")
     assert "NOT EQUIVALENT" in check
     inspection = (folder / "inspection.txt").read_text(encoding="utf-8")

@@ -1,4 +1,4 @@
-"""Tests of plantcore.equivalence (the transfer-matrix equivalence certificate).
+"""Tests of plantcore.reduction.equivalence (the transfer-matrix equivalence certificate).
 
 External references, named beside each check:
 - Similarity invariance of the transfer matrix, C T (sI - T^-1 A T)^-1 T^-1 B = C (sI - A)^-1 B
@@ -22,8 +22,8 @@ from numpy.testing import assert_allclose
 
 import catalog
 import plantcore as pc
-from plantcore.equivalence import check_equivalence
-from plantcore.report import SAFETY_CAUTION
+from plantcore.reduction.equivalence import check_equivalence
+from plantcore.core.wording import SAFETY_CAUTION
 
 
 def random_minimal(rng, n, m, p, *, discrete=False, feedthrough=True):

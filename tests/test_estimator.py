@@ -1,4 +1,4 @@
-"""Tests of plantcore.estimator, plantcore.audit_report and the survey-boat demo.
+"""Tests of plantcore.estimation, plantcore.reports.audit and the survey-boat demo.
 
 External references used below:
 
@@ -31,10 +31,10 @@ from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
 import plantcore as pc
-from plantcore.audit_report import audit_html, audit_text
+from plantcore.reports.audit import audit_html, audit_text
 from plantcore.cli import main
-from plantcore.errors import ModelFileError
-from plantcore.estimator import (
+from plantcore.core.errors import ModelFileError
+from plantcore.estimation import (
     audit_from_file,
     audit_linearized_observability,
     constrain_observability,

@@ -1,4 +1,4 @@
-"""Tests for plantcore.exact: exact part sizes, minimal order and transfer matrix.
+"""Tests for plantcore.structure.exact: exact part sizes, minimal order and transfer matrix.
 
 External references, named beside each check:
 * an analytic derivation written out below (fixed-fixed spring-mass chain, mode shapes
@@ -21,7 +21,7 @@ import pytest
 import sympy
 
 import plantcore as pc
-from plantcore.exact import ExactPartSizes
+from plantcore.structure.exact import ExactPartSizes
 
 s = sympy.Symbol("s")
 

@@ -1,4 +1,4 @@
-"""Tests of plantcore._fastpaths: the blocked and single-input staircases against the
+"""Tests of plantcore.structure.staircase_kernels: the blocked and single-input staircases against the
 careful step-by-step one.
 
 Reference: the careful staircase (QR with column pivoting and an SVD at every step; Van
@@ -12,7 +12,7 @@ import pytest
 from numpy.testing import assert_allclose
 
 import catalog
-from plantcore._fastpaths import careful_staircase, reduce_staircase
+from plantcore.structure.staircase_kernels import careful_staircase, reduce_staircase
 
 
 def _case(sizes, m, seed):

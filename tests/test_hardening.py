@@ -31,7 +31,7 @@ from hypothesis import strategies as st
 
 import plantcore as pc
 from plantcore import cli
-from plantcore import io as pio
+from plantcore import files as pio
 
 BAD = Path(__file__).parent / "data" / "bad"
 EXPECTED = json.loads((BAD / "expected.json").read_text(encoding="utf-8"))
@@ -109,7 +109,7 @@ def test_bytes_that_are_not_utf8(tmp_path, capsys):
 
 def test_file_larger_than_the_cap(tmp_path, monkeypatch, capsys):
     assert pio.MAX_MODEL_FILE_BYTES == 64 * 1024 * 1024  # the documented cap
-    monkeypatch.setattr(pio, "MAX_MODEL_FILE_BYTES", 10_000)
+    monkeypatch.setattr(pio.layout, "MAX_MODEL_FILE_BYTES", 10_000)   # where readers look it up
     path = tmp_path / "oven.toml"
     path.write_text(VALID_TOML + "# padding\n" * 2_000, encoding="utf-8")
     exc = _refusal(path)
@@ -296,7 +296,7 @@ def test_failed_move_leaves_old_contents_and_no_temporary(tmp_path, monkeypatch)
     def refuse(src, dst):
         raise PermissionError(13, "Permission denied")
 
-    monkeypatch.setattr(pio.os, "replace", refuse)
+    monkeypatch.setattr(pio.safe_write.os, "replace", refuse)
     with pytest.raises(pc.ModelFileError, match=r"output: could not be written \(Permission denied\); "
                                                 r"nothing was changed"):
         pc.save_model(_model(), target)

@@ -1,4 +1,4 @@
-"""Tests for the HTML report (plantcore.html_report) and ``plantcore report``."""
+"""Tests for the HTML report (plantcore.reports.html) and ``plantcore report``."""
 
 from __future__ import annotations
 
@@ -13,13 +13,13 @@ import pytest
 
 import plantcore as pc
 from plantcore.cli import main
-from plantcore.html_report import (
+from plantcore.reports.html import (
     DEFAULT_RELATIVE_ERROR,
     collect_report,
     render_html,
     write_html_report,
 )
-from plantcore.report import SAFETY_CAUTION
+from plantcore.core.wording import SAFETY_CAUTION
 
 SECTION_IDS = ("model", "verdicts", "part-sizes", "rank-decisions", "modes", "eigenvalues",
                "frequency-response", "hankel-singular-values", "certificate", "caution")
@@ -160,7 +160,7 @@ def test_names_are_escaped(tmp_path):
 
 def test_discrete_model_and_analysis_to_html():
     a = pc.analyze(pc.load_example("motion_axis"))
-    text = a.to_html()  # Analysis.to_html -> plantcore.report.analysis_html -> html_report
+    text = a.to_html()  # Analysis.to_html -> plantcore.reports.text.analysis_html -> html_report
     assert_self_contained(text)
     assert "near cancellation" in text       # the narrow pair is flagged
     assert "discrete time, sample time 0.001" in text

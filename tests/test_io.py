@@ -1,4 +1,4 @@
-"""Tests for plantcore.io: model files in TOML, JSON and NPZ, and safe writing.
+"""Tests for plantcore.files: model files in TOML, JSON and NPZ, and safe writing.
 
 External references used here:
 * the TOML and JSON files written by ``save_model`` are read back with the standard-library
@@ -21,7 +21,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 import plantcore as pc
-from plantcore import io as pio
+from plantcore import files as pio
 
 if sys.version_info >= (3, 11):
     import tomllib

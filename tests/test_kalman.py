@@ -1,4 +1,4 @@
-"""Tests of plantcore.kalman: part sizes, zero pattern, subspace meanings, reconstruction.
+"""Tests of plantcore.structure.kalman: part sizes, zero pattern, subspace meanings, reconstruction.
 
 External references:
 - Known-structure systems (catalog): part sizes fixed by construction (Kalman, 1963).
@@ -16,7 +16,7 @@ from numpy.testing import assert_allclose
 
 import catalog
 import plantcore as pc
-from plantcore.kalman import PART_NAMES
+from plantcore.structure.kalman import PART_NAMES
 
 ZERO_A = catalog.ZERO_BLOCKS_A
 
@@ -210,7 +210,7 @@ def test_condition_is_the_two_norm_condition_of_T(sizes, cond):
     # both must give cond_2 of the transformation.  Reference: numpy's SVD of T itself, in
     # the equilibrated coordinates where the parts are orthonormal (for these models the
     # equilibration leaves the states alone, checked below).
-    from plantcore.kalman import _prepare
+    from plantcore.structure.kalman import _prepare
     for seed in range(3):
         ks = catalog.known_structure(sizes, inputs=2, outputs=2, seed=seed, condition=cond)
         kd = pc.kalman_decomposition(ks.model)
@@ -221,7 +221,7 @@ def test_condition_is_the_two_norm_condition_of_T(sizes, cond):
 
 def _record_quotient_route(monkeypatch):
     """Wrap the quotient route of part 4; the list receives each of its results."""
-    from plantcore import kalman
+    from plantcore.structure import kalman
     results = []
     real = kalman._part4_from_quotient
 
@@ -244,7 +244,7 @@ def test_part4_from_the_quotient_matches_the_whole_model(monkeypatch):
     # The two routes must give the same sizes, the same step ranks and the same part 4,
     # which the construction fixes: the orthogonal complement of R ∩ N = T[:, part 2] in
     # N = T[:, parts 2, 4], i.e. T[:, part 4] for an orthogonal hiding similarity T.
-    from plantcore import kalman
+    from plantcore.structure import kalman
     case = catalog.known_structure((6, 3, 4, 7), inputs=2, outputs=2, seed=2)
     results = _record_quotient_route(monkeypatch)
     via_quotient = pc.kalman_decomposition(case.model)
@@ -280,7 +280,7 @@ def test_quotient_route_gives_way_when_not_clear_cut(monkeypatch):
     # tolerance: fragile) where the whole model's drops 1.7e-11, and would miss all six
     # directions of part 4; the fragile decision sends it back to the whole model.
     # (Values measured here; the sizes are the construction's.)
-    from plantcore import kalman
+    from plantcore.structure import kalman
     case = next(c for c in catalog.catalog() if c.sizes == (5, 3, 4, 6) and
                 c.tags == ("continuous", "siso"))
     results = _record_quotient_route(monkeypatch)

@@ -1,4 +1,4 @@
-"""Tests of plantcore.minimal.
+"""Tests of plantcore.structure.minimal.
 
 External references:
 - slycot's minimal-realization routine tb01pd and python-control's minreal, on random

@@ -1,4 +1,4 @@
-"""Tests of plantcore.model: validation, immutability, conversions, transfer evaluation."""
+"""Tests of plantcore.core.model: validation, immutability, conversions, transfer evaluation."""
 
 import numpy as np
 import pytest

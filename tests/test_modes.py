@@ -1,4 +1,4 @@
-"""Tests of plantcore.modes: per-mode classification, verdict ingredients, distances.
+"""Tests of plantcore.structure.modes: per-mode classification, verdict ingredients, distances.
 
 External references:
 - Known-structure systems (catalog and the builder below): the four-block Kalman form with
@@ -25,8 +25,8 @@ from numpy.testing import assert_allclose
 
 import catalog
 import plantcore as pc
-from plantcore.kalman import PART_NAMES
-from plantcore.modes import distance_to_uncontrollability, distance_to_unobservability
+from plantcore.structure.kalman import PART_NAMES
+from plantcore.structure.modes import distance_to_uncontrollability, distance_to_unobservability
 
 
 def _block(values, rng):
@@ -335,8 +335,8 @@ def test_distance_estimate_against_brute_force_minimum(seed):
     # upper bound (it is attained at its lambda) and must reach the reference minimum.
     import scipy.optimize
 
-    from plantcore.kalman import _prepare
-    from plantcore.modes import distance_to_uncontrollability
+    from plantcore.structure.kalman import _prepare
+    from plantcore.structure.modes import distance_to_uncontrollability
 
     rng = np.random.default_rng(4000 + seed)
     n = 4

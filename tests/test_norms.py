@@ -1,4 +1,4 @@
-"""Tests of plantcore.norms (peak gain and H2 norm).
+"""Tests of plantcore.reduction.norms (peak gain and H2 norm).
 
 External references, named beside each check:
 - slycot's L-infinity norm routine ``ab13dd`` and H2 norm routine ``ab13bd``, and
@@ -18,7 +18,7 @@ import scipy.optimize
 from numpy.testing import assert_allclose
 
 import plantcore as pc
-from plantcore.norms import h2_norm, peak_gain
+from plantcore.reduction.norms import h2_norm, peak_gain
 
 slycot = pytest.importorskip("slycot")
 

@@ -1,4 +1,4 @@
-"""Tests for plantcore.progress: progress on stderr only when it is a terminal."""
+"""Tests for plantcore.core.progress: progress on stderr only when it is a terminal."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ import sys
 
 import pytest
 
-from plantcore.progress import Progress, progress_enabled
+from plantcore.core.progress import Progress, progress_enabled
 
 
 class _Terminal(io.StringIO):

@@ -68,7 +68,7 @@ from hypothesis import strategies as st
 import catalog
 import plantcore as pc
 import strategies as gen
-from plantcore.kalman import PART_NAMES
+from plantcore.structure.kalman import PART_NAMES
 
 EPS = np.finfo(float).eps
 PACKAGE_DIR = os.path.dirname(os.path.abspath(pc.__file__))
@@ -615,7 +615,7 @@ def test_public_numerical_api_gives_a_result_or_a_clear_error(model):
     if analysis.ok:
         a = analysis.value
         json.dumps(a.to_dict(), allow_nan=False)           # JSON-safe, as documented
-        assert pc.report.SAFETY_CAUTION in a.to_text()
+        assert pc.core.wording.SAFETY_CAUTION in a.to_text()
 
 
 @settings(max_examples=50)

@@ -1,4 +1,4 @@
-"""Tests of plantcore.staircase: structure, orthogonality, ranks, scaling invariance.
+"""Tests of plantcore.structure.staircase: structure, orthogonality, ranks, scaling invariance.
 
 External references used here:
 - slycot's controllability-staircase routine ab01nd (orthogonal canonical form), whose

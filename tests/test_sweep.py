@@ -1,4 +1,4 @@
-"""Tests of plantcore.sweep: points, executors (serial, local pool, Dask), failures, table.
+"""Tests of plantcore.sweeps.sweep: points, executors (serial, local pool, Dask), failures, table.
 
 The analytic check uses the packaged twin-hoist crane sweep (a trolley carrying two
 pendulum loads): the parameter value where a swing mode loses controllability is derived
@@ -17,8 +17,8 @@ import pytest
 import sympy as sp
 
 import plantcore as pc
-from plantcore.sweep import RESULT_COLUMNS, _batches
-from plantcore.sweep_spec import load_sweep_spec
+from plantcore.sweeps.sweep import RESULT_COLUMNS, _batches
+from plantcore.sweeps.spec import load_sweep_spec
 
 CRANE_FILE = "crane_twin_hoist_sweep.toml"
 

@@ -1,4 +1,4 @@
-"""Tests of plantcore.sweep_spec (the sweep file form and its safe expressions) and of the
+"""Tests of plantcore.sweeps.spec (the sweep file form and its safe expressions) and of the
 ``plantcore sweep`` command line."""
 
 from __future__ import annotations
@@ -13,8 +13,8 @@ import pytest
 
 import plantcore as pc
 from plantcore.cli import main
-from plantcore.report import SAFETY_CAUTION
-from plantcore.sweep_spec import ExpressionError, ModelFromExpressions, load_sweep_spec, parse_expression
+from plantcore.core.wording import SAFETY_CAUTION
+from plantcore.sweeps.spec import ExpressionError, ModelFromExpressions, load_sweep_spec, parse_expression
 
 TWO_TANKS = """\
 name = "two coupled tanks"

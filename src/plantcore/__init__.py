@@ -1,31 +1,32 @@
 """plantcore: find what a linear model's inputs can move and outputs can see, and remove the rest.
 
-The public API is what ``__all__`` lists; everything else is internal.
+The public API is what ``__all__`` lists; everything else is internal.  The package is
+built in layers whose imports only point down (see "How the code is organized" in the
+README): ``core`` -> ``structure`` -> ``reduction`` -> ``analysis``; ``files``,
+``estimation`` and ``sweeps`` beside them; ``reports`` on top; ``cli`` and ``demo`` above all.
 """
 
-from .errors import AccuracyWarning, ModelFileError, NumericalBreakdown
-from .estimator import (ConstrainedJacobians, NonlinearObservability, ObservabilityAudit,
-                        audit_from_file, audit_linearized_observability,
-                        constrain_observability, nonlinear_observability)
-from .equivalence import EquivalenceCertificate, check_equivalence
-from .norms import PeakGain, h2_norm, peak_gain
-from .exact import ExactPartSizes, exact_minimal_order, exact_part_sizes, exact_transfer_matrix
-from .io import load_model, save_model
-from .kalman import KalmanDecomposition, PartSizes, kalman_decomposition
-from .minimal import MinimalRealization, minimal_realization
-from .model import StateSpaceModel, as_model, from_transfer_function
-from .rank import RankDecision
-from .staircase import StaircaseForm, controllability_staircase, observability_staircase
-from .modes import Mode, classify_modes
-from .balanced import ReducedModel, balanced_truncation, hankel_singular_values
-from .sweep import SweepResult, grid, random_points, sweep
-from .sweep_spec import SweepSpec, load_sweep_spec
-from .analysis import Analysis, analyze
-from .examples import example_path, list_examples, load_example
-from .html_report import write_html_report
-from .demo import run_demo
-
-__version__ = "0.1.0"
+from plantcore.analysis import Analysis, analyze
+from plantcore.core import (AccuracyWarning, ModelFileError, NumericalBreakdown, RankDecision,
+                            StateSpaceModel, as_model, from_transfer_function)
+from plantcore.core.version import __version__
+from plantcore.demo import run_demo
+from plantcore.estimation import (ConstrainedJacobians, NonlinearObservability,
+                                  ObservabilityAudit, audit_from_file,
+                                  audit_linearized_observability, constrain_observability,
+                                  nonlinear_observability)
+from plantcore.examples import example_path, list_examples, load_example
+from plantcore.files import load_model, save_model
+from plantcore.reduction import (EquivalenceCertificate, PeakGain, ReducedModel,
+                                 balanced_truncation, check_equivalence, h2_norm,
+                                 hankel_singular_values, peak_gain)
+from plantcore.reports import write_html_report
+from plantcore.structure import (ExactPartSizes, KalmanDecomposition, MinimalRealization, Mode,
+                                 PartSizes, StaircaseForm, classify_modes,
+                                 controllability_staircase, exact_minimal_order,
+                                 exact_part_sizes, exact_transfer_matrix, kalman_decomposition,
+                                 minimal_realization, observability_staircase)
+from plantcore.sweeps import SweepResult, SweepSpec, grid, load_sweep_spec, random_points, sweep
 
 __all__ = [
     "audit_linearized_observability",

@@ -11,7 +11,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from .errors import NumericalBreakdown
+from plantcore.core.errors import NumericalBreakdown
 
 __all__ = ["main"]
 
@@ -41,8 +41,8 @@ def _one_line(text: str) -> str:
 def _cmd_inspect(args) -> int:
     import json
 
-    from .analysis import analyze
-    from .io import load_model
+    from plantcore.analysis.analyze import analyze
+    from plantcore.files import load_model
 
     model = load_model(args.model)
     analysis = analyze(model, tol=args.tol)
@@ -56,8 +56,8 @@ def _cmd_inspect(args) -> int:
 
 
 def _cmd_reduce(args) -> int:
-    from .io import check_output_path, load_model, save_model
-    from .minimal import minimal_realization
+    from plantcore.files import check_output_path, load_model, save_model
+    from plantcore.structure.minimal import minimal_realization
 
     model = load_model(args.model)
     check_output_path(args.output, inputs=(args.model,))  # refuse before computing
@@ -70,7 +70,7 @@ def _cmd_reduce(args) -> int:
         print("warning: a rank decision lies within a factor 100 of the tolerance; "
               "the order depends on the tolerance.")
     if args.order is not None or args.max_error is not None:
-        from .balanced import balanced_truncation, truncation_error
+        from plantcore.reduction.balanced import balanced_truncation, truncation_error
 
         truncated = balanced_truncation(reduced, order=args.order, max_error=args.max_error)
         reduced = truncated.model
@@ -86,7 +86,7 @@ def _cmd_reduce(args) -> int:
               f"at {measured.frequency:.6g} {unit}")
     save_model(reduced, args.output, inputs=(args.model,))
     print(f"reduced model written to {args.output}")
-    from .equivalence import check_equivalence
+    from plantcore.reduction.equivalence import check_equivalence
 
     print()
     if args.order is not None or args.max_error is not None:
@@ -99,8 +99,8 @@ def _cmd_reduce(args) -> int:
 
 # --- compare ---
 def _cmd_compare(args) -> int:
-    from .equivalence import check_equivalence
-    from .io import load_model
+    from plantcore.reduction.equivalence import check_equivalence
+    from plantcore.files import load_model
 
     first = load_model(args.model_a)
     second = load_model(args.model_b)
@@ -111,8 +111,8 @@ def _cmd_compare(args) -> int:
 
 # --- report ---
 def _cmd_report(args) -> int:
-    from .html_report import write_html_report
-    from .io import load_model
+    from plantcore.reports.html import write_html_report
+    from plantcore.files import load_model
 
     model = load_model(args.model)
     contents = write_html_report(model, args.output, tol=args.tol, order=args.order,
@@ -126,7 +126,7 @@ def _cmd_report(args) -> int:
 
 # --- demo ---
 def _cmd_demo(args) -> int:
-    from .demo import run_demo
+    from plantcore.demo import run_demo
 
     run_demo(args.output, example=args.example)
     return EXIT_OK
@@ -134,12 +134,12 @@ def _cmd_demo(args) -> int:
 
 # --- audit ---
 def _cmd_audit(args) -> int:
-    from .audit_report import audit_html, audit_text
-    from .estimator import audit_from_file
+    from plantcore.reports.audit import audit_html, audit_text
+    from plantcore.estimation import audit_from_file
 
     audit = audit_from_file(args.jacobians, expected_unobservable=args.expected, tol=args.tol)
     if args.output:  # written before anything is printed: a refused output prints one line only
-        from .io import atomic_write
+        from plantcore.files import atomic_write
 
         # the page is rendered only once the output path has passed atomic_write's checks
         atomic_write(args.output,
@@ -153,9 +153,9 @@ def _cmd_audit(args) -> int:
 
 # --- sweep ---
 def _cmd_sweep(args) -> int:
-    from .sweep import sweep
-    from .sweep_report import check_output_folder, write_sweep_folder
-    from .sweep_spec import load_sweep_spec
+    from plantcore.sweeps.sweep import sweep
+    from plantcore.reports.sweep_folder import check_output_folder, write_sweep_folder
+    from plantcore.sweeps.spec import load_sweep_spec
 
     spec = load_sweep_spec(args.spec)
     check_output_folder(args.output)

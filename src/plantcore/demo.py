@@ -6,13 +6,13 @@
 1. **inspect** it (Kalman parts, rank decisions with their margins, modes, verdicts);
 2. **reduce** it: the minimal realization, then a balanced truncation to the lowest order
    whose guaranteed error is at most a tenth of the peak gain
-   (:data:`plantcore.html_report.DEFAULT_RELATIVE_ERROR`);
+   (:data:`plantcore.reports.html.DEFAULT_RELATIVE_ERROR`);
 3. **compare**: certify that the minimal model has the same transfer function as the
    original, and measure the error of the truncated model against its bound;
 4. **report**: write the self-contained HTML report.
 
 Everything is computed before anything is written; the files then go into a folder that did
-not exist (or was empty) through :func:`plantcore.io.atomic_write`, so an existing folder's
+not exist (or was empty) through :func:`plantcore.files.atomic_write`, so an existing folder's
 contents are never replaced and no half-written file is ever left behind.  Only files
 packaged with plantcore are read, through :mod:`importlib.resources`, so the demo works
 offline right after ``pip install``.
@@ -52,7 +52,7 @@ class DemoResult:
     files : dict
         File name -> path of every file written (the keys of :data:`DEMO_FILES`, less
         ``reduced_model*`` files when no reduction was possible).
-    contents : plantcore.html_report.ReportContents
+    contents : plantcore.reports.html.ReportContents
         The analysis, reduction and certificates shown in the report.
     summary : str
         The short summary that was printed.
@@ -113,7 +113,7 @@ def _make_folder(folder) -> tuple[Path, bool]:
 
 
 def _summary(c, example: str, folder: Path, written: dict) -> str:
-    from .html_report import PART_LABELS
+    from plantcore.reports.html import PART_LABELS
 
     a = c.analysis
     m = c.model
@@ -166,7 +166,7 @@ def run_demo(folder=None, *, example: str = "thermal_process", tol=None, echo=pr
     example : str, optional
         Which packaged example (see :func:`plantcore.list_examples`).
     tol : float, optional
-        Relative rank tolerance (default as in :mod:`plantcore.rank`).
+        Relative rank tolerance (default as in :mod:`plantcore.core.rank`).
     echo : callable or None, optional
         Called with the summary text (default :func:`print`); None for silence.
     progress : bool or None, optional
@@ -191,9 +191,10 @@ def run_demo(folder=None, *, example: str = "thermal_process", tol=None, echo=pr
     >>> result.contents.certificate.equivalent
     True
     """
-    from .examples import example_path
-    from .html_report import collect_report, render_html
-    from .io import atomic_write_text, load_model, save_model
+    from plantcore.examples import example_path
+    from plantcore.analysis import collect_report
+    from plantcore.reports.html import render_html
+    from plantcore.files import atomic_write_text, load_model, save_model
 
     source = example_path(example)            # ValueError for an unknown example
     model = load_model(source)

@@ -32,7 +32,7 @@ def _is_model_file(entry, suffix: str) -> bool:
     Looks at the top-level keys only (the full checks are :func:`plantcore.load_model`'s):
     a model file has ``A`` and nothing outside the model-file layout.
     """
-    from ..io import MODEL_FILE_KEYS
+    from plantcore.files import MODEL_FILE_KEYS
 
     try:
         if suffix == ".npz":
@@ -128,6 +128,6 @@ def load_example(name: str):
     -------
     StateSpaceModel
     """
-    from ..io import load_model
+    from plantcore.files import load_model
 
     return load_model(example_path(name))

@@ -47,7 +47,7 @@ import sys
 
 import numpy as np
 
-from ..model import StateSpaceModel
+from plantcore.core.model import StateSpaceModel
 
 __all__ = ["thermal_process", "motion_axis", "EXAMPLE_BUILDERS", "INTENDED_PART_SIZES",
            "write_examples"]
@@ -236,7 +236,7 @@ INTENDED_PART_SIZES = {"thermal_process": (7, 1, 2, 1), "motion_axis": (6, 2, 4,
 
 def write_examples(folder=None) -> list:
     """Write every example as ``<stem>.toml`` into ``folder`` (default: this package)."""
-    from ..io import save_model
+    from plantcore.files import save_model
 
     folder = folder or os.path.dirname(os.path.abspath(__file__))
     return [save_model(build(), os.path.join(folder, f"{stem}.toml"))

@@ -13,7 +13,7 @@ did.  The standard filter's linearization, taken at estimates that jump at every
 only two of the three directions, so the filter believes it learns the absolute heading: its
 heading standard deviation shrinks well below the compass's 5 degrees while the actual error
 stays.  The observability-constrained filter corrects its Jacobians with
-:func:`plantcore.estimator.constrain_observability` so that all three stay unobservable.  :func:`run_demo` compares the two in a small seeded Monte
+:func:`plantcore.estimation.constrain_observability` so that all three stay unobservable.  :func:`run_demo` compares the two in a small seeded Monte
 Carlo: audits of the Jacobians each used, the normalized estimation error squared (NEES) of
 the boat pose against its chi-square bounds, and heading errors against each filter's own
 three-sigma bound.
@@ -44,12 +44,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..estimator import (
+from plantcore.estimation import (
     ObservabilityAudit,
     audit_linearized_observability,
     constrain_observability,
 )
-from ..report import SAFETY_CAUTION
+from plantcore.core.wording import SAFETY_CAUTION
 
 __all__ = [
     "SurveyScenario",
@@ -373,7 +373,7 @@ def run_filter(run: SurveyRun, scenario: SurveyScenario = DEFAULT_SCENARIO, *,
 
     The constrained filter replaces, at every step, the measurement Jacobian ``H_k`` and the
     transition Jacobian ``F_k`` by their minimal corrections from
-    :func:`plantcore.estimator.constrain_observability`, with ``N_k`` the unobservable basis
+    :func:`plantcore.estimation.constrain_observability`, with ``N_k`` the unobservable basis
     at the prior estimate where ``H_k`` is evaluated, so that ``F'_k N_k = N_{k+1}`` and
     ``H'_k N_k = 0``.  Everything else (means, noise Jacobians, innovations) is identical.
     """

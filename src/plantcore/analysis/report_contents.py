@@ -1,0 +1,262 @@
+"""What one model report shows, computed: :func:`collect_report` and :class:`ReportContents`.
+
+The HTML report (:mod:`plantcore.reports.html`) only renders what this module collects:
+the analysis (reused when the caller has one), the peak gain, the certificate of the minimal
+realization, the balanced truncation with its rule, the certificate of the reduced model,
+and the sampled frequency responses its plot draws.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import math
+import os
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from plantcore.analysis.analyze import analyze
+from plantcore.core.progress import Progress
+from plantcore.reduction.balanced import balanced_truncation
+from plantcore.reduction.equivalence import check_equivalence
+from plantcore.reduction.norms import peak_gain as _peak_gain
+
+__all__ = ["DEFAULT_RELATIVE_ERROR", "ReportContents", "SampledResponse", "collect_report"]
+
+#: When neither an order nor a largest error is asked for, the report (and ``plantcore
+#: demo``) truncates to the lowest order whose guaranteed error bound is at most this
+#: fraction of the model's peak gain.  A tenth is a common first cut for design models whose
+#: controllers are later checked against the full model; the report shows the bound and the
+#: measured error so the reader can judge.
+DEFAULT_RELATIVE_ERROR = 0.1
+
+
+def _frequency_grid(model, modes, points: int) -> np.ndarray:
+    """A logarithmic frequency grid around the model's eigenvalues (rad per time unit)."""
+    values = np.array([complex(m.value) for m in modes], dtype=complex)
+    if model.is_discrete:
+        dt = model.dt
+        nyquist = np.pi / dt
+        nz = values[np.abs(values) > 0]
+        w = np.abs(np.log(nz)) / dt if nz.size else np.array([])
+        w = w[w > 0]
+        low = 0.1 * w.min() if w.size else 1e-3 * nyquist
+        low = min(low, 1e-2 * nyquist)
+        return np.geomspace(low, nyquist, points)
+    w = np.abs(values)
+    w = w[w > 0]
+    if not w.size:
+        return np.geomspace(1e-2, 1e2, points)
+    return np.geomspace(0.1 * w.min(), 10.0 * w.max(), points)
+
+
+def _singular_values(model, w: np.ndarray) -> np.ndarray:
+    """Singular values of the transfer matrix on the imaginary axis (or unit circle)."""
+    k = min(model.n_inputs, model.n_outputs)
+    out = np.full((w.size, k), np.nan)
+    for i, wi in enumerate(w):
+        point = np.exp(1j * wi * model.dt) if model.is_discrete else 1j * wi
+        try:
+            G = model.transfer_at(point)
+        except ValueError:  # the grid point is an eigenvalue
+            continue
+        if k:
+            out[i] = np.linalg.svd(G, compute_uv=False)
+    return out
+
+
+@dataclass(frozen=True)
+class SampledResponse:
+    """The singular values of one model's transfer matrix on a frequency grid.
+
+    Attributes
+    ----------
+    label : str
+        ``"original"``, ``"minimal"`` or ``"reduced"``.
+    states : int
+        The model's number of states.
+    frequencies : (k,) ndarray
+        Frequencies in rad per time unit (rad/s for a sampled model).
+    singular_values : (k, min(p, m)) ndarray
+        Largest first; NaN where the grid point is an eigenvalue.
+    """
+
+    label: str
+    states: int
+    frequencies: np.ndarray = field(repr=False)
+    singular_values: np.ndarray = field(repr=False)
+
+
+def _sampled_responses(analysis, reduction) -> tuple:
+    """The frequency responses a report draws: the original sampled coarsely (it may be
+    large), the minimal and the reduced model finely, on grids set by the eigenvalues."""
+    model = analysis.model
+    fine = _frequency_grid(model, analysis.modes, 400)
+    coarse = _frequency_grid(model, analysis.modes, 40 if model.n > 200 else 70)
+    curves = [("original", model, coarse), ("minimal", analysis.minimal.model, fine)]
+    if reduction is not None:
+        curves.append(("reduced", reduction.model, fine))
+    return tuple(SampledResponse(label, m.n, w, _singular_values(m, w)) for label, m, w in curves)
+
+
+@dataclass(frozen=True)
+class ReportContents:
+    """Everything one report shows, computed by the library.
+
+    Attributes
+    ----------
+    analysis : plantcore.analysis.Analysis
+        The diagnosis of the original model (parts, decisions, modes, verdicts).
+    certificate : EquivalenceCertificate or None
+        Original model against its minimal realization (None only when the comparison
+        itself failed; ``certificate_problem`` says why).
+    certificate_problem : str
+        Why there is no certificate, or ``""``.
+    reduction : ReducedModel or None
+        Balanced truncation of the minimal realization, or None (see ``reduction_problem``).
+    reduction_rule : str
+        How the reduced order was chosen, in one sentence.
+    reduction_problem : str
+        Why there is no reduced model, or ``""``.
+    reduced_certificate : EquivalenceCertificate or None
+        Original model against the reduced model: its ``peak_error`` is the error actually
+        reached, to compare with the bound.
+    peak_gain : PeakGain or None
+        Peak gain of the original model.
+    responses : tuple of SampledResponse
+        Frequency responses of the original, minimal and reduced models, for the plot.
+    source : str or None
+        The file the model came from, shown in the header.
+    created : str
+        Local date and time the report was made (ISO format, minutes).
+    """
+
+    analysis: object
+    certificate: object
+    certificate_problem: str
+    reduction: object
+    reduction_rule: str
+    reduction_problem: str
+    reduced_certificate: object
+    peak_gain: object
+    responses: tuple = field(default=(), repr=False)
+    source: str | None = None
+    created: str = field(default_factory=lambda: _dt.datetime.now().isoformat(timespec="minutes"))
+
+    @property
+    def model(self):
+        """The original model."""
+        return self.analysis.model
+
+    @property
+    def minimal_model(self):
+        """The minimal realization's model."""
+        return self.analysis.minimal.model
+
+
+def _progress(progress, label, total):
+    if progress is not None and not isinstance(progress, bool):
+        raise ValueError(f"progress must be True, False or None (automatic), got {progress!r}.")
+    return Progress(label, total, enabled=progress)
+
+
+def collect_report(model, *, tol=None, order=None, max_error=None, source=None,
+                   analysis=None, progress=None) -> ReportContents:
+    """Run the analysis, reduction and certificates that a report shows.
+
+    Parameters
+    ----------
+    model : StateSpaceModel, python-control StateSpace, or tuple (A, B, C[, D])
+    tol : float, optional
+        Relative rank tolerance (see :mod:`plantcore.core.rank`).
+    order : int, optional
+        Order of the balanced truncation of the minimal realization.
+    max_error : float, optional
+        Largest acceptable error bound (peak gain of the difference, in the model's units);
+        the lowest order that meets it is chosen.  ``order`` and ``max_error`` exclude each
+        other; with neither, the bound may be :data:`DEFAULT_RELATIVE_ERROR` times the peak
+        gain.
+    source : str, optional
+        File name to show in the report's header.
+    analysis : Analysis, optional
+        An analysis of ``model`` already made (it is reused, not repeated).
+    progress : bool or None, optional
+        Show progress on standard error: ``None`` (default) when it is a terminal,
+        ``True`` always, ``False`` never.
+
+    Returns
+    -------
+    ReportContents
+
+    Raises
+    ------
+    ValueError
+        For invalid options (both ``order`` and ``max_error``, an order above the minimal
+        order, a ``max_error`` that no truncation can certify).  Problems of the default
+        reduction (a mode on the stability boundary) are reported in the contents instead.
+    """
+    if order is not None and max_error is not None:
+        raise ValueError("give either order or max_error, not both: order fixes the number of "
+                         "states, max_error lets the error bound choose it.")
+    if order is not None and (isinstance(order, bool) or not isinstance(order, (int, np.integer))
+                              or order < 0):
+        raise ValueError(f"order must be a whole number of states, 0 or more, got {order!r}.")
+    bar = _progress(progress, "report", 6)
+    try:
+        if analysis is None:
+            bar.step("analysing the model")
+            analysis = analyze(model, tol=tol)
+        else:
+            bar.step("reusing the analysis")
+        model = analysis.model
+        minimal = analysis.minimal
+        r = minimal.order
+        if order is not None and order > r:
+            raise ValueError(f"order {order} is above the minimal order {r}; a balanced truncation "
+                             f"can only remove states, so choose an order of at most {r}.")
+        bar.step("peak gain")
+        try:
+            gain = _peak_gain(model)
+        except ValueError:
+            gain = None
+        bar.step("certifying the minimal realization")
+        certificate, certificate_problem = None, ""
+        try:
+            certificate = check_equivalence(model, minimal.model)
+        except (ValueError, ArithmeticError) as exc:
+            certificate_problem = f"the comparison could not be made: {exc}"
+        bar.step("balanced truncation")
+        reduction, rule, problem = None, "", ""
+        if order is not None:
+            rule = f"order {order}, as requested"
+            reduction = balanced_truncation(minimal.model, order=order)
+        elif max_error is not None:
+            rule = f"the lowest order whose error bound is at most {max_error:.4g}, as requested"
+            reduction = balanced_truncation(minimal.model, max_error=max_error)
+        elif r == 0:
+            problem = "the minimal realization has no states; there is nothing to truncate."
+        elif gain is None or not math.isfinite(gain.value) or gain.value == 0.0:
+            problem = ("the model has a mode on the stability boundary or no gain, so no "
+                       "relative error bound can be set; give --order to truncate anyway.")
+        else:
+            limit = DEFAULT_RELATIVE_ERROR * gain.value
+            rule = (f"the lowest order whose error bound is at most "
+                    f"{DEFAULT_RELATIVE_ERROR:g} x the peak gain ({limit:.4g})")
+            try:
+                reduction = balanced_truncation(minimal.model, max_error=limit)
+            except ValueError as exc:
+                problem = f"balanced truncation was not possible: {exc}"
+        bar.step("checking the reduced model")
+        reduced_certificate = None
+        if reduction is not None:
+            try:
+                reduced_certificate = check_equivalence(model, reduction.model)
+            except (ValueError, ArithmeticError):
+                reduced_certificate = None
+        bar.step("frequency responses")
+        responses = _sampled_responses(analysis, reduction)
+    finally:
+        bar.close()
+    return ReportContents(analysis, certificate, certificate_problem, reduction, rule, problem,
+                          reduced_certificate, gain, responses,
+                          None if source is None else os.fsdecode(os.fspath(source)))

@@ -1,0 +1,551 @@
+"""The equivalence certificate: do two models have the same transfer matrix?
+
+A reduced model is only useful when a reviewer can see that it behaves like the original.
+:func:`check_equivalence` compares two models through their transfer matrices, never their
+state coordinates: it forms the difference system ``a - b``, reduces it to a minimal
+realization (order 0 means the transfer functions agree), measures the peak gain of the
+difference against the peak gain of ``a``, compares the first Markov parameters (the
+impulse-response coefficients) and the feedthrough matrices, and writes down in plain
+sentences what was compared and why the verdict is what it is.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from plantcore.core.model import StateSpaceModel, as_model
+from plantcore.core.rendering import render
+from plantcore.core.wording import counted, frequency_phrase, short_number
+from plantcore.reduction.norms import PeakGain, _peak_gain, peak_gain
+from plantcore.core.rank import any_fragile
+
+__all__ = ["EquivalenceCertificate", "check_equivalence"]
+
+
+@dataclass(frozen=True)
+class EquivalenceCertificate:
+    """The result of comparing the transfer matrices of two models ``a`` and ``b``.
+
+    Attributes
+    ----------
+    equivalent : bool
+        The verdict: ``relative_error <= tolerance`` (or, with ``exact=True``, the transfer
+        matrices are identical in exact rational arithmetic).  False for models that cannot
+        be compared (different numbers of inputs or outputs, or time domains).
+    difference_order : int or None
+        Order of a minimal realization of ``a - b``; 0 when the transfer functions agree up
+        to the feedthrough.  None when the models cannot be compared.
+    peak_error : float
+        Peak gain of ``a - b`` (its L-infinity norm over the imaginary axis or unit circle);
+        ``inf`` when the difference has a pole on that boundary or the models cannot be
+        compared.
+    relative_error : float
+        ``peak_error`` divided by :attr:`reference_gain` (the peak gain of ``a``); 0 when
+        both are zero, ``inf`` when only ``a`` is zero.
+    peak_frequency : float
+        Where the difference is largest: rad/s (``inf`` for infinite frequency), or
+        rad/sample in discrete time.  ``nan`` when the difference is identically zero or the
+        models cannot be compared; 0.0 when the difference is a nonzero constant.
+    markov_error : float
+        Largest difference between the Markov parameters ``D, CB, CAB, CA^2B, ...`` of the
+        two models, relative to the largest Markov parameter of ``a``, after the frequency
+        scaling described in :func:`check_equivalence`; ``inf`` when not comparable.
+    reasons : tuple of str
+        Plain sentences: what was compared, where the models differ, which criterion
+        decided.
+    tolerance : float
+        The tolerance the relative error was held to.
+    criterion : str
+        What decided the verdict: ``"relative peak error"``, ``"exact rational arithmetic"``
+        or ``"not comparable"``.
+    reference_gain : float
+        The gain the peak error was divided by: the peak gain of ``a``, or, when that is
+        infinite (a pole of ``a`` on the boundary), the gain of ``a`` at
+        :attr:`peak_frequency`.
+    d_error : float
+        Spectral norm of ``D_a - D_b`` (absolute); ``inf`` when not comparable.
+    compared_markov_parameters : int
+        How many Markov parameters were compared, ``D`` included.
+    exact_equal : bool or None
+        With ``exact=True``: whether the exact transfer matrices are identical; else None.
+    is_discrete : bool or None
+        Time domain of the models (None when they differ).
+    sample_time : float or None
+        The common sample time in discrete time.
+    orders : tuple of int
+        Numbers of states of ``a`` and ``b``.
+    names : tuple
+        Names of ``a`` and ``b`` (None where unnamed).
+    decisions : tuple of RankDecision
+        The rank decisions of the minimal realization of the difference.
+    fragile : bool
+        True when one of those decisions lies within a factor 100 of its tolerance, so that
+        :attr:`difference_order` depends on the rank tolerance.
+    difference_peak : PeakGain or None
+        The full peak-gain result of the difference (None when its order is 0 or the models
+        cannot be compared).
+    """
+
+    equivalent: bool
+    difference_order: int | None
+    peak_error: float
+    relative_error: float
+    peak_frequency: float
+    markov_error: float
+    reasons: tuple
+    tolerance: float = 1e-9
+    criterion: str = "relative peak error"
+    reference_gain: float = math.nan
+    d_error: float = math.nan
+    compared_markov_parameters: int = 0
+    exact_equal: bool | None = None
+    is_discrete: bool | None = None
+    sample_time: float | None = None
+    orders: tuple = (0, 0)
+    names: tuple = (None, None)
+    decisions: tuple = field(default=(), repr=False)
+    fragile: bool = False
+    difference_peak: PeakGain | None = field(default=None, repr=False)
+
+    def to_dict(self) -> dict:
+        """A JSON-safe dictionary (non-finite numbers become None or strings)."""
+        def num(x):
+            if x is None:
+                return None
+            x = float(x)
+            if math.isnan(x):
+                return None
+            if math.isinf(x):
+                return "inf" if x > 0 else "-inf"
+            return x
+
+        return {
+            "equivalent": bool(self.equivalent),
+            "criterion": self.criterion,
+            "tolerance": num(self.tolerance),
+            "difference_order": self.difference_order,
+            "peak_error": num(self.peak_error),
+            "relative_error": num(self.relative_error),
+            "reference_gain": num(self.reference_gain),
+            "peak_frequency": num(self.peak_frequency),
+            "frequency_unit": "rad/sample" if self.is_discrete else "rad/s",
+            "markov_error": num(self.markov_error),
+            "compared_markov_parameters": self.compared_markov_parameters,
+            "d_error": num(self.d_error),
+            "exact_equal": self.exact_equal,
+            "is_discrete": self.is_discrete,
+            "sample_time": self.sample_time,
+            "orders": list(self.orders),
+            "names": list(self.names),
+            "fragile": bool(self.fragile),
+            "decisions": [d.to_dict() for d in self.decisions],
+            "reasons": list(self.reasons),
+        }
+
+    def to_text(self, *, caution: bool = True, labels=None) -> str:
+        """A plain, readable report of the certificate (rendered by
+        :func:`plantcore.reports.text.certificate_text`).
+
+        Parameters
+        ----------
+        caution : bool, optional
+            End with the safety caution (default).  Pass False only when the caution is
+            printed elsewhere in the same report.
+        labels : (str, str), optional
+            How to call the two models (file names, say); default their names.
+        """
+        return render(self, "text", caution=caution, labels=labels)
+
+    def _frequency_text(self) -> str:
+        return frequency_phrase(self.peak_frequency, self.is_discrete, self.sample_time)
+
+
+def _validate_tol(tol) -> float:
+    if isinstance(tol, bool):
+        raise ValueError(f"tol must be a positive number below 1, got {tol!r}.")
+    try:
+        value = float(tol)
+    except (TypeError, ValueError):
+        raise ValueError(f"tol must be a positive number below 1, got {tol!r}.") from None
+    if not math.isfinite(value) or not (0.0 < value < 1.0):
+        raise ValueError(f"tol must be a positive number below 1 (a relative error), got {tol!r}.")
+    return value
+
+
+def _float_model(obj, exact: bool, which: str) -> StateSpaceModel:
+    """``as_model``; with ``exact=True`` also tuples of rational entries (strings, fractions)."""
+    try:
+        return as_model(obj)
+    except ValueError:
+        if not exact or not isinstance(obj, (tuple, list)):
+            raise
+    from plantcore.structure.exact import _exact_model   # the one validated converter for exact entries
+
+    em = _exact_model(obj)
+    if em.parameters:
+        names = ", ".join(s.name for s in em.parameters)
+        raise ValueError(f"model {which} has symbols ({names}); the equivalence certificate "
+                         "needs numbers, so substitute values for the symbols first.")
+
+    def arr(M, rows, cols):
+        return np.array([[float(M[i, j]) for j in range(cols)] for i in range(rows)], dtype=float)
+
+    n, m, p = em.A.rows, em.B.cols, em.C.rows
+    return StateSpaceModel(arr(em.A, n, n), arr(em.B, n, m), arr(em.C, p, n), arr(em.D, p, m))
+
+
+def _mismatch(a: StateSpaceModel, b: StateSpaceModel) -> list:
+    reasons = []
+    if a.n_inputs != b.n_inputs:
+        reasons.append(f"Model A has {a.n_inputs} inputs but model B has {b.n_inputs}; "
+                       "transfer matrices of different sizes cannot be equal.")
+    if a.n_outputs != b.n_outputs:
+        reasons.append(f"Model A has {a.n_outputs} outputs but model B has {b.n_outputs}; "
+                       "transfer matrices of different sizes cannot be equal.")
+    if a.is_discrete != b.is_discrete:
+        ca, cb = (("discrete" if m.is_discrete else "continuous") for m in (a, b))
+        reasons.append(f"Model A is {ca}-time but model B is {cb}-time; discretize one of "
+                       "them before comparing.")
+    elif a.is_discrete and not math.isclose(a.dt, b.dt, rel_tol=1e-12, abs_tol=0.0):
+        reasons.append(f"Model A has sample time {a.dt:g} but model B has {b.dt:g}; models "
+                       "with different sample times cannot have the same transfer function.")
+    return reasons
+
+
+def _difference(a: StateSpaceModel, b: StateSpaceModel) -> StateSpaceModel:
+    """The parallel connection ``a - b``: states of a, then of b; output y_a - y_b."""
+    na, nb = a.n, b.n
+    A = np.zeros((na + nb, na + nb))
+    A[:na, :na] = a.A
+    A[na:, na:] = b.A
+    B = np.vstack([a.B, b.B])
+    C = np.hstack([a.C, -b.C])
+    D = a.D - b.D
+    return StateSpaceModel(A, B, C, D, a.dt)
+
+
+def _spectral_radius(A) -> float:
+    if A.shape[0] == 0:
+        return 0.0
+    return float(np.max(np.abs(np.linalg.eigvals(A))))
+
+
+def _markov_parameters(model: StateSpaceModel, count: int, rho: float) -> list:
+    """``[D, C B / rho, C (A/rho) B / rho, ...]``: the first ``count`` Markov parameters of
+    the frequency-scaled transfer matrix ``G(rho v)`` (same units as ``G``, no overflow)."""
+    from plantcore.core.equilibration import equilibrate
+
+    eq = equilibrate(model.A, model.B, model.C)
+    A, B, C = eq.apply(model.A, model.B, model.C)
+    out = [np.array(model.D, dtype=float)]
+    X = B / rho
+    As = A / rho
+    for _ in range(count - 1):
+        out.append(C @ X)
+        X = As @ X
+    return out
+
+
+def _markov_error(a: StateSpaceModel, b: StateSpaceModel):
+    """Largest relative difference of the first Markov parameters; returns (error, count)."""
+    count = 2 * max(a.n, b.n) + 1
+    if a.n_inputs == 0 or a.n_outputs == 0:
+        return 0.0, count
+    rho = max(_spectral_radius(a.A), _spectral_radius(b.A))
+    if not rho > 0:
+        norms = [np.linalg.norm(m.A) for m in (a, b) if m.n]
+        rho = max(norms) if norms and max(norms) > 0 else 1.0
+    Ma = _markov_parameters(a, count, rho)
+    Mb = _markov_parameters(b, count, rho)
+    size_a = max(np.linalg.norm(M, 2) for M in Ma)
+    size_b = max(np.linalg.norm(M, 2) for M in Mb)
+    ref = size_a if size_a > 0 else size_b
+    worst = max(np.linalg.norm(x - y, 2) for x, y in zip(Ma, Mb))
+    if worst == 0:
+        return 0.0, count
+    if not ref > 0 or not math.isfinite(ref):
+        return math.inf, count
+    return float(worst / ref), count
+
+
+def _exact_comparison(a_obj, b_obj, a: StateSpaceModel, b: StateSpaceModel):
+    """Exact transfer matrices; returns (equal, list of differing (i, j))."""
+    import sympy
+
+    from plantcore.structure.exact import exact_transfer_matrix
+
+    source_a = a_obj if isinstance(a_obj, (tuple, list)) else a
+    source_b = b_obj if isinstance(b_obj, (tuple, list)) else b
+    variable = sympy.Symbol("z" if a.is_discrete else "s")
+    Ga = exact_transfer_matrix(source_a, variable)
+    Gb = exact_transfer_matrix(source_b, variable)
+    differing = []
+    for i in range(a.n_outputs):
+        for j in range(a.n_inputs):
+            if sympy.cancel(Ga[i, j] - Gb[i, j]) != 0:
+                differing.append((i, j))
+    return not differing, differing
+
+
+def _gain_near(model: StateSpaceModel, w: float) -> float:
+    """Gain of ``model`` at ``w`` (or just beside it, if ``w`` is a pole); inf if neither."""
+    if math.isnan(w):
+        w = 0.0
+    if math.isinf(w):
+        return float(np.linalg.norm(model.D, 2))
+    for x in (w, w * (1 + 1e-3) + 1e-3):
+        point = np.exp(1j * x) if model.is_discrete else 1j * x
+        try:
+            value = float(np.linalg.norm(model.transfer_at(point), 2))
+        except ValueError:
+            continue
+        if math.isfinite(value):
+            return value
+    return math.inf
+
+
+def _incomparable(a, b, tol, reasons) -> EquivalenceCertificate:
+    return EquivalenceCertificate(
+        equivalent=False, difference_order=None, peak_error=math.inf,
+        relative_error=math.inf, peak_frequency=math.nan, markov_error=math.inf,
+        reasons=tuple(reasons) + ("Not equivalent: the models cannot be compared.",),
+        tolerance=tol, criterion="not comparable", reference_gain=math.nan,
+        d_error=math.inf, compared_markov_parameters=0, exact_equal=None, is_discrete=None,
+        sample_time=None, orders=(a.n, b.n), names=(a.name, b.name))
+
+
+# --- public function --------------------------------------------------------------------------
+
+def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False) -> EquivalenceCertificate:
+    """Certify whether two models have the same transfer matrix.
+
+    Parameters
+    ----------
+    a : StateSpaceModel, python-control StateSpace, or tuple (A, B, C[, D])
+        The original (reference) model: ``A`` (n_a, n_a), ``B`` (n_a, m), ``C`` (p, n_a),
+        ``D`` (p, m).
+    b : same kinds
+        The model to check against it (for example a reduced model), with the same numbers
+        of inputs and outputs for the comparison to make sense.
+    tol : float, optional
+        Largest relative peak error accepted, default ``1e-9``: the models are equivalent
+        when ``||G_a - G_b||_inf <= tol * ||G_a||_inf``.
+    exact : bool, optional
+        Also compare the transfer matrices in exact rational arithmetic (sympy), and let
+        that comparison decide.  Floats are taken at their exact binary value, so a model
+        and a rounded similarity transform of it are *not* exactly equal; for decimal data,
+        give tuples of strings (``"0.1"``) or fractions.  Meant for small models (a few
+        tens of states); models with symbols are refused.
+
+    Returns
+    -------
+    EquivalenceCertificate
+        Never raises for models that cannot be compared (different numbers of inputs or
+        outputs, continuous against discrete time, different sample times): those give
+        ``equivalent=False`` with a reason.
+
+    Raises
+    ------
+    ValueError
+        A model is not valid, or ``tol`` is not in ``(0, 1)``.
+
+    Notes
+    -----
+    1. *Difference system.*  ``a - b`` is the parallel connection with the output of ``b``
+       negated: ``A = diag(A_a, A_b)``, ``B = [B_a; B_b]``, ``C = [C_a, -C_b]``,
+       ``D = D_a - D_b``.  Its minimal realization (:func:`plantcore.minimal_realization`,
+       orthogonal staircase forms, default rank tolerance, decisions recorded) has order 0
+       exactly when the transfer functions agree up to the feedthrough; the difference is
+       then the constant ``D_a - D_b`` and the peak error is its spectral norm, exactly.
+       Differences below the rank tolerance (about ``5e-11`` of the difference system's
+       scale) count as zero at this step; the peak error measures everything else.
+       Conversely, for large models (about a hundred states and more) the staircase may
+       keep states whose contribution is only rounding, so a nonzero order alone does not
+       mean the models differ: the verdict rests on the peak error.
+    2. *Peak error.*  The peak gain of the minimal difference (:func:`plantcore.peak_gain`,
+       relative accuracy ``1e-10``): its L-infinity norm, defined for unstable models too as
+       long as no pole of the difference lies on the imaginary axis (unit circle).  Working
+       on the minimal difference removes poles that ``a`` and ``b`` share and that cancel,
+       integrators included.  The relative error divides by the peak gain of ``a``; when
+       that is infinite (``a`` has a pole on the boundary), by the gain of ``a`` at the
+       frequency where the difference peaks.
+    3. *Markov parameters* (impulse-response coefficients) ``D, CB, CAB, ...``: the first
+       ``2 max(n_a, n_b) + 1`` of them, enough to determine the difference (its order is
+       at most ``n_a + n_b``).  To avoid overflow and underflow they are those of the
+       frequency-scaled models ``G(rho v)``, ``rho`` the larger spectral radius of the two
+       state matrices: ``C (A/rho)^k B / rho``, which have the units of ``G``.  The
+       error is the largest difference relative to the largest scaled parameter of ``a``.
+       This check is independent of the rank decisions, but not of the coordinates' scaling:
+       for strongly non-normal ``A`` it may report a rounding-level difference above ``tol``
+       while the transfer functions agree; it does not decide the verdict.
+    4. *Verdict*: ``relative_error <= tol`` (with ``exact=True``: exact equality).
+
+    The difference-system approach is the standard way of comparing realizations
+    (Kailath [1]_, section 6.2; Zhou, Doyle and Glover [2]_, section 3.11 for the parallel
+    connection and section 4 for the norms).
+
+    References
+    ----------
+    .. [1] T. Kailath, *Linear Systems*, Prentice Hall, 1980.
+    .. [2] K. Zhou, J. C. Doyle and K. Glover, *Robust and Optimal Control*, Prentice Hall,
+       1996.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import plantcore as pc
+    >>> g = pc.from_transfer_function([1.0, 3.0], [1.0, 4.0, 3.0])   # (s+3)/((s+1)(s+3))
+    >>> cert = pc.check_equivalence(g, pc.minimal_realization(g).model)
+    >>> cert.equivalent, cert.difference_order
+    (True, 0)
+    >>> other = pc.from_transfer_function([1.0], [1.0, 1.001])         # pole moved by 1e-3
+    >>> pc.check_equivalence(g, other).equivalent
+    False
+    >>> pc.check_equivalence(g, g.replace(dt=0.1)).equivalent          # domains differ
+    False
+    """
+    tol = _validate_tol(tol)
+    exact = bool(exact)
+    ma = _float_model(a, exact, "A")
+    mb = _float_model(b, exact, "B")
+    problems = _mismatch(ma, mb)
+    if problems:
+        return _incomparable(ma, mb, tol, problems)
+
+    from plantcore.structure.minimal import minimal_realization
+
+    discrete, dt = ma.is_discrete, ma.dt
+    reasons = []
+    kind = "discrete-time" if discrete else "continuous-time"
+    reasons.append(
+        f"Compared the transfer matrices of two {kind} models with {counted(ma.n_inputs, 'input')} "
+        f"and {counted(ma.n_outputs, 'output')}, of orders {ma.n} and {mb.n}.")
+
+    d_diff = np.asarray(ma.D - mb.D, dtype=float)
+    d_error = float(np.linalg.norm(d_diff, 2)) if d_diff.size else 0.0
+    if ma.n_inputs == 0 or ma.n_outputs == 0:
+        mr = None
+        order, decisions = 0, ()
+    else:
+        mr = minimal_realization(_difference(ma, mb))
+        order, decisions = mr.order, tuple(mr.decisions)
+    fragile = any_fragile(decisions)
+
+    difference_peak = None
+    if order == 0:
+        peak_error = d_error
+        peak_frequency = 0.0 if peak_error > 0 else math.nan
+        if peak_error > 0:
+            reasons.append(
+                "A minimal realization of the difference A - B has order 0: the dynamics "
+                f"agree, and the difference is the constant D_A - D_B of norm {short_number(d_error)} "
+                "at every frequency.")
+        else:
+            reasons.append(
+                "A minimal realization of the difference A - B has order 0 and the "
+                "feedthrough matrices are identical: the transfer functions agree.")
+    else:
+        # Judge "pole on the boundary" against the scale of the two models, not of the
+        # small minimal difference (whose shared-integrator remnant may be 1e-26).
+        scale = max(float(np.linalg.norm(m.A)) for m in (ma, mb))
+        difference_peak = _peak_gain(mr.model, 1e-10, scale)
+        peak_error = difference_peak.value
+        peak_frequency = difference_peak.frequency
+        reasons.append(f"A minimal realization of the difference A - B has order {order}.")
+
+    # Reference gain: the peak gain of a (its L-infinity norm).
+    ref_peak = peak_gain(ma)
+    reference = ref_peak.value
+    if math.isinf(reference) and math.isfinite(peak_error) and peak_error > 0:
+        reference = _gain_near(ma, peak_frequency)
+        where = "unit circle" if discrete else "imaginary axis"
+        reasons.append(
+            f"Model A has a pole on the {where} (at "
+            f"{frequency_phrase(ref_peak.frequency, discrete, dt)}), so its peak gain is "
+            "infinite; the error is measured against the gain of model A at the frequency "
+            "where the difference is largest.")
+    if peak_error == 0:
+        relative_error = 0.0
+    elif math.isinf(peak_error) or not (0 < reference < math.inf):
+        relative_error = math.inf
+    else:
+        relative_error = peak_error / reference
+
+    if math.isinf(peak_error):
+        reasons.append(
+            f"The difference has a pole on the {'unit circle' if discrete else 'imaginary axis'}"
+            f" at {frequency_phrase(peak_frequency, discrete, dt)}: the models differ without "
+            "bound there.")
+    elif peak_error > 0 and order > 0:
+        reasons.append(
+            f"The transfer functions differ most at "
+            f"{frequency_phrase(peak_frequency, discrete, dt)}, where the peak gain of the "
+            f"difference is {short_number(relative_error)} of the original's.")
+    if reference == 0 and peak_error > 0:
+        reasons.append("Model A has zero gain at every frequency while model B does not, so "
+                       "the relative error is infinite.")
+
+    markov_error, markov_count = _markov_error(ma, mb)
+    if markov_error <= tol:
+        reasons.append(f"The first {markov_count} Markov parameters (impulse-response "
+                       f"coefficients, D first) agree to {short_number(markov_error)} relative.")
+    else:
+        reasons.append(f"The first {markov_count} Markov parameters (impulse-response "
+                       f"coefficients, D first) differ by up to {short_number(markov_error)} relative.")
+    if d_error > 0 and order > 0:
+        reasons.append(f"The feedthrough matrices D differ by {short_number(d_error)} (spectral norm).")
+
+    exact_equal = None
+    if exact:
+        exact_equal, differing = _exact_comparison(a, b, ma, mb)
+        if exact_equal:
+            reasons.append("In exact rational arithmetic the transfer matrices are identical.")
+        else:
+            i, j = differing[0]
+            reasons.append(
+                f"In exact rational arithmetic the transfer matrices differ in {len(differing)} "
+                f"of {ma.n_outputs * ma.n_inputs} entries, first from input "
+                f"{ma.inputs[j]!r} to output {ma.outputs[i]!r}.")
+        equivalent = bool(exact_equal)
+        criterion = "exact rational arithmetic"
+        numeric = relative_error <= tol
+        if numeric != equivalent:
+            reasons.append(
+                f"The floating-point comparison (relative peak error {short_number(relative_error)}) "
+                f"would have {'passed' if numeric else 'failed'} the tolerance {short_number(tol)}; "
+                "the exact comparison decides.")
+        reasons.append(("Equivalent" if equivalent else "Not equivalent")
+                       + ": decided by exact rational arithmetic.")
+    else:
+        equivalent = bool(relative_error <= tol)
+        criterion = "relative peak error"
+        if equivalent:
+            reasons.append(f"Equivalent: the relative peak error {short_number(relative_error)} is within "
+                           f"the tolerance {short_number(tol)}.")
+            if order > 0:
+                reasons.append(
+                    f"The {order} state(s) left in the difference carry only a difference "
+                    "below the tolerance.")
+            if markov_error > tol:
+                reasons.append(
+                    "The Markov parameters differ by more than the tolerance although the "
+                    "peak error does not; this points to rounding in strongly non-normal "
+                    "coordinates or fast modes, and deserves a look.")
+        else:
+            reasons.append(f"Not equivalent: the relative peak error {short_number(relative_error)} "
+                           f"exceeds the tolerance {short_number(tol)}.")
+    if fragile:
+        reasons.append("A rank decision of the difference's minimal realization lies within "
+                       "a factor 100 of its tolerance: its order depends on the tolerance.")
+
+    return EquivalenceCertificate(
+        equivalent=equivalent, difference_order=int(order), peak_error=float(peak_error),
+        relative_error=float(relative_error), peak_frequency=float(peak_frequency),
+        markov_error=float(markov_error), reasons=tuple(reasons), tolerance=tol,
+        criterion=criterion, reference_gain=float(reference), d_error=d_error,
+        compared_markov_parameters=markov_count, exact_equal=exact_equal,
+        is_discrete=discrete, sample_time=dt, orders=(ma.n, mb.n), names=(ma.name, mb.name),
+        decisions=decisions, fragile=fragile, difference_peak=difference_peak)

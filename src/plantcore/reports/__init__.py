@@ -1,0 +1,25 @@
+"""The display layer: text, markdown and HTML reports, their plots, the estimator audit
+report and the sweep folder.
+
+Reports render the results they are given and compute nothing; importing this package
+registers the renderers that the results' ``to_text()`` / ``to_markdown()`` / ``to_html()``
+use (:mod:`plantcore.core.rendering`).
+"""
+
+from plantcore.analysis.analyze import Analysis
+from plantcore.core.rendering import register_renderer
+from plantcore.estimation.audit import ObservabilityAudit
+from plantcore.reduction.equivalence import EquivalenceCertificate
+from plantcore.reports.audit import audit_html, audit_text
+from plantcore.reports.html import analysis_html, render_html, write_html_report
+from plantcore.reports.text import analysis_markdown, analysis_text, certificate_text
+
+register_renderer(Analysis, "text", analysis_text)
+register_renderer(Analysis, "markdown", analysis_markdown)
+register_renderer(Analysis, "html", analysis_html)
+register_renderer(EquivalenceCertificate, "text", certificate_text)
+register_renderer(ObservabilityAudit, "text", audit_text)
+register_renderer(ObservabilityAudit, "html", audit_html)
+
+__all__ = ["analysis_html", "analysis_markdown", "analysis_text", "audit_html", "audit_text",
+           "certificate_text", "render_html", "write_html_report"]

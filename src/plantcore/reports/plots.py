@@ -1,0 +1,194 @@
+"""The report's plots: eigenvalue map, frequency response and Hankel singular values.
+
+Each function draws what a :class:`~plantcore.analysis.report_contents.ReportContents`
+holds and returns the PNG as a ``data:`` address with its alternative text; nothing here
+computes a model quantity.  Model names never enter a plot (matplotlib would read ``$`` as
+mathematics).
+"""
+
+from __future__ import annotations
+
+import base64
+import io
+
+import numpy as np
+
+__all__ = ["PART_LABELS", "eigenvalue_plot", "frequency_plot", "hankel_plot"]
+
+#: Plain-language labels of the four Kalman parts, in state order.
+PART_LABELS = {
+    "controllable_observable": "controllable and observable",
+    "controllable_unobservable": "controllable, unobservable",
+    "uncontrollable_observable": "uncontrollable, observable",
+    "uncontrollable_unobservable": "uncontrollable and unobservable",
+}
+# Our own palette: a slate blue, an ochre, a brick red and a warm grey, distinguishable in
+# print and for the common colour-vision deficiencies; marker shapes repeat the information.
+_PART_STYLE = {
+    "controllable_observable": dict(color="#2c5d8a", marker="o", size=7, filled=True),
+    "controllable_unobservable": dict(color="#c98a1b", marker="s", size=11, filled=False),
+    "uncontrollable_observable": dict(color="#a3362c", marker="^", size=13, filled=False),
+    "uncontrollable_unobservable": dict(color="#6f6a62", marker="D", size=15, filled=False),
+}
+_MODEL_STYLE = {
+    "original": dict(color="#262626"),
+    "minimal": dict(color="#2c5d8a"),
+    "reduced": dict(color="#c98a1b"),
+}
+
+
+def _png(fig) -> str:
+    """A matplotlib figure as an ``<img>`` source (base64 PNG, no metadata)."""
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=110, metadata={"Software": None})
+    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
+
+
+def _figure(width=7.0, height=4.2):
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(width, height), layout="constrained")
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def _style_axes(ax) -> None:
+    ax.grid(True, which="major", color="#d9d4c7", linewidth=0.7)
+    ax.grid(True, which="minor", color="#ece8de", linewidth=0.4)
+    for side in ("top", "right"):
+        ax.spines[side].set_visible(False)
+    ax.tick_params(labelsize=9)
+    ax.set_axisbelow(True)
+
+
+def eigenvalue_plot(contents) -> tuple[str, str]:
+    """Eigenvalues in the complex plane, marked by Kalman part."""
+    model = contents.model
+    modes = contents.analysis.modes
+    fig = _figure(8.0, 4.4)
+    ax = fig.add_subplot()
+    _style_axes(ax)
+    values = np.array([complex(m.value) for m in modes], dtype=complex)
+    note = ""
+    if model.is_discrete:
+        t = np.linspace(0.0, 2.0 * np.pi, 361)
+        ax.plot(np.cos(t), np.sin(t), color="#8c8577", linewidth=1.0, zorder=1,
+                label="unit circle (stability boundary)")
+        ax.set_aspect("equal", adjustable="datalim")
+        ax.set_xlabel("real part")
+        ax.set_ylabel("imaginary part")
+    else:
+        ax.axvline(0.0, color="#8c8577", linewidth=1.0, zorder=1,
+                   label="imaginary axis (stability boundary)")
+        ax.set_xlabel("real part (1 / time unit)")
+        ax.set_ylabel("imaginary part (rad / time unit)")
+        nz = np.abs(values.real[values.real != 0])
+        if nz.size and nz.max() / nz.min() > 50:
+            ax.set_xscale("symlog", linthresh=float(nz.min()) / 2, linscale=0.5)
+            note = " The real axis is on a symmetric logarithmic scale so that slow and fast modes both show."
+        ni = np.abs(values.imag[values.imag != 0])
+        if ni.size and ni.max() / ni.min() > 50:
+            ax.set_yscale("symlog", linthresh=float(ni.min()) / 2, linscale=0.5)
+            note += " The imaginary axis is on a symmetric logarithmic scale."
+    for part in ("uncontrollable_unobservable", "uncontrollable_observable",
+                 "controllable_unobservable", "controllable_observable"):
+        sel = [m for m in modes if m.part == part]
+        if not sel:
+            continue
+        st = _PART_STYLE[part]
+        z = np.array([complex(m.value) for m in sel])
+        ax.scatter(z.real, z.imag, s=st["size"] ** 2, marker=st["marker"],
+                   facecolors=st["color"] if st["filled"] else "none", edgecolors=st["color"],
+                   linewidths=1.6, zorder=3 if st["filled"] else 2,
+                   label=f"{PART_LABELS[part]} ({len(sel)})")
+    narrow = np.array([complex(m.value) for m in modes if m.narrow], dtype=complex)
+    if narrow.size:
+        ax.scatter(narrow.real, narrow.imag, s=22 ** 2, marker="o", facecolors="none",
+                   edgecolors="#262626", linewidths=0.9, linestyle=(0, (2, 2)), zorder=4,
+                   label=f"near cancellation ({narrow.size})")
+    if not len(modes):
+        ax.text(0.5, 0.5, "the model has no states", transform=ax.transAxes, ha="center")
+    ax.legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.02, 1.0), frameon=False,
+              borderaxespad=0.0, markerscale=0.7, labelspacing=1.0)
+    alt = "Eigenvalues of the original model in the complex plane, marked by Kalman part."
+    return _png(fig), alt + note
+
+
+def frequency_plot(contents) -> tuple[str, str]:
+    """Singular values of original (sampled), minimal and reduced models, overlaid."""
+    model = contents.model
+    fig = _figure(7.0, 4.2)
+    ax = fig.add_subplot()
+    _style_axes(ax)
+    positive = []
+    for response in contents.responses:   # the original is sampled coarsely, as markers
+        label, w = response.label, response.frequencies
+        sv = np.where(response.singular_values > 0, response.singular_values, np.nan)
+        st = _MODEL_STYLE[label]
+        text = f"{label}, {response.states} states"
+        for j in range(sv.shape[1]):
+            name = text if j == 0 else None
+            if label == "original":
+                ax.plot(w, sv[:, j], linestyle="none", marker="o", markersize=4.5,
+                        markerfacecolor="none", markeredgecolor=st["color"],
+                        markeredgewidth=0.9, label=name, zorder=3)
+            else:
+                ax.plot(w, sv[:, j], color=st["color"], linewidth=1.8 if label == "minimal" else 1.6,
+                        linestyle="-" if label == "minimal" else (0, (5, 3)), label=name, zorder=2)
+        positive.append(sv[np.isfinite(sv)])
+    ax.set_xscale("log")
+    allv = np.concatenate(positive) if positive else np.array([])
+    if allv.size and allv.min() > 0:
+        ax.set_yscale("log")
+    if model.is_discrete:
+        ax.axvline(np.pi / model.dt, color="#8c8577", linewidth=1.0, linestyle=":")
+        ax.set_xlabel("frequency (rad/s; dotted line: half the sampling rate)")
+    else:
+        ax.set_xlabel("frequency (rad / time unit)")
+    ax.set_ylabel("gain (singular values)" if min(model.n_inputs, model.n_outputs) > 1 else "gain")
+    if model.n_inputs and model.n_outputs:
+        ax.legend(fontsize=8, loc="best", framealpha=0.9)
+    alt = ("Frequency response of the original model (markers), its minimal realization "
+           "(solid line) and the balanced-truncated model (dashed line).")
+    if min(model.n_inputs, model.n_outputs) > 1:
+        alt += " Each model shows all singular values of its transfer matrix."
+    return _png(fig), alt
+
+
+def hankel_plot(contents) -> tuple[str, str] | None:
+    red = contents.reduction
+    if red is not None:
+        hsv = np.asarray(red.hankel_singular_values, dtype=float)
+        cut = red.stable_order
+    else:
+        hsv = contents.analysis.hankel_singular_values
+        if hsv is None:
+            return None
+        hsv = np.asarray(hsv, dtype=float)
+        cut = None
+    if not hsv.size:
+        return None
+    fig = _figure(6.8, 3.6)
+    ax = fig.add_subplot()
+    _style_axes(ax)
+    idx = np.arange(1, hsv.size + 1)
+    floor = max(hsv[0] * 1e-17, np.finfo(float).tiny)
+    shown = np.maximum(hsv, floor)
+    kept = idx <= cut if cut is not None else np.ones(hsv.size, dtype=bool)
+    ax.bar(idx[kept], shown[kept], color="#2c5d8a", width=0.6, label="kept")
+    if (~kept).any():
+        ax.bar(idx[~kept], shown[~kept], color="#e0b8a8", edgecolor="#a3362c", width=0.6,
+               label="discarded")
+    ax.set_yscale("log")
+    ax.set_xlabel("state of the balanced minimal model")
+    ax.set_ylabel("Hankel singular value")
+    ax.set_xticks(idx if hsv.size <= 30 else idx[:: max(1, hsv.size // 15)])
+    if cut is not None and cut < hsv.size:
+        ax.axvline(cut + 0.5, color="#a3362c", linestyle=(0, (4, 3)), linewidth=1.2)
+        ax.text(cut + 0.6, shown[0], f"cut after {cut}; error bound {red.error_bound:.3g}",
+                fontsize=8, color="#a3362c", va="top")
+    ax.legend(fontsize=8, loc="lower left", framealpha=0.9)
+    alt = ("Hankel singular values of the minimal model, largest first; bars right of the "
+           "dashed line are discarded by the balanced truncation.")
+    return _png(fig), alt

@@ -1,0 +1,384 @@
+"""Rendering of result objects as text, markdown, JSON and HTML.
+
+Display only: the functions here read result objects and format them; they compute nothing
+numerical themselves.
+"""
+
+from __future__ import annotations
+
+import math
+
+
+from plantcore.core.wording import SAFETY_CAUTION, counted, frequency_phrase, short_number
+
+__all__ = ["analysis_text", "analysis_markdown", "certificate_text"]
+
+# --- analysis reports (text and markdown) -----------------------------------------------------
+# These read an :class:`plantcore.analysis.Analysis` and only format what it holds.
+
+PART_LABELS = {
+    "controllable_observable": "controllable and observable",
+    "controllable_unobservable": "controllable, not observable",
+    "uncontrollable_observable": "not controllable, observable",
+    "uncontrollable_unobservable": "neither controllable nor observable",
+}
+
+_PART_ORDER = tuple(PART_LABELS)
+_MAX_DIRECTIONS = 8
+_MAX_HSV = 24
+_MAX_LISTED_MODES = 4
+
+
+def _num(x, digits: int = 3) -> str:
+    if x is None:
+        return "-"
+    x = float(x)
+    if math.isinf(x):
+        return "inf"
+    if math.isnan(x):
+        return "nan"
+    return f"{x:.{digits}g}"
+
+
+def _eig(value, digits: int = 4) -> str:
+    value = complex(value)
+    re = 0.0 if value.real == 0 else value.real     # no "-0"
+    if value.imag == 0:
+        return f"{re:.{digits}g}"
+    sign = "+" if value.imag > 0 else "-"
+    return f"{re:.{digits}g} {sign} {abs(value.imag):.{digits}g}j"
+
+
+def _plural(k: int, word: str) -> str:
+    return f"{k} {word}" if k == 1 else f"{k} {word}s"
+
+
+def _model_line(a) -> str:
+    m = a.model
+    domain = (f"discrete time, sample time {m.dt:g}" if m.is_discrete else "continuous time")
+    return (f"{_plural(m.n, 'state')}, {_plural(m.n_inputs, 'input')}, "
+            f"{_plural(m.n_outputs, 'output')}; {domain}")
+
+
+def _title(a) -> str:
+    return f"Analysis of model {a.model.name!r}" if a.model.name else "Analysis of an unnamed model"
+
+
+def _stability_word(mode) -> str:
+    if mode.stable:
+        return "stable"
+    return "marginal" if mode.marginal else "UNSTABLE"
+
+
+def _mode_list(modes) -> str:
+    shown = [_eig(m.value) for m in modes[:_MAX_LISTED_MODES]]
+    more = len(modes) - len(shown)
+    return ", ".join(shown) + (f" and {more} more" if more > 0 else "")
+
+
+def _verdict_lines(a) -> list[tuple[str, str, str]]:
+    """(name, yes/no, explanation) for the three verdicts."""
+    not_stable = [m for m in a.modes if not m.stable]
+    rows = []
+    for name, ok, attr, can, cannot in (
+            ("stabilizable", a.stabilizable, "controllable", "can be moved by the inputs",
+             "the inputs cannot move"),
+            ("detectable", a.detectable, "observable", "is seen by the outputs",
+             "the outputs cannot see")):
+        if ok:
+            why = "every mode is stable" if not not_stable else f"every mode that is not stable {can}"
+            rows.append((name, "yes", why))
+        else:
+            bad = [m for m in not_stable if not getattr(m, attr)]
+            rows.append((name, "NO", f"{cannot} the mode(s) {_mode_list(bad)}, which are not stable"))
+    if a.is_minimal:
+        rows.append(("minimal", "yes", "every state is controllable and observable"))
+    else:
+        rows.append(("minimal", "no",
+                     f"a minimal realization has {_plural(a.minimal_order, 'state')} "
+                     f"({a.minimal.removed_uncontrollable} not controllable and "
+                     f"{a.minimal.removed_unobservable} not observable removed)"))
+    return rows
+
+
+def _distance_line(d) -> str:
+    if d.at is None:
+        return f"distance to {d.kind}: none (the model has no states)"
+    return (f"distance to {d.kind}: about {_num(d.value)} of the model's scale, "
+            f"reached at lambda = {_eig(d.at)} (an estimate and an upper bound)")
+
+
+def _method_lines(a) -> list[str]:
+    """How the two distance estimates were found (one line if the same way)."""
+    if not a.model.n:
+        return []
+    dc, do = a.distance_to_uncontrollability, a.distance_to_unobservability
+    if dc.method == do.method:
+        return [f"Both distances: {dc.method}."]
+    return [f"Distance to {dc.kind}: {dc.method}.", f"Distance to {do.kind}: {do.method}."]
+
+
+def _fragile_lines(a) -> list[str]:
+    fragile = [d for d in a.decisions if d.fragile]
+    if not fragile:
+        return []
+    labels = ", ".join(d.label for d in fragile)
+    verb = "lies" if len(fragile) == 1 else "lie"
+    return [f"WARNING: {_plural(len(fragile), 'rank decision')} ({labels}) {verb} within a "
+            "factor 100 of the tolerance, so the part sizes depend on the tolerance. Compare "
+            "with runs at a tolerance ten times larger and ten times smaller before relying on "
+            "them."]
+
+
+def _narrow_lines(a) -> list[str]:
+    narrow = a.narrow_modes
+    if not narrow:
+        return []
+    verb = "passes" if len(narrow) == 1 else "pass"
+    return [f"Note: {_plural(len(narrow), 'mode')} ({_mode_list(list(narrow))}) {verb} a test "
+            f"with a margin below {_num(a.narrow_margin)}: a near pole-zero cancellation. A "
+            "change of the model data of that relative size could make the test fail."]
+
+
+def _hsv_text(a) -> list[str]:
+    hsv = a.hankel_singular_values
+    lines = []
+    if hsv is None:
+        lines.append("  not available: " + a.hankel_note)
+        return lines
+    if hsv.size == 0:
+        lines.append("  none: " + (a.hankel_note or "the model has no states."))
+        return lines
+    shown = [f"{i + 1}: {_num(v, 4)}" for i, v in enumerate(hsv[:_MAX_HSV])]
+    for k in range(0, len(shown), 6):
+        lines.append("  " + "   ".join(shown[k:k + 6]))
+    if hsv.size > _MAX_HSV:
+        lines.append(f"  ... and {hsv.size - _MAX_HSV} smaller")
+    if a.hankel_note:
+        lines.append("  " + a.hankel_note)
+    return lines
+
+
+def analysis_text(a) -> str:
+    """Plain-text report of an :class:`plantcore.analysis.Analysis`."""
+    kd = a.decomposition
+    out = []
+    title = _title(a)
+    out += [title, "=" * len(title), _model_line(a),
+            f"rank tolerance {_num(a.tolerance)} (relative to the model's scale)", ""]
+
+    out += ["Kalman parts"]
+    for i, (name, size) in enumerate(zip(_PART_ORDER, kd.sizes)):
+        out.append(f"  part {i + 1}  {PART_LABELS[name]:<38s} {_plural(int(size), 'state')}")
+    out.append(f"  transformation condition number {_num(kd.condition)}; largest entry set to "
+               f"zero {_num(kd.residual)} of its block")
+    out.append("")
+
+    out.append("Rank decisions (margin: factor between the deciding singular value and the "
+               "tolerance; below 100 is fragile)")
+    if not a.decisions:
+        out.append("  none (the model has no states)")
+    width = max([len(d.label) for d in a.decisions], default=0)
+    for d in a.decisions:
+        flag = "  FRAGILE" if d.fragile else ""
+        kept = "none" if math.isinf(d.smallest_kept) else _num(d.smallest_kept)
+        out.append(f"  {d.label:<{width}s}  rank {d.rank} of {d.size}  smallest kept "
+                   f"{kept}  largest dropped {_num(d.largest_dropped)}  "
+                   f"margin {_num(d.margin)}{flag}")
+    out += _fragile_lines(a)
+    out.append("")
+
+    out.append("States in each part (one line per basis vector)")
+    if not a.model.n:
+        out.append("  none (the model has no states)")
+    for i, name in enumerate(_PART_ORDER):
+        dirs = a.part_directions.get(name, ())
+        if not dirs:
+            continue
+        out.append(f"  part {i + 1} ({PART_LABELS[name]}):")
+        for text in dirs[:_MAX_DIRECTIONS]:
+            out.append(f"    {text}")
+        if len(dirs) > _MAX_DIRECTIONS:
+            out.append(f"    ... and {len(dirs) - _MAX_DIRECTIONS} more")
+    if a.model.n:
+        out.append("  Part 2, parts 1+2 (the controllable subspace) and parts 2+4 (the "
+                   "unobservable subspace) are fixed by the model; parts 1, 3 and 4 are "
+                   "complements chosen by the method.")
+    out.append("")
+
+    out.append("Verdicts")
+    for name, answer, why in _verdict_lines(a):
+        out.append(f"  {name:<13s} {answer:<4s} {why}")
+    out.append("  " + _distance_line(a.distance_to_uncontrollability))
+    out.append("  " + _distance_line(a.distance_to_unobservability))
+    for line in _method_lines(a):
+        out.append("  (" + line + ")")
+    out.append("")
+
+    out.append("Modes (margin: smallest singular value of [A - lambda I, B] or "
+               "[A - lambda I; C], relative to the model's scale)")
+    if not a.modes:
+        out.append("  none (the model has no states)")
+    else:
+        out.append(f"  {'#':>3s}  {'eigenvalue':<24s} {'stability':<9s}  "
+                   f"{'controllable':<16s} {'observable':<16s} part")
+        for k, m in enumerate(a.modes):
+            c = f"{'yes' if m.controllable else 'no':<4s}{_num(m.controllability_margin)}"
+            o = f"{'yes' if m.observable else 'no':<4s}{_num(m.observability_margin)}"
+            part = _PART_ORDER.index(m.part) + 1
+            flag = "  narrow" if m.narrow else ""
+            out.append(f"  {k + 1:>3d}  {_eig(m.value):<24s} {_stability_word(m):<9s}  "
+                       f"{c:<16s} {o:<16s} {part}{flag}")
+    out += _narrow_lines(a)
+    out.append("")
+
+    out.append("Hankel singular values of the stable part")
+    out += _hsv_text(a)
+    out.append("")
+    out.append(SAFETY_CAUTION)
+    return "\n".join(out) + "\n"
+
+
+def _md_escape(text: str) -> str:
+    return str(text).replace("|", "\\|")
+
+
+def analysis_markdown(a) -> str:
+    """Markdown report of an :class:`plantcore.analysis.Analysis`."""
+    kd = a.decomposition
+    out = [f"# {_md_escape(_title(a))}", "", _model_line(a) + ".",
+           f"Rank tolerance {_num(a.tolerance)}, relative to the model's scale.", ""]
+
+    out += ["## Kalman parts", "", "| part | meaning | states |", "|---:|---|---:|"]
+    for i, (name, size) in enumerate(zip(_PART_ORDER, kd.sizes)):
+        out.append(f"| {i + 1} | {PART_LABELS[name]} | {int(size)} |")
+    out += ["", f"Transformation condition number {_num(kd.condition)}; largest entry set to zero "
+            f"{_num(kd.residual)} of its block.", ""]
+
+    out += ["## Rank decisions", "",
+            "Margin: factor between the deciding singular value and the tolerance; below 100 "
+            "is fragile.", ""]
+    if a.decisions:
+        out += ["| decision | rank | smallest kept | largest dropped | margin | fragile |",
+                "|---|---:|---:|---:|---:|---|"]
+        for d in a.decisions:
+            kept = "none" if math.isinf(d.smallest_kept) else _num(d.smallest_kept)
+            out.append(f"| {_md_escape(d.label)} | {d.rank} of {d.size} | {kept} "
+                       f"| {_num(d.largest_dropped)} | {_num(d.margin)} | "
+                       f"{'**yes**' if d.fragile else 'no'} |")
+    else:
+        out.append("None (the model has no states).")
+    out += [f"> {line}" for line in _fragile_lines(a)]
+    out.append("")
+
+    out += ["## States in each part", ""]
+    for i, name in enumerate(_PART_ORDER):
+        dirs = a.part_directions.get(name, ())
+        if not dirs:
+            continue
+        out.append(f"- **part {i + 1}** ({PART_LABELS[name]}): "
+                   + "; ".join(f"`{_md_escape(t)}`" for t in dirs[:_MAX_DIRECTIONS])
+                   + (f"; and {len(dirs) - _MAX_DIRECTIONS} more" if len(dirs) > _MAX_DIRECTIONS else ""))
+    if a.model.n:
+        out += ["", "Part 2, parts 1+2 (the controllable subspace) and parts 2+4 (the unobservable "
+                "subspace) are fixed by the model; parts 1, 3 and 4 are complements chosen by "
+                "the method."]
+    out.append("")
+
+    out += ["## Verdicts", "", "| verdict | answer | why |", "|---|---|---|"]
+    for name, answer, why in _verdict_lines(a):
+        out.append(f"| {name} | {answer} | {_md_escape(why)} |")
+    out += ["", "- " + _distance_line(a.distance_to_uncontrollability),
+            "- " + _distance_line(a.distance_to_unobservability)]
+    for line in _method_lines(a):
+        out.append("- " + line)
+    out.append("")
+
+    out += ["## Modes", "",
+            "Margin: smallest singular value of `[A - λI, B]` or `[A - λI; C]`, relative to the "
+            "model's scale.", ""]
+    if a.modes:
+        out += ["| # | eigenvalue | stability | controllable (margin) | observable (margin) "
+                "| part | narrow |", "|---:|---|---|---|---|---:|---|"]
+        for k, m in enumerate(a.modes):
+            out.append(f"| {k + 1} | {_eig(m.value)} | {_stability_word(m)} | "
+                       f"{'yes' if m.controllable else 'no'} ({_num(m.controllability_margin)}) | "
+                       f"{'yes' if m.observable else 'no'} ({_num(m.observability_margin)}) | "
+                       f"{_PART_ORDER.index(m.part) + 1} | {'**yes**' if m.narrow else ''} |")
+    else:
+        out.append("None (the model has no states).")
+    out += [f"> {line}" for line in _narrow_lines(a)]
+    out.append("")
+
+    out += ["## Hankel singular values of the stable part", ""]
+    out += [line.strip() for line in _hsv_text(a)]
+    out += ["", "---", "", f"*{SAFETY_CAUTION}*"]
+    return "\n".join(out) + "\n"
+
+
+def certificate_text(cert, *, caution: bool = True, labels=None) -> str:
+    """A plain, readable report of an equivalence certificate.
+
+    Parameters
+    ----------
+    cert : EquivalenceCertificate
+    caution : bool, optional
+        End with the safety caution (default).  Pass False only when the caution is
+        printed elsewhere in the same report.
+    labels : (str, str), optional
+        How to call the two models (file names, say); default their names.
+    """
+    def label(k):
+        who = "model A" if k == 0 else "model B"
+        if labels is not None:
+            return f"{who} ({labels[k]})"
+        name = cert.names[k]
+        return f"{who} {name!r}" if name else who
+
+    verdict = "EQUIVALENT" if cert.equivalent else "NOT EQUIVALENT"
+    if cert.criterion == "not comparable":
+        decided = "the models cannot be compared"
+    elif cert.criterion == "exact rational arithmetic":
+        decided = "decided by exact rational arithmetic"
+    else:
+        sign = "<=" if cert.relative_error <= cert.tolerance else ">"
+        decided = (f"relative peak error {short_number(cert.relative_error)} {sign} tolerance "
+                   f"{short_number(cert.tolerance)}")
+    lines = ["Transfer-matrix equivalence certificate", "",
+             f"  Verdict:               {verdict} ({decided})"]
+    lines.append(f"  Compared:              {label(0)}, {counted(cert.orders[0], 'state')}, "
+                 f"against {label(1)}, {counted(cert.orders[1], 'state')}")
+    if cert.criterion != "not comparable":
+        domain = ("discrete time, sample time " + f"{cert.sample_time:g}"
+                  if cert.is_discrete else "continuous time")
+        lines.append(f"  Time domain:           {domain}")
+        lines.append(f"  Order of difference:   {cert.difference_order} "
+                     "(minimal realization of A - B)")
+        if cert.peak_error > 0 and cert.difference_order == 0:
+            where = " (a constant: the same at every frequency)"
+        elif cert.peak_error > 0:
+            where = f" at {frequency_phrase(cert.peak_frequency, cert.is_discrete, cert.sample_time)}"
+        else:
+            where = ""
+        lines.append(f"  Peak error:            {short_number(cert.peak_error)}{where}")
+        lines.append(f"  Relative error:        {short_number(cert.relative_error)} "
+                     f"(of the reference gain {short_number(cert.reference_gain)})")
+        lines.append(f"  Markov parameters:     {cert.compared_markov_parameters} compared, "
+                     f"largest relative difference {short_number(cert.markov_error)}")
+        lines.append("  Feedthrough D:         "
+                     + ("identical" if cert.d_error == 0 else
+                        f"differs by {short_number(cert.d_error)} (spectral norm)"))
+        if cert.exact_equal is not None:
+            lines.append("  Exact comparison:      "
+                         + ("identical" if cert.exact_equal else "different"))
+        if cert.fragile:
+            lines.append("  Rank decisions:        FRAGILE (the order of the difference "
+                         "depends on the tolerance)")
+    lines.append("")
+    lines.append("Reasons:")
+    for sentence in cert.reasons:
+        lines.append(f"  - {sentence}")
+    if caution:
+        lines.append("")
+        lines.append(SAFETY_CAUTION)
+    return "\n".join(lines)

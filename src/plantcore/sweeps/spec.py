@@ -1,0 +1,770 @@
+"""Sweep specification files: a model family whose matrix entries are expressions.
+
+A sweep specification is a TOML file laid out like a model file (see DESIGN.md), except that
+a matrix entry may be a string holding an arithmetic expression in named parameters, and
+that tables describe the parameters and where to sample them::
+
+    name = "twin-hoist gantry crane"
+    sample_time = 0.05                  # omit for continuous time
+    states  = ["trolley_position", "trolley_velocity"]
+    inputs  = ["drive_force"]
+    outputs = ["trolley_position"]
+    A = [[0, 1], [0, "-friction / trolley_mass"]]
+    B = [[0], ["1 / trolley_mass"]]
+    C = [[1, 0]]
+    D = [[0]]                           # optional, zeros when omitted
+
+    [constants]                         # optional: fixed named numbers
+    friction = 40.0
+
+    [parameter_grid]                    # either a grid ...
+    trolley_mass = { start = 500.0, stop = 3000.0, count = 26 }
+    # other_parameter = { values = [1.0, 2.0, 5.0] }
+
+    # [random_draws]                    # ... or random draws (not both)
+    # seed = 2024
+    # count = 500
+    # [random_draws.parameters]
+    # trolley_mass = { distribution = "uniform", low = 500.0, high = 3000.0 }
+    # friction_factor = { distribution = "normal", mean = 1.0, standard_deviation = 0.1 }
+
+    [analysis]                          # optional
+    tolerance = 1e-10                   # relative rank tolerance
+    reduced_order = 2                   # measure the error of a balanced truncation
+
+Grid axes are ``{ start, stop, count }`` (``count`` evenly spaced values, both ends
+included) or ``{ values = [...] }``; the grid is the full combination of the axes, the last
+axis varying fastest (see :func:`plantcore.grid`).  Random draws name a distribution of
+:func:`plantcore.random_points`: ``uniform`` and ``log_uniform`` (``low``, ``high``),
+``normal`` (``mean``, ``standard_deviation``) or ``choice`` (``values``).
+
+Expressions
+-----------
+An expression may use numbers, the declared parameter and constant names, ``+ - * / **``,
+parentheses, the constant ``pi`` and the functions ``sin cos tan asin acos atan atan2
+sinh cosh tanh exp log log10 sqrt abs``.  Nothing else is accepted: no attribute access, no
+subscripts, no other calls, no names starting with an underscore, no lambda, no comparison.
+The text is first parsed with Python's :mod:`ast` and every node checked against that
+whitelist; only then is the (re-printed) text handed to sympy's ``parse_expr`` with a global
+namespace that holds only the whitelisted sympy functions, ``pi`` and the number and
+arithmetic constructors sympy's own transformations emit (no builtins), with the parameters
+renamed to internal names that cannot shadow those, and with ``evaluate=False`` so that
+sympy does no arithmetic on the constants.  The expression is
+compiled once with :func:`sympy.lambdify` to numpy, with every number printed as a float
+(so that no integer arithmetic of unbounded size can run).  Nothing is ever passed to
+Python's ``eval`` before it has passed the whitelist.
+
+Errors in the file are reported as :class:`plantcore.ModelFileError`, one line
+``file: field: problem``, with matrix entries named ``A[row][column]`` counting from 1 as one
+reads the file.  An expression that cannot be evaluated at one point (a division by zero, the
+square root of a negative number) only fails that point of the sweep.
+"""
+
+from __future__ import annotations
+
+import ast
+import keyword
+import math
+import os
+import sys
+from dataclasses import dataclass, field
+from numbers import Real
+
+import numpy as np
+
+from plantcore.core.errors import ModelFileError
+from plantcore.sweeps.sweep import DISTRIBUTIONS, RESULT_COLUMNS, grid, random_points
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
+__all__ = ["SweepSpec", "ModelFromExpressions", "load_sweep_spec", "parse_expression",
+           "ExpressionError", "FUNCTIONS", "MAX_POINTS"]
+
+#: Function names allowed in expressions, with their number of arguments.
+FUNCTIONS = {
+    "sin": 1, "cos": 1, "tan": 1, "asin": 1, "acos": 1, "atan": 1, "atan2": 2,
+    "sinh": 1, "cosh": 1, "tanh": 1, "exp": 1, "log": 1, "log10": 1, "sqrt": 1, "abs": 1,
+}
+#: Named constants allowed in expressions.
+NAMED_CONSTANTS = ("pi",)
+#: Largest number of points a specification may describe.
+MAX_POINTS = 1_000_000
+
+_MAX_EXPRESSION_LENGTH = 500
+_MAX_NODES = 200
+_MAX_INTEGER = 10 ** 300
+
+_TOP_KEYS = ("name", "sample_time", "states", "inputs", "outputs", "A", "B", "C", "D",
+             "constants", "parameter_grid", "random_draws", "analysis")
+
+
+class ExpressionError(ValueError):
+    """An expression is not allowed or not valid; the message says why, in one sentence."""
+
+
+# --- safe expressions ---------------------------------------------------------------------------
+
+_BINARY = {ast.Add: "+", ast.Sub: "-", ast.Mult: "*", ast.Div: "/", ast.Pow: "**"}
+_UNARY = {ast.UAdd: "+", ast.USub: "-"}
+
+_REFUSED = {
+    ast.Attribute: "attribute access ('.') is not allowed",
+    ast.Subscript: "subscripts ('[...]') are not allowed",
+    ast.Lambda: "lambda is not allowed",
+    ast.Compare: "comparisons are not allowed",
+    ast.BoolOp: "'and' / 'or' are not allowed",
+    ast.IfExp: "'if ... else' is not allowed",
+    ast.Starred: "'*' unpacking is not allowed",
+    ast.NamedExpr: "':=' is not allowed",
+    ast.List: "lists are not allowed",
+    ast.Tuple: "tuples are not allowed",
+    ast.Dict: "dicts are not allowed",
+    ast.Set: "sets are not allowed",
+    ast.JoinedStr: "strings are not allowed",
+    ast.ListComp: "comprehensions are not allowed",
+    ast.SetComp: "comprehensions are not allowed",
+    ast.DictComp: "comprehensions are not allowed",
+    ast.GeneratorExp: "comprehensions are not allowed",
+    ast.Await: "'await' is not allowed",
+    ast.Yield: "'yield' is not allowed",
+    ast.YieldFrom: "'yield' is not allowed",
+}
+
+
+def _allowed_summary() -> str:
+    return ("only numbers, parameter names, + - * / ** and the functions "
+            + " ".join(FUNCTIONS) + " are allowed")
+
+
+class _Checker:
+    """Walks a Python expression tree and refuses every node outside the whitelist."""
+
+    def __init__(self, names):
+        self.names = set(names)
+        self.nodes = 0
+
+    def check(self, node) -> None:
+        self.nodes += 1
+        if self.nodes > _MAX_NODES:
+            raise ExpressionError(f"the expression is too long (more than {_MAX_NODES} terms).")
+        if isinstance(node, ast.Expression):
+            return self.check(node.body)
+        if isinstance(node, ast.Constant):
+            value = node.value
+            if isinstance(value, bool) or not isinstance(value, (int, float)):
+                raise ExpressionError(f"the constant {value!r} is not a number; "
+                                      + _allowed_summary() + ".")
+            if isinstance(value, int) and abs(value) > _MAX_INTEGER:
+                raise ExpressionError("an integer in the expression is too large.")
+            if isinstance(value, float) and not math.isfinite(value):
+                raise ExpressionError("a number in the expression is not finite.")
+            return None
+        if isinstance(node, ast.BinOp):
+            if type(node.op) not in _BINARY:
+                raise ExpressionError(f"the operator {type(node.op).__name__} is not allowed; "
+                                      + _allowed_summary() + ".")
+            self.check(node.left)
+            return self.check(node.right)
+        if isinstance(node, ast.UnaryOp):
+            if type(node.op) not in _UNARY:
+                raise ExpressionError(f"the operator {type(node.op).__name__} is not allowed; "
+                                      + _allowed_summary() + ".")
+            return self.check(node.operand)
+        if isinstance(node, ast.Name):
+            return self._check_name(node.id, as_function=False)
+        if isinstance(node, ast.Call):
+            if not isinstance(node.func, ast.Name):
+                if isinstance(node.func, ast.Attribute):
+                    raise ExpressionError("attribute access ('.') is not allowed; "
+                                          + _allowed_summary() + ".")
+                raise ExpressionError("only the listed functions may be called; "
+                                      + _allowed_summary() + ".")
+            self._check_name(node.func.id, as_function=True)
+            if node.keywords:
+                raise ExpressionError(f"{node.func.id}() takes no keyword arguments.")
+            arity = FUNCTIONS[node.func.id]
+            if len(node.args) != arity:
+                raise ExpressionError(f"{node.func.id}() takes {arity} argument(s), "
+                                      f"got {len(node.args)}.")
+            for arg in node.args:
+                self.check(arg)
+            return None
+        for kind, problem in _REFUSED.items():
+            if isinstance(node, kind):
+                raise ExpressionError(problem + "; " + _allowed_summary() + ".")
+        raise ExpressionError(f"{type(node).__name__} is not allowed; " + _allowed_summary() + ".")
+
+    def _check_name(self, name: str, *, as_function: bool) -> None:
+        if name.startswith("_"):
+            raise ExpressionError(f"the name {name!r} is not allowed (names starting with an "
+                                  "underscore are refused).")
+        if as_function:
+            if name in FUNCTIONS:
+                return
+            if name in self.names or name in NAMED_CONSTANTS:
+                raise ExpressionError(f"{name!r} is a value, not a function.")
+            raise ExpressionError(f"unknown function {name!r}; the functions allowed are "
+                                  + " ".join(FUNCTIONS) + ".")
+        if name in self.names or name in NAMED_CONSTANTS:
+            return
+        if name in FUNCTIONS:
+            raise ExpressionError(f"the function {name!r} must be called, e.g. {name}(x).")
+        known = ", ".join(sorted(self.names)) or "none"
+        raise ExpressionError(f"unknown name {name!r}; the declared parameters and constants "
+                              f"are: {known}.")
+
+
+def _sympy_namespace() -> dict:
+    import sympy
+
+    functions = {
+        "sin": sympy.sin, "cos": sympy.cos, "tan": sympy.tan, "asin": sympy.asin,
+        "acos": sympy.acos, "atan": sympy.atan, "atan2": sympy.atan2, "sinh": sympy.sinh,
+        "cosh": sympy.cosh, "tanh": sympy.tanh, "exp": sympy.exp, "log": sympy.log,
+        "log10": lambda x: sympy.log(x, 10), "sqrt": sympy.sqrt, "abs": sympy.Abs,
+    }
+    assert set(functions) == set(FUNCTIONS)
+    # What sympy's own transformations emit (number and symbol wrappers, unevaluated
+    # arithmetic), the whitelisted functions and pi; no builtins at all.
+    namespace = {"__builtins__": {}, "Integer": sympy.Integer, "Float": sympy.Float,
+                 "Rational": sympy.Rational, "Symbol": sympy.Symbol, "Add": sympy.Add,
+                 "Mul": sympy.Mul, "Pow": sympy.Pow, "pi": sympy.pi}
+    namespace.update(functions)
+    return namespace
+
+
+def parse_expression(text: str, names):
+    """Check an arithmetic expression against the whitelist and return it as a sympy expression.
+
+    Parameters
+    ----------
+    text : str
+        The expression, e.g. ``"gravity * load_mass / trolley_mass"``.
+    names : iterable of str
+        The parameter and constant names the expression may use.
+
+    Returns
+    -------
+    sympy.Expr
+        The unevaluated expression, in the symbols of ``names``.
+
+    Raises
+    ------
+    ExpressionError
+        When the text is not a valid expression or uses anything outside the whitelist
+        (see the module documentation); the message is one sentence.
+
+    Examples
+    --------
+    >>> from plantcore.sweeps.spec import parse_expression
+    >>> str(parse_expression("2 * sin(angle) / mass", ["angle", "mass"]))
+    '2*sin(angle)/mass'
+    >>> parse_expression("mass.__class__", ["mass"])
+    Traceback (most recent call last):
+    ...
+    plantcore.sweeps.spec.ExpressionError: attribute access ('.') is not allowed; only numbers, parameter names, + - * / ** and the functions sin cos tan asin acos atan atan2 sinh cosh tanh exp log log10 sqrt abs are allowed.
+    """
+    import sympy
+    from sympy.parsing.sympy_parser import parse_expr, standard_transformations
+
+    if not isinstance(text, str):
+        raise ExpressionError(f"an expression must be a string, got {type(text).__name__}.")
+    if len(text) > _MAX_EXPRESSION_LENGTH:
+        raise ExpressionError(f"the expression is longer than {_MAX_EXPRESSION_LENGTH} characters.")
+    if not text.strip():
+        raise ExpressionError("the expression is empty.")
+    if "\x00" in text:
+        raise ExpressionError("the expression contains a NUL character.")
+    try:
+        tree = ast.parse(text.strip(), mode="eval")
+    except SyntaxError as exc:
+        where = f" at column {exc.offset}" if exc.offset else ""
+        raise ExpressionError(f"{text.strip()!r} is not a valid arithmetic expression "
+                              f"(syntax error{where}).") from None
+    except (ValueError, RecursionError, MemoryError):
+        raise ExpressionError(f"{text.strip()[:40]!r} is not a valid arithmetic expression.") from None
+    names = list(names)
+    _Checker(names).check(tree)
+    # Rename every parameter to an internal name that cannot collide with the names sympy's
+    # own transformations emit (a parameter called ``Mul`` or ``Symbol`` would otherwise
+    # shadow them); the symbols keep the user's names.
+    internal = {name: f"_v{k}" for k, name in enumerate(names)}
+    for node in ast.walk(tree):
+        if isinstance(node, ast.Name) and node.id in internal:
+            node.id = internal[node.id]
+    canonical = ast.unparse(tree)
+    local = {internal[name]: sympy.Symbol(name) for name in names}
+    try:
+        return parse_expr(canonical, local_dict=local, global_dict=_sympy_namespace(),
+                          transformations=standard_transformations, evaluate=False)
+    except Exception as exc:  # anything sympy refuses, in one sentence
+        raise ExpressionError(f"sympy could not read {text.strip()!r} "
+                              f"({type(exc).__name__}: {' '.join(str(exc).split())}).") from None
+
+
+def _float_printer():
+    from sympy.printing.numpy import NumPyPrinter
+
+    class _FloatPrinter(NumPyPrinter):
+        """Prints every number as a Python float literal, so the compiled code never does
+        integer arithmetic of unbounded size and loses no digit of a decimal constant."""
+
+        def _print_Float(self, expr):
+            return repr(float(expr))
+
+        def _print_Integer(self, expr):
+            return repr(float(expr))
+
+        def _print_Rational(self, expr):
+            return f"({float(expr.p)!r}/{float(expr.q)!r})"
+
+    return _FloatPrinter
+
+
+# --- the model builder --------------------------------------------------------------------------
+
+class ModelFromExpressions:
+    """A picklable ``build`` function: a parameter dict to a :class:`plantcore.StateSpaceModel`.
+
+    Parameters
+    ----------
+    matrices : dict
+        ``{"A": rows, "B": rows, "C": rows, "D": rows or None}`` with every entry a number
+        or an expression string (see the module documentation).
+    parameters : sequence of str
+        The parameter names a point must give.
+    constants : dict, optional
+        Fixed named numbers usable in expressions.
+    dt, states, inputs, outputs, name
+        As for :class:`plantcore.StateSpaceModel`.
+
+    Notes
+    -----
+    Expressions are checked when the object is made and compiled on first use in each
+    process (the compiled function is not pickled; the expression text is).  Calling with
+    a point evaluates every expression; an entry that evaluates to a non-finite or complex
+    value raises ``ValueError`` naming the entry, which :func:`plantcore.sweeps.sweep` records as
+    that point's error.
+
+    Examples
+    --------
+    >>> from plantcore.sweeps.spec import ModelFromExpressions
+    >>> build = ModelFromExpressions({"A": [["-k / m"]], "B": [[1]], "C": [[1]]}, ["k", "m"])
+    >>> float(build({"k": 6.0, "m": 2.0}).A[0, 0])
+    -3.0
+    """
+
+    def __init__(self, matrices, parameters, constants=None, *, dt=None, states=None,
+                 inputs=None, outputs=None, name=None):
+        self.parameters = tuple(parameters)
+        self.constants = dict(constants or {})
+        self.dt, self.states, self.inputs, self.outputs, self.name = dt, states, inputs, outputs, name
+        self.matrices = {key: None if rows is None else [list(r) for r in rows]
+                         for key, rows in matrices.items()}
+        names = self.parameters + tuple(self.constants)
+        self._entries = []  # (matrix, row, column, text)
+        for key, rows in self.matrices.items():
+            for i, row in enumerate(rows or []):
+                for j, value in enumerate(row):
+                    if isinstance(value, str):
+                        self._entries.append((key, i, j, value))
+        self._expressions = [self._checked(key, i, j, text, names)
+                             for key, i, j, text in self._entries]
+        self._compiled = None
+
+    @staticmethod
+    def _checked(key, i, j, text, names):
+        try:
+            return parse_expression(text, names)
+        except ExpressionError as exc:
+            raise ExpressionError(f"{key}[{i + 1}][{j + 1}]: {exc}") from None
+
+    def __getstate__(self):
+        state = self.__dict__.copy()
+        state["_compiled"] = None
+        state["_expressions"] = None  # re-parsed from the text on first use
+        return state
+
+    def _compile(self):
+        import sympy
+
+        if self._expressions is None:
+            names = self.parameters + tuple(self.constants)
+            self._expressions = [parse_expression(text, names) for *_, text in self._entries]
+        symbols = [sympy.Symbol(name) for name in self.parameters + tuple(self.constants)]
+        function = sympy.lambdify(symbols, list(self._expressions), modules="numpy",
+                                  printer=_float_printer(), dummify=True)
+        templates = {}
+        for key, rows in self.matrices.items():
+            if rows is None:
+                templates[key] = None
+                continue
+            width = len(rows[0]) if rows else 0
+            array = np.zeros((len(rows), width))
+            for i, row in enumerate(rows):
+                for j, value in enumerate(row):
+                    if not isinstance(value, str):
+                        array[i, j] = float(value)
+            templates[key] = array
+        self._compiled = (function, templates)
+        return self._compiled
+
+    def __call__(self, point) -> "StateSpaceModel":
+        from plantcore.core.model import StateSpaceModel
+
+        function, templates = self._compiled or self._compile()
+        missing = [p for p in self.parameters if p not in point]
+        if missing:
+            raise ValueError(f"the point gives no value for the parameter {missing[0]!r}.")
+        args = []
+        for p in self.parameters:
+            value = point[p]
+            if isinstance(value, bool) or not isinstance(value, Real):
+                raise ValueError(f"parameter {p!r} must be a real number, got {value!r}.")
+            args.append(np.float64(value))
+        args.extend(np.float64(self.constants[c]) for c in self.constants)
+        arrays = {key: None if t is None else t.copy() for key, t in templates.items()}
+        with np.errstate(all="ignore"):
+            try:
+                values = function(*args) if self._entries else []
+            except (ArithmeticError, ValueError, TypeError) as exc:
+                values = self._one_by_one(args, exc)
+        for (key, i, j, text), value in zip(self._entries, values):
+            if np.iscomplexobj(value) or not np.isfinite(value):
+                raise ValueError(f"{key}[{i + 1}][{j + 1}] = {text!r} evaluates to {value} at "
+                                 "this point.")
+            arrays[key][i, j] = float(value)
+        return StateSpaceModel(arrays["A"], arrays["B"], arrays["C"], arrays.get("D"), self.dt,
+                               states=self.states, inputs=self.inputs, outputs=self.outputs,
+                               name=self.name)
+
+    def _one_by_one(self, args, first_exc):
+        """Find which entry failed, for the message."""
+        import sympy
+
+        symbols = [sympy.Symbol(name) for name in self.parameters + tuple(self.constants)]
+        for (key, i, j, text), expr in zip(self._entries, self._expressions):
+            single = sympy.lambdify(symbols, expr, modules="numpy", printer=_float_printer(),
+                                    dummify=True)
+            try:
+                single(*args)
+            except (ArithmeticError, ValueError, TypeError) as exc:
+                raise ValueError(f"{key}[{i + 1}][{j + 1}] = {text!r} cannot be evaluated at this "
+                                 f"point ({type(exc).__name__}: {exc}).") from None
+        raise ValueError(f"the expressions cannot be evaluated at this point ({first_exc}).")
+
+
+# --- the specification file ---------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class SweepSpec:
+    """A parsed sweep specification.
+
+    Attributes
+    ----------
+    path : str
+        The file it was read from.
+    name : str or None
+        The model family's name.
+    parameters : tuple of str
+        The swept parameter names.
+    constants : dict
+        Named fixed numbers.
+    points : tuple of dict
+        The operating points, in sweep order.
+    sampling : str
+        ``"grid"`` or ``"random draws"``.
+    build : ModelFromExpressions
+        The picklable function from a point to its model.
+    tolerance : float or None
+        ``[analysis] tolerance``.
+    reduced_order : int or None
+        ``[analysis] reduced_order``.
+    seed : int or None
+        The seed of random draws.
+    """
+
+    path: str
+    name: str | None
+    parameters: tuple
+    constants: dict = field(repr=False)
+    points: tuple = field(repr=False)
+    sampling: str
+    build: ModelFromExpressions = field(repr=False)
+    tolerance: float | None = None
+    reduced_order: int | None = None
+    seed: int | None = None
+
+
+def _is_number(value) -> bool:
+    return not isinstance(value, bool) and isinstance(value, (int, float))
+
+
+class _Reader:
+    """Validates the parsed TOML document, raising ModelFileError with the field's name."""
+
+    def __init__(self, path):
+        self.path = str(path)
+
+    def fail(self, where, problem):
+        raise ModelFileError(self.path, where, problem)
+
+    def table(self, value, where, allowed=None):
+        """Check that value is a table; with ``allowed``, refuse other keys."""
+        if not isinstance(value, dict):
+            self.fail(where or None, f"must be a table, got {type(value).__name__}.")
+        for key in value if allowed is not None else ():
+            if key not in allowed:
+                self.fail(f"{where}.{key}" if where else key,
+                          f"unknown key; the keys allowed here are: {', '.join(allowed)}.")
+        return value
+
+    def number(self, value, where, *, positive=False):
+        if not _is_number(value) or not math.isfinite(float(value)):
+            self.fail(where, f"must be a finite number, got {value!r}.")
+        if positive and value <= 0:
+            self.fail(where, f"must be positive, got {value!r}.")
+        return float(value)
+
+    def whole(self, value, where, *, minimum=0):
+        if isinstance(value, bool) or not isinstance(value, int) or value < minimum:
+            self.fail(where, f"must be a whole number >= {minimum}, got {value!r}.")
+        return int(value)
+
+    def names(self, value, where):
+        if value is None:
+            return None
+        if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
+            self.fail(where, "must be a list of strings.")
+        if len(set(value)) != len(value):
+            self.fail(where, "holds a name twice; names must be unique.")
+        return tuple(value)
+
+    def identifier(self, name, where):
+        if not name.isidentifier() or keyword.iskeyword(name):
+            self.fail(where, f"{name!r} is not a valid name (letters, digits and '_', not "
+                             "starting with a digit).")
+        if name.startswith("_"):
+            self.fail(where, f"{name!r} starts with an underscore; such names are not allowed.")
+        if name in FUNCTIONS or name in NAMED_CONSTANTS:
+            self.fail(where, f"{name!r} is the name of a built-in function or constant of "
+                             "expressions; choose another name.")
+        if name in RESULT_COLUMNS:
+            self.fail(where, f"{name!r} is also a column of the result table; choose another name.")
+        return name
+
+    def matrix(self, value, key, names):
+        if not isinstance(value, list) or not all(isinstance(r, list) for r in value):
+            self.fail(key, "must be a list of rows, e.g. [[1.0, 0.0], [0.0, \"k / m\"]].")
+        widths = {len(r) for r in value}
+        if len(widths) > 1:
+            self.fail(key, f"has rows of different lengths ({', '.join(map(str, sorted(widths)))}).")
+        for i, row in enumerate(value):
+            for j, entry in enumerate(row):
+                where = f"{key}[{i + 1}][{j + 1}]"
+                if isinstance(entry, str):
+                    try:
+                        parse_expression(entry, names)
+                    except ExpressionError as exc:
+                        self.fail(where, str(exc))
+                elif not _is_number(entry) or not math.isfinite(float(entry)):
+                    self.fail(where, f"must be a number or an expression string, got {entry!r}.")
+        return value
+
+
+def _shape(rows):
+    return (len(rows), len(rows[0]) if rows else 0)
+
+
+def load_sweep_spec(path) -> SweepSpec:
+    """Read and check a sweep specification (TOML; see the module documentation).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+
+    Returns
+    -------
+    SweepSpec
+
+    Raises
+    ------
+    plantcore.ModelFileError
+        With a one-line message ``file: field: problem`` for anything wrong in the file.
+    """
+    reader = _Reader(path)
+    path = os.fspath(path)
+    try:
+        with open(path, "rb") as handle:
+            document = tomllib.load(handle)
+    except FileNotFoundError:
+        reader.fail(None, "no such file.")
+    except IsADirectoryError:
+        reader.fail(None, "is a folder, not a sweep specification file.")
+    except tomllib.TOMLDecodeError as exc:
+        reader.fail(None, f"not valid TOML ({' '.join(str(exc).split())}).")
+    except UnicodeDecodeError:
+        reader.fail(None, "not valid TOML (not UTF-8 text).")
+    reader.table(document, "", _TOP_KEYS)
+
+    name = document.get("name")
+    if name is not None and not isinstance(name, str):
+        reader.fail("name", f"must be a string, got {name!r}.")
+    dt = None
+    if "sample_time" in document:
+        dt = reader.number(document["sample_time"], "sample_time", positive=True)
+
+    constants = {}
+    for key, value in reader.table(document.get("constants", {}), "constants").items():
+        reader.identifier(key, f"constants.{key}")
+        constants[key] = reader.number(value, f"constants.{key}")
+
+    has_grid, has_random = "parameter_grid" in document, "random_draws" in document
+    if has_grid and has_random:
+        reader.fail("random_draws", "give either [parameter_grid] or [random_draws], not both.")
+    if not (has_grid or has_random):
+        reader.fail("parameter_grid", "missing: describe the parameters in a [parameter_grid] "
+                                      "or a [random_draws] table.")
+    seed = None
+    if has_grid:
+        points, parameters = _grid_points(reader, document["parameter_grid"])
+        sampling = "grid"
+    else:
+        points, parameters, seed = _random_points(reader, document["random_draws"])
+        sampling = "random draws"
+    for p in parameters:
+        if p in constants:
+            reader.fail(f"constants.{p}", f"{p!r} is also a swept parameter; use one or the other.")
+
+    names = parameters + tuple(constants)
+    matrices = {}
+    for key in ("A", "B", "C"):
+        if key not in document:
+            reader.fail(key, "missing; a sweep specification needs the matrices A, B and C.")
+        matrices[key] = reader.matrix(document[key], key, names)
+    matrices["D"] = reader.matrix(document["D"], "D", names) if "D" in document else None
+    _check_shapes(reader, matrices)
+    n = _shape(matrices["A"])[0]
+    m = _shape(matrices["B"])[1] if n else (_shape(matrices["D"])[1] if matrices["D"] else 0)
+    p = _shape(matrices["C"])[0]
+    labels = {}
+    for key, count in (("states", n), ("inputs", m), ("outputs", p)):
+        labels[key] = reader.names(document.get(key), key)
+        if labels[key] is not None and len(labels[key]) != count:
+            reader.fail(key, f"has {len(labels[key])} names but the matrices give {count}; "
+                             "give one name each.")
+
+    tolerance = reduced_order = None
+    if "analysis" in document:
+        analysis = reader.table(document["analysis"], "analysis", ("tolerance", "reduced_order"))
+        if "tolerance" in analysis:
+            tolerance = reader.number(analysis["tolerance"], "analysis.tolerance", positive=True)
+            if tolerance >= 1:
+                reader.fail("analysis.tolerance", f"is relative and must lie in (0, 1), got {tolerance!r}.")
+        if "reduced_order" in analysis:
+            reduced_order = reader.whole(analysis["reduced_order"], "analysis.reduced_order")
+
+    build = ModelFromExpressions(matrices, parameters, constants, dt=dt, states=labels["states"],
+                                 inputs=labels["inputs"], outputs=labels["outputs"], name=name)
+    return SweepSpec(path, name, parameters, constants, tuple(points), sampling, build,
+                     tolerance, reduced_order, seed)
+
+
+def _check_shapes(reader, matrices) -> None:
+    (na, ma), (nb, mb), (pc_, nc) = (_shape(matrices[k]) for k in ("A", "B", "C"))
+    if na != ma:
+        reader.fail("A", f"is {na} x {ma} but must be square (one row and column per state).")
+    if nb != na and not (na == 0 and nb == 0):
+        reader.fail("B", f"has {nb} rows but A is {na} x {na}; B needs one row per state.")
+    if nc != na and na:
+        reader.fail("C", f"has {nc} columns but A is {na} x {na}; C needs one column per state.")
+    if matrices["D"] is not None and na:
+        pd, md = _shape(matrices["D"])
+        if (pd, md) != (pc_, mb):
+            reader.fail("D", f"is {pd} x {md} but the model has {pc_} outputs and {mb} inputs; "
+                             f"D must be {pc_} x {mb}.")
+
+
+def _grid_points(reader, table):
+    reader.table(table, "parameter_grid")
+    if not table:
+        reader.fail("parameter_grid", "is empty; give at least one parameter axis.")
+    axes = {}
+    count = 1
+    for name, axis in table.items():
+        where = f"parameter_grid.{name}"
+        reader.identifier(name, where)
+        reader.table(axis, where, ("start", "stop", "count", "values"))
+        if "values" in axis:
+            if set(axis) != {"values"}:
+                reader.fail(where, "give either values = [...] or start, stop and count, not both.")
+            values = axis["values"]
+            if not isinstance(values, list) or not values:
+                reader.fail(f"{where}.values", "must be a non-empty list of numbers.")
+            axes[name] = [reader.number(v, f"{where}.values") for v in values]
+        else:
+            for key in ("start", "stop", "count"):
+                if key not in axis:
+                    reader.fail(where, f"missing {key!r}; give start, stop and count, or values.")
+            start = reader.number(axis["start"], f"{where}.start")
+            stop = reader.number(axis["stop"], f"{where}.stop")
+            n = reader.whole(axis["count"], f"{where}.count", minimum=1)
+            if n == 1 and start != stop:
+                reader.fail(f"{where}.count", "is 1 but start and stop differ; use values = [x] "
+                                              "for a single value.")
+            if n > MAX_POINTS:
+                reader.fail(f"{where}.count", f"is larger than {MAX_POINTS}.")
+            axes[name] = np.linspace(start, stop, n).tolist()
+        count *= len(axes[name])
+        if count > MAX_POINTS:
+            reader.fail("parameter_grid", f"describes more than {MAX_POINTS} points.")
+    return grid(**axes), tuple(axes)
+
+
+def _random_points(reader, table):
+    reader.table(table, "random_draws", ("seed", "count", "parameters"))
+    for key in ("seed", "count", "parameters"):
+        if key not in table:
+            reader.fail("random_draws", f"missing {key!r}; random draws need seed, count and a "
+                                        "[random_draws.parameters] table.")
+    seed = reader.whole(table["seed"], "random_draws.seed")
+    count = reader.whole(table["count"], "random_draws.count", minimum=1)
+    if count > MAX_POINTS:
+        reader.fail("random_draws.count", f"is larger than {MAX_POINTS}.")
+    parameters = table["parameters"]
+    reader.table(parameters, "random_draws.parameters")
+    if not parameters:
+        reader.fail("random_draws.parameters", "is empty; give at least one parameter.")
+    distributions = {}
+    for name, description in parameters.items():
+        where = f"random_draws.parameters.{name}"
+        reader.identifier(name, where)
+        if not isinstance(description, dict) or "distribution" not in description:
+            reader.fail(where, "must be a table with a 'distribution' key, e.g. "
+                               "{ distribution = \"uniform\", low = 1.0, high = 2.0 }.")
+        kind = description["distribution"]
+        if kind not in DISTRIBUTIONS:
+            reader.fail(f"{where}.distribution", f"is {kind!r}; choose one of "
+                                                 f"{', '.join(DISTRIBUTIONS)}.")
+        arguments = DISTRIBUTIONS[kind]
+        reader.table(description, where, ("distribution",) + arguments)
+        values = []
+        for argument in arguments:
+            if argument not in description:
+                reader.fail(where, f"missing {argument!r} for the {kind} distribution.")
+            if argument == "values":
+                items = description["values"]
+                if not isinstance(items, list) or not items:
+                    reader.fail(f"{where}.values", "must be a non-empty list of numbers.")
+                values.append([reader.number(v, f"{where}.values") for v in items])
+            else:
+                values.append(reader.number(description[argument], f"{where}.{argument}"))
+        distributions[name] = (kind, *values)
+    try:
+        points = random_points(distributions, count, seed)
+    except ValueError as exc:
+        reader.fail("random_draws.parameters", str(exc))
+    return points, tuple(distributions), seed
