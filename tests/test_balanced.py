@@ -23,7 +23,8 @@ import slycot
 from numpy.testing import assert_allclose
 
 import plantcore as pc
-from plantcore.reduction.balanced import gramian_factors, truncation_error
+from plantcore.reduction.gramians import gramian_factors
+from plantcore.reduction.balanced import truncation_error
 from plantcore.cli import main
 
 SLACK = 1e-8   # relative slack for "measured <= bound" (the bound can be attained exactly)

@@ -26,7 +26,7 @@ from numpy.testing import assert_allclose
 import catalog
 import plantcore as pc
 from plantcore.structure.kalman import PART_NAMES
-from plantcore.structure.modes import distance_to_uncontrollability, distance_to_unobservability
+from plantcore.structure.distance import distance_to_uncontrollability, distance_to_unobservability
 
 
 def _block(values, rng):
@@ -336,7 +336,7 @@ def test_distance_estimate_against_brute_force_minimum(seed):
     import scipy.optimize
 
     from plantcore.structure.kalman import _prepare
-    from plantcore.structure.modes import distance_to_uncontrollability
+    from plantcore.structure.distance import distance_to_uncontrollability
 
     rng = np.random.default_rng(4000 + seed)
     n = 4

@@ -17,7 +17,8 @@ import pytest
 import sympy as sp
 
 import plantcore as pc
-from plantcore.sweeps.sweep import RESULT_COLUMNS, _batches
+from plantcore.sweeps.point_analysis import RESULT_COLUMNS
+from plantcore.sweeps.executors import _batches
 from plantcore.sweeps.spec import load_sweep_spec
 
 CRANE_FILE = "crane_twin_hoist_sweep.toml"

@@ -14,7 +14,8 @@ import pytest
 import plantcore as pc
 from plantcore.cli import main
 from plantcore.core.wording import SAFETY_CAUTION
-from plantcore.sweeps.spec import ExpressionError, ModelFromExpressions, load_sweep_spec, parse_expression
+from plantcore.sweeps.expressions import ExpressionError, ModelFromExpressions, parse_expression
+from plantcore.sweeps.spec import load_sweep_spec
 
 TWO_TANKS = """\
 name = "two coupled tanks"

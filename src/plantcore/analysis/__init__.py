@@ -5,8 +5,12 @@ Imports the core, structure and reduction layers; the reports render what it ret
 """
 
 from plantcore.analysis.analyze import Analysis, analyze
-from plantcore.analysis.report_contents import (DEFAULT_RELATIVE_ERROR, ReportContents,
-                                                SampledResponse, collect_report)
+from plantcore.analysis.report_contents import (
+                                                DEFAULT_RELATIVE_ERROR,
+                                                ReportContents,
+                                                SampledResponse,
+                                                collect_report,
+)
 
 __all__ = ["Analysis", "DEFAULT_RELATIVE_ERROR", "ReportContents", "SampledResponse", "analyze",
            "collect_report"]

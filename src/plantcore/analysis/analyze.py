@@ -20,7 +20,8 @@ from plantcore.core.errors import NumericalBreakdown
 from plantcore.structure.kalman import PART_NAMES, KalmanDecomposition, _prepare, kalman_decomposition
 from plantcore.structure.minimal import MinimalRealization, _minimal_from_decomposition
 from plantcore.core.model import StateSpaceModel
-from plantcore.structure.modes import NARROW_MARGIN, DistanceEstimate, _distances, _mode_table
+from plantcore.structure.modes import NARROW_MARGIN, _mode_table
+from plantcore.structure.distance import DistanceEstimate, _distances
 from plantcore.core.rendering import render
 from plantcore.core.wording import SAFETY_CAUTION, describe_direction
 

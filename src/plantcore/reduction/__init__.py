@@ -4,10 +4,14 @@ peak gain and H2 norms, and the equivalence certificate.
 Imports :mod:`plantcore.core` and :mod:`plantcore.structure`.
 """
 
-from plantcore.reduction.balanced import (GramianFactors, ReducedModel, balanced_truncation,
-                                          gramian_factors, hankel_singular_values,
-                                          truncation_error)
+from plantcore.reduction.balanced import (
+                                          ReducedModel,
+                                          balanced_truncation,
+                                          hankel_singular_values,
+                                          truncation_error,
+)
 from plantcore.reduction.equivalence import EquivalenceCertificate, check_equivalence
+from plantcore.reduction.gramians import GramianFactors, gramian_factors
 from plantcore.reduction.norms import PeakGain, h2_norm, peak_gain
 
 __all__ = ["EquivalenceCertificate", "GramianFactors", "PeakGain", "ReducedModel",

@@ -1,40 +1,6 @@
-"""Demo: a survey boat that maps buoys while locating itself (planar EKF-SLAM).
-
-A small survey boat leaves its mooring and circles a harbour basin in which four buoys float
-at unknown positions.  Where it starts is known to about 0.3 m, but its heading only from a
-hand-bearing compass, to about 5 degrees.  Its own motion comes from a speed log and a rate
-gyro, disturbed by currents and waves; a range-and-bearing sensor on the mast sees every
-buoy at every step.  The boat estimates its pose and the buoy positions together with an
-extended Kalman filter.  This is the planar simultaneous localization and mapping problem, in
-which the real system cannot see three directions (a common shift of everything in x, in y,
-and a common rotation about the origin): however long the boat surveys, ranges and bearings
-to buoys at unknown positions never tell it its absolute heading better than the compass
-did.  The standard filter's linearization, taken at estimates that jump at every update, sees
-only two of the three directions, so the filter believes it learns the absolute heading: its
-heading standard deviation shrinks well below the compass's 5 degrees while the actual error
-stays.  The observability-constrained filter corrects its Jacobians with
-:func:`plantcore.estimation.constrain_observability` so that all three stay unobservable.  :func:`run_demo` compares the two in a small seeded Monte
-Carlo: audits of the Jacobians each used, the normalized estimation error squared (NEES) of
-the boat pose against its chi-square bounds, and heading errors against each filter's own
-three-sigma bound.
-
-State ``x = [px, py, heading, b1x, b1y, ..., bMx, bMy]`` (metres, radians), inputs
-``u = [speed, turn_rate]`` (m/s, rad/s), one step of ``dt`` seconds:
-
-.. math::
-
-    p_{k+1} = p_k + dt\\, v_k [\\cos\\psi_k, \\sin\\psi_k]^T, \\qquad
-    \\psi_{k+1} = \\psi_k + dt\\, \\omega_k,
-
-and for buoy ``i`` the range ``|b_i - p|`` and bearing ``atan2(b_iy - p_y, b_ix - p_x) - psi``
-(relative to the bow).  The scenario (harbour, buoys, noise levels) is our own invention.
-
-References
-----------
-G. P. Huang, A. I. Mourikis and S. I. Roumeliotis, "Observability-based rules for designing
-consistent EKF SLAM estimators", International Journal of Robotics Research 29(5), 502-528,
-2010.  Y. Bar-Shalom, X. R. Li and T. Kirubarajan, "Estimation with Applications to Tracking
-and Navigation", Wiley, 2001 (chapter 5: filter consistency, the NEES test).
+"""The survey boat simulated, and estimated by two extended Kalman filters (the standard
+one and the observability-constrained one), with the seeded Monte Carlo comparison of
+:func:`run_demo` (see :mod:`plantcore.examples.survey_boat` for the scenario).
 """
 
 from __future__ import annotations
@@ -44,221 +10,28 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from plantcore.core.wording import SAFETY_CAUTION
 from plantcore.estimation import (
     ObservabilityAudit,
     audit_linearized_observability,
     constrain_observability,
 )
-from plantcore.core.wording import SAFETY_CAUTION
+from plantcore.examples.survey_boat.model import (
+    DEFAULT_SCENARIO,
+    SurveyScenario,
+    _wrap,
+    jacobians_along,
+    measurement_jacobian,
+    motion,
+    noise_jacobian,
+    range_bearing,
+    state_names,
+    transition_jacobian,
+    unobservable_basis,
+)
 
-__all__ = [
-    "SurveyScenario",
-    "DEFAULT_SCENARIO",
-    "SurveyRun",
-    "FilterRun",
-    "SurveyBoatDemo",
-    "SymbolicSurveyModel",
-    "motion",
-    "transition_jacobian",
-    "noise_jacobian",
-    "range_bearing",
-    "measurement_jacobian",
-    "unobservable_basis",
-    "state_names",
-    "jacobians_along",
-    "simulate",
-    "run_filter",
-    "run_demo",
-    "nees_bounds",
-    "symbolic_model",
-    "plot_heading_error",
-    "plot_nees",
-]
+__all__ = ["SurveyRun", "simulate", "FilterRun", "run_filter", "nees_bounds", "SurveyBoatDemo", "run_demo"]
 
-
-@dataclass(frozen=True)
-class SurveyScenario:
-    """The survey: harbour layout, boat motion and sensor noise.
-
-    Attributes
-    ----------
-    buoys : tuple of (x, y)
-        True buoy positions in metres.
-    start : (x, y, heading)
-        The mooring the boat leaves from (m, m, rad).
-    speed : float
-        Commanded speed through the water, m/s.
-    turn_rate : float
-        Commanded turn rate, rad/s (a circle of ``2 pi speed / turn_rate`` metres).
-    dt : float
-        Step, seconds.
-    speed_noise : float
-        Standard deviation of the speed-log reading, m/s.
-    turn_rate_noise : float
-        Standard deviation of the rate-gyro reading, rad/s.
-    range_noise : float
-        Standard deviation of a range, m.
-    bearing_noise : float
-        Standard deviation of a bearing, rad.
-    start_position_std, start_heading_std : float
-        Uncertainty of the start position and of the compass heading (m, rad).
-    """
-
-    buoys: tuple = ((4.0, 2.0), (-7.0, 10.0), (-3.0, -4.0), (9.0, -12.0))
-    start: tuple = (0.0, -10.0, 0.0)
-    speed: float = 1.0
-    turn_rate: float = 2.0 * math.pi / 60.0
-    dt: float = 0.5
-    speed_noise: float = 0.2
-    turn_rate_noise: float = math.radians(5.0)
-    range_noise: float = 0.3
-    bearing_noise: float = math.radians(2.0)
-    start_position_std: float = 0.3
-    start_heading_std: float = math.radians(5.0)
-
-    @property
-    def n_buoys(self) -> int:
-        return len(self.buoys)
-
-    @property
-    def n(self) -> int:
-        return 3 + 2 * len(self.buoys)
-
-    @property
-    def measurement_covariance(self) -> np.ndarray:
-        """Covariance of one step's stacked ranges and bearings, (2M, 2M)."""
-        return np.kron(np.eye(self.n_buoys), np.diag([self.range_noise ** 2,
-                                                        self.bearing_noise ** 2]))
-
-    @property
-    def input_covariance(self) -> np.ndarray:
-        return np.diag([self.speed_noise ** 2, self.turn_rate_noise ** 2])
-
-
-DEFAULT_SCENARIO = SurveyScenario()
-
-
-def _wrap(angle):
-    return (np.asarray(angle) + np.pi) % (2.0 * np.pi) - np.pi
-
-
-# ---------------------------------------------------------------------------------------------
-# The model and its Jacobians
-# ---------------------------------------------------------------------------------------------
-
-def motion(state, inputs, dt: float) -> np.ndarray:
-    """One step of the boat's motion; buoys stay put.  Returns the next state (n,)."""
-    x = np.array(state, dtype=float)
-    v, w = float(inputs[0]), float(inputs[1])
-    th = x[2]
-    x[0] += dt * v * math.cos(th)
-    x[1] += dt * v * math.sin(th)
-    x[2] = float(_wrap(th + dt * w))
-    return x
-
-
-def transition_jacobian(state, inputs, dt: float) -> np.ndarray:
-    """Jacobian of :func:`motion` with respect to the state at ``(state, inputs)``, (n, n)."""
-    x = np.asarray(state, dtype=float)
-    F = np.eye(x.size)
-    v = float(inputs[0])
-    F[0, 2] = -dt * v * math.sin(x[2])
-    F[1, 2] = dt * v * math.cos(x[2])
-    return F
-
-
-def noise_jacobian(state, dt: float) -> np.ndarray:
-    """Jacobian of :func:`motion` with respect to the inputs, (n, 2)."""
-    x = np.asarray(state, dtype=float)
-    G = np.zeros((x.size, 2))
-    G[0, 0] = dt * math.cos(x[2])
-    G[1, 0] = dt * math.sin(x[2])
-    G[2, 1] = dt
-    return G
-
-
-def range_bearing(state) -> np.ndarray:
-    """Ranges and bearings (relative to the bow) of every buoy, ``[r1, b1, r2, b2, ...]``."""
-    x = np.asarray(state, dtype=float)
-    d = x[3:].reshape(-1, 2) - x[None, :2]
-    z = np.empty(2 * d.shape[0])
-    z[0::2] = np.hypot(d[:, 0], d[:, 1])
-    z[1::2] = _wrap(np.arctan2(d[:, 1], d[:, 0]) - x[2])
-    return z
-
-
-def measurement_jacobian(state) -> np.ndarray:
-    """Jacobian of :func:`range_bearing` with respect to the state, (2M, n)."""
-    x = np.asarray(state, dtype=float)
-    M = (x.size - 3) // 2
-    H = np.zeros((2 * M, x.size))
-    for i in range(M):
-        dx, dy = x[3 + 2 * i] - x[0], x[4 + 2 * i] - x[1]
-        q = dx * dx + dy * dy
-        r = math.sqrt(q)
-        H[2 * i, 0:2] = (-dx / r, -dy / r)
-        H[2 * i, 3 + 2 * i:5 + 2 * i] = (dx / r, dy / r)
-        H[2 * i + 1, 0:3] = (dy / q, -dx / q, -1.0)
-        H[2 * i + 1, 3 + 2 * i:5 + 2 * i] = (-dy / q, dx / q)
-    return H
-
-
-def state_names(n_buoys: int) -> tuple:
-    """Names of the states, for reports: ``boat x, boat y, heading, buoy1 x, ...``."""
-    names = ["boat x", "boat y", "heading"]
-    for i in range(n_buoys):
-        names += [f"buoy{i + 1} x", f"buoy{i + 1} y"]
-    return tuple(names)
-
-
-def unobservable_basis(state) -> np.ndarray:
-    """The three directions the real system cannot see, at ``state``, (n, 3).
-
-    Columns: a common shift in x, a common shift in y, and a common rotation about the
-    origin (``d(px, py) = (-py, px)``, ``d heading = 1``, ``d(bx, by) = (-by, bx)``); Huang,
-    Mourikis and Roumeliotis (2010), section 4.
-    """
-    x = np.asarray(state, dtype=float)
-    n = x.size
-    N = np.zeros((n, 3))
-    N[0, 0] = N[1, 1] = 1.0
-    N[3::2, 0] = 1.0
-    N[4::2, 1] = 1.0
-    N[0, 2], N[1, 2], N[2, 2] = -x[1], x[0], 1.0
-    N[3::2, 2] = -x[4::2]
-    N[4::2, 2] = x[3::2]
-    return N
-
-
-def jacobians_along(states, inputs, dt: float):
-    """Transition and measurement Jacobians evaluated along given states and inputs.
-
-    Parameters
-    ----------
-    states : (K, n) array_like
-        The linearization points ``x_0 .. x_{K-1}``.
-    inputs : (K, 2) array_like
-        The inputs ``u_0 .. u_{K-1}`` used in the transition Jacobians.
-    dt : float
-
-    Returns
-    -------
-    (F, H) : ((K, n, n) ndarray, (K, 2M, n) ndarray)
-        ``F[k] = transition_jacobian(states[k], inputs[k])``,
-        ``H[k] = measurement_jacobian(states[k])``.  The sequence is *consistent* (keeps
-        three unobservable directions) only when ``states[k + 1] = motion(states[k],
-        inputs[k])``.
-    """
-    X = np.asarray(states, dtype=float)
-    U = np.asarray(inputs, dtype=float)
-    F = np.stack([transition_jacobian(X[k], U[k], dt) for k in range(X.shape[0])])
-    H = np.stack([measurement_jacobian(X[k]) for k in range(X.shape[0])])
-    return F, H
-
-
-# ---------------------------------------------------------------------------------------------
-# Simulation and the two filters
-# ---------------------------------------------------------------------------------------------
 
 @dataclass(frozen=True)
 class SurveyRun:
@@ -463,10 +236,6 @@ def _pose_error(truth: np.ndarray, estimate: np.ndarray) -> np.ndarray:
     return e
 
 
-# ---------------------------------------------------------------------------------------------
-# The demo
-# ---------------------------------------------------------------------------------------------
-
 @dataclass(frozen=True)
 class SurveyBoatDemo:
     """Results of :func:`run_demo`.
@@ -643,113 +412,3 @@ def run_demo(seed: int = 7, runs: int = 20, steps: int = 150,
         heading_std_standard=hstd["s"], heading_std_constrained=hstd["c"],
         audit_truth=audit_truth, audit_standard=audit_std, audit_constrained=audit_oc,
         first_run=data, first_standard=std_run, first_constrained=oc_run)
-
-
-# ---------------------------------------------------------------------------------------------
-# Symbolic model for the nonlinear observability rank
-# ---------------------------------------------------------------------------------------------
-
-@dataclass(frozen=True)
-class SymbolicSurveyModel:
-    """The continuous-time survey model in sympy, ready for ``nonlinear_observability``.
-
-    Attributes
-    ----------
-    f : sympy.Matrix
-        ``dx/dt``: ``[v cos(psi), v sin(psi), omega, 0, ..., 0]``.
-    h : sympy.Matrix
-        The measurement (relative positions in the boat frame, or ranges and bearings).
-    states : tuple of sympy.Symbol
-    inputs : tuple of sympy.Symbol
-        ``(v, omega)``.
-    """
-
-    f: object
-    h: object
-    states: tuple
-    inputs: tuple
-
-
-def symbolic_model(buoys: int = 2, measurement: str = "relative_position") -> SymbolicSurveyModel:
-    """The survey model with ``buoys`` buoys in sympy.
-
-    ``measurement="relative_position"`` measures each buoy's position in the boat frame,
-    ``R(psi)^T (b_i - p)``; ``"range_bearing"`` its range and bearing.  Both are invariant
-    under a common shift and rotation, so both leave three directions unobservable.
-    """
-    import sympy
-
-    kinds = ("relative_position", "range_bearing")
-    if measurement not in kinds:
-        raise ValueError(f"measurement must be one of {', '.join(kinds)}, got {measurement!r}.")
-    if isinstance(buoys, bool) or not isinstance(buoys, int) or buoys < 1:
-        raise ValueError(f"buoys must be a positive integer, got {buoys!r}.")
-    px, py, psi = sympy.symbols("p_x p_y psi", real=True)
-    v, omega = sympy.symbols("v omega", real=True)
-    bs = [sympy.symbols(f"b{i + 1}_x b{i + 1}_y", real=True) for i in range(buoys)]
-    states = (px, py, psi) + tuple(s for pair in bs for s in pair)
-    f = sympy.Matrix([v * sympy.cos(psi), v * sympy.sin(psi), omega] + [0] * (2 * buoys))
-    rows = []
-    c, s = sympy.cos(psi), sympy.sin(psi)
-    for bx, by in bs:
-        dx, dy = bx - px, by - py
-        if measurement == "relative_position":
-            rows += [c * dx + s * dy, -s * dx + c * dy]
-        else:
-            rows += [sympy.sqrt(dx ** 2 + dy ** 2), sympy.atan2(dy, dx) - psi]
-    return SymbolicSurveyModel(f=f, h=sympy.Matrix(rows), states=states, inputs=(v, omega))
-
-
-# ---------------------------------------------------------------------------------------------
-# Plots (matplotlib; no pyplot state is touched when an axes is given)
-# ---------------------------------------------------------------------------------------------
-
-def _axes(ax, figsize=(7.0, 3.6)):
-    if ax is not None:
-        return ax.figure, ax
-    from matplotlib.figure import Figure
-
-    fig = Figure(figsize=figsize, layout="constrained")
-    return fig, fig.add_subplot(1, 1, 1)
-
-
-def plot_heading_error(demo: SurveyBoatDemo, *, run: int = 0, ax=None):
-    """Heading error of each filter against its own three-sigma bound, in degrees.
-
-    Returns the matplotlib figure.
-    """
-    fig, ax = _axes(ax)
-    t = demo.time
-    for err, std, colour, label in (
-            (demo.heading_error_standard, demo.heading_std_standard, "#b5562b", "standard"),
-            (demo.heading_error_constrained, demo.heading_std_constrained, "#2b6f8a",
-             "observability-constrained")):
-        ax.plot(t, np.degrees(err[run]), color=colour, lw=1.2, label=f"{label}: error")
-        ax.plot(t, 3 * np.degrees(std[run]), color=colour, lw=0.9, ls="--",
-                label=f"{label}: own 3 sigma")
-        ax.plot(t, -3 * np.degrees(std[run]), color=colour, lw=0.9, ls="--")
-    ax.set_xlabel("time since leaving the mooring (s)")
-    ax.set_ylabel("heading error (deg)")
-    ax.set_title(f"Heading error against the filter's own bound (run {run})")
-    ax.legend(fontsize=7, ncol=2, loc="upper left")
-    ax.grid(True, lw=0.3)
-    return fig
-
-
-def plot_nees(demo: SurveyBoatDemo, *, ax=None):
-    """Run-averaged NEES of the boat pose over time with the chi-square bounds."""
-    fig, ax = _axes(ax)
-    lo, hi = demo.nees_bounds
-    ax.plot(demo.time, demo.average_nees_standard, color="#b5562b", lw=1.2, label="standard")
-    ax.plot(demo.time, demo.average_nees_constrained, color="#2b6f8a", lw=1.2,
-            label="observability-constrained")
-    ax.axhline(hi, color="0.3", lw=0.8, ls=":", label="95% chi-square bounds")
-    ax.axhline(lo, color="0.3", lw=0.8, ls=":")
-    ax.axhline(3.0, color="0.6", lw=0.6)
-    ax.set_xlabel("time since leaving the mooring (s)")
-    ax.set_ylabel(f"average NEES over {demo.runs} runs")
-    ax.set_title("Consistency of the boat-pose estimate")
-    ax.legend(fontsize=7)
-    ax.grid(True, lw=0.3)
-    return fig
-

@@ -1,0 +1,445 @@
+"""Distance of a model to the nearest uncontrollable (unobservable) model.
+
+``min over complex λ of sigma_min([A - λI, B])`` (and the dual with ``C``), estimated by a
+local descent from the eigenvalues with the smallest PBH margins; the conventions of scale
+are those of :mod:`plantcore.structure.modes`.  See :func:`distance_to_uncontrollability`
+for the method, its references and how it can fail.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from plantcore.structure.kalman import _prepare
+from plantcore.structure.modes import (
+    _CLUSTER_FACTOR,
+    _EPS,
+    _clustered_eigenvalues,
+    _smin_rows_many,
+    _upper,
+)
+
+__all__ = ["DistanceEstimate", "distance_to_uncontrollability", "distance_to_unobservability"]
+
+
+@dataclass(frozen=True)
+class DistanceEstimate:
+    """An estimate of the distance to the nearest uncontrollable (or unobservable) model.
+
+    Attributes
+    ----------
+    value : float
+        ``min`` over the points tried of the smallest singular value of ``[A - λI, B]``
+        (or ``[A - λI; C]``), relative to the model's scale.  It is attained at ``at``, so it
+        is an **upper bound** on the true distance (a local search can miss the global
+        minimum, never undershoot it).  ``inf`` for a model without states.
+    at : complex or None
+        The point ``λ`` where ``value`` was found (None for a model without states).
+    kind : str
+        ``"uncontrollability"`` or ``"unobservability"``.
+    method : str
+        How the estimate was obtained, in one sentence.
+    """
+
+    value: float
+    at: complex | None
+    kind: str
+    method: str
+
+    def to_dict(self) -> dict:
+        return {
+            "value": float(self.value) if math.isfinite(self.value) else None,
+            "at": None if self.at is None else [float(self.at.real), float(self.at.imag)],
+            "kind": self.kind,
+            "method": self.method,
+            "is_upper_bound": True,
+        }
+
+_MAX_STARTS = 3
+
+_START_FACTOR = 2.0
+
+_MAX_ITERATIONS = 30
+
+_CURVATURE_FLOOR = 1e-3
+
+_ZERO_LEVEL = 1e3 * _EPS
+
+_ADJECTIVE = {"uncontrollability": "uncontrollable", "unobservability": "unobservable"}
+
+
+@dataclass(frozen=True)
+class _Search:
+    """One local search for ``min_λ sigma_min([A - λI, M])`` (internal)."""
+
+    A: np.ndarray         # (n, n) real
+    M: np.ndarray         # (n, w) real
+    start: complex        # in the closed upper half-plane
+    radius: float         # length of a move along negative curvature; sets the move tolerance
+
+
+class _Evaluation:
+    """``phi(λ) = sigma_min([A_k - λ_k I, M_k])^2`` with its gradient and Hessian in
+    ``(Re λ, Im λ)`` for a stack of searches, from one batched SVD (internal).
+
+    With ``X = [A - λI, M]`` and ``G = X X^H = (A - λI)(A - λI)^H + M M^H``, ``phi`` is the
+    smallest eigenvalue ``μ_0 = σ_0^2`` of ``G``, whose eigenvectors are the left singular
+    vectors ``u_j`` of ``X``.  Since ``∂G/∂x = 2x I - A - A^T`` and
+    ``∂G/∂y = 2y I + i(A - A^T)`` (``λ = x + iy``, ``A`` real), first-order perturbation
+    theory gives ``∇phi = 2 (λ - ρ)`` with the Rayleigh quotient ``ρ = u_0^H A u_0`` (written
+    as the complex number ``phi_x + i phi_y``), and second-order perturbation theory gives
+    ``H_ab = 2 δ_ab - 2 Re Σ_{j>0} conj(w_aj) w_bj / (μ_j - μ_0)`` with
+    ``w_aj = u_j^H (∂G/∂a) u_0``.  Where ``μ_0`` is repeated the Hessian is not finite.
+    """
+
+    __slots__ = ("sigma", "rho", "gradient", "hxx", "hxy", "hyy")
+
+    def __init__(self, A, M, lam, eye):
+        n = A.shape[1]
+        X = np.concatenate((A - lam[:, None, None] * eye, M), axis=2)
+        U, s, _ = np.linalg.svd(X, full_matrices=False)
+        self.sigma = s[:, n - 1]
+        u0 = U[:, :, n - 1:]                                  # (k, n, 1)
+        Au = A @ u0
+        ATu = np.swapaxes(A, 1, 2) @ u0
+        self.rho = np.sum(u0.conj() * Au, axis=(1, 2))
+        self.gradient = 2.0 * (lam - self.rho)
+        W = np.swapaxes(U[:, :, :n - 1].conj(), 1, 2) @ np.concatenate((Au + ATu, Au - ATu), 2)
+        wx, wy = -W[:, :, 0], 1j * W[:, :, 1]
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            gap = 1.0 / (s[:, :n - 1] ** 2 - s[:, n - 1:] ** 2)
+            self.hxx = 2.0 - 2.0 * np.sum((wx.real ** 2 + wx.imag ** 2) * gap, axis=1)
+            self.hyy = 2.0 - 2.0 * np.sum((wy.real ** 2 + wy.imag ** 2) * gap, axis=1)
+            self.hxy = -2.0 * np.sum((wx.conj() * wy).real * gap, axis=1)
+
+    def step(self, expand, radius):
+        """``(move, newton, predicted)``: proposed moves (complex), whether each is a Newton
+        move, and the decrease of ``phi`` that Newton's model predicts (0 otherwise).
+
+        Newton's move where the Hessian is positive definite (both curvatures above
+        ``_CURVATURE_FLOOR``); elsewhere the majorization move ``λ -> ρ`` stretched by
+        ``expand`` (1, 2, 4, ... while such moves keep being accepted), plus a move of length
+        ``radius`` along the direction of negative curvature when the gradient has no
+        component along it (a real ``λ`` whose minimum lies off the real axis), or in the
+        direction ``+i`` where the smallest singular value is repeated and the gradient
+        vanishes (no Hessian exists there).
+        """
+        a, b, c = self.hxx, self.hxy, self.hyy
+        gx, gy = self.gradient.real, self.gradient.imag
+        with np.errstate(invalid="ignore", over="ignore"):
+            half = 0.5 * (a - c)
+            root = np.hypot(half, b)
+            h_min = 0.5 * (a + c) - root
+            newton = np.isfinite(h_min) & (h_min > _CURVATURE_FLOOR)
+            det = np.where(newton, a * c - b * b, 1.0)
+            dx = np.where(newton, -(c * gx - b * gy) / det, 0.0)
+            dy = np.where(newton, -(a * gy - b * gx) / det, 0.0)
+        predicted = np.where(newton, -0.5 * (gx * dx + gy * dy), 0.0)
+        move = np.where(newton, dx + 1j * dy, -expand * self.gradient / 2.0)
+        flat = np.isfinite(h_min) & (h_min < 0.0)
+        if flat.any():
+            # Unit eigenvector of the smallest curvature, then a push along it where the
+            # gradient does not already point that way.
+            vx = np.where(half <= 0, root - half, b)
+            vy = np.where(half <= 0, -b, -(root + half))
+            vx, vy = np.where(b == 0, (half <= 0) * 1.0, vx), np.where(b == 0, (half > 0) * 1.0, vy)
+            norm = np.hypot(vx, vy)
+            vx, vy = vx / norm, vy / norm
+            gv = gx * vx + gy * vy
+            push = flat & (np.abs(gv) <= 1e-3 * radius)
+            if push.any():
+                sign = np.where(gv > 0, -1.0, np.where((gv == 0) & (vy < 0), -1.0, 1.0))
+                move = np.where(push, move + sign * radius * (vx + 1j * vy), move)
+        # A repeated smallest singular value (a cone point, no Hessian) with no usable
+        # gradient: step off it in the direction +i (toward the upper half-plane).
+        stuck = ~np.isfinite(h_min) & (np.abs(self.gradient) <= 1e-3 * radius)
+        if stuck.any():
+            move = np.where(stuck, move + 1j * radius, move)
+        return move, newton, predicted
+
+
+def _descend(searches: list[_Search]) -> list[tuple[float, complex]]:
+    """Run the local searches side by side; ``(sigma_min, λ)`` at the last accepted point.
+
+    Every iteration evaluates all the active searches in one batched SVD.  A proposed move
+    is accepted when it lowers ``phi``.  A rejected move is replaced by the plain
+    majorization move ``λ -> ρ``, which never increases ``phi``: with ``u_0`` fixed,
+    ``u_0^H G(μ) u_0 = u_0^H G(λ) u_0 - |λ - ρ|^2 + |μ - ρ|^2`` for every ``μ``, and
+    ``phi(μ)`` is at most this (the alternating minimization over ``u`` and ``λ`` of
+    ``||u^H [A - λI, M]||``).  Newton moves are capped by a trust length that is cut to a
+    quarter of a rejected move and doubled past an accepted one (Nocedal and Wright 2006,
+    ch. 4).  A search ends when a plain majorization move is rejected (possible only
+    through rounding), when a move is below ``1e-12`` relative to ``max(|λ|, radius)``,
+    when Newton's model predicts a gain in ``sigma_min`` below ``1e-10`` relative, when an
+    accepted move gains less than ``1e-13`` relative, or after ``_MAX_ITERATIONS``
+    evaluations.  The value returned for each search is the singular value computed at the
+    point returned.
+    """
+    k = len(searches)
+    n = searches[0].A.shape[0]
+    w = max(s.M.shape[1] for s in searches)
+    A = np.stack([s.A for s in searches])
+    M = np.zeros((k, n, w))
+    for j, s in enumerate(searches):
+        M[j, :, :s.M.shape[1]] = s.M
+    eye = np.eye(n)
+    lam = np.array([s.start for s in searches], dtype=complex)
+    radius = np.array([s.radius for s in searches])
+    ev = _Evaluation(A, M, lam, eye)
+    sigma, rho = ev.sigma.copy(), ev.rho.copy()
+    expand = np.ones(k)
+    move, newton, predicted = ev.step(expand, radius)
+    plain = np.zeros(k, dtype=bool)       # the pending move is the plain majorization move
+    trust = np.full(k, np.inf)            # longest Newton move, after a rejected one
+    active = np.ones(k, dtype=bool)
+    xtol = 1e-12 * np.maximum(np.abs(lam), radius)
+    for _ in range(_MAX_ITERATIONS):
+        active &= (np.abs(move) > xtol) & ~(newton & (predicted <= 2e-10 * sigma ** 2))
+        if not active.any():
+            break
+        idx = np.flatnonzero(active)
+        length = np.abs(move[idx])
+        cap = newton[idx] & (length > trust[idx])
+        move[idx[cap]] *= trust[idx[cap]] / length[cap]
+        trial = lam[idx] + move[idx]
+        te = _Evaluation(A[idx], M[idx], trial, eye)
+        accept = te.sigma < sigma[idx]
+        acc = idx[accept]
+        active[acc[te.sigma[accept] >= (1.0 - 1e-13) * sigma[acc]]] = False
+        lam[acc] = trial[accept]
+        sigma[acc] = te.sigma[accept]
+        rho[acc] = te.rho[accept]
+        expand[acc] = np.where(newton[acc] | plain[acc], 1.0, 2.0 * expand[acc])
+        grown = acc[newton[acc]]
+        trust[grown] = np.maximum(trust[grown], 2.0 * np.abs(move[grown]))
+        next_move, next_newton, next_predicted = te.step(expand[idx], radius[idx])
+        move[acc] = next_move[accept]
+        newton[acc] = next_newton[accept]
+        predicted[acc] = next_predicted[accept]
+        plain[acc] = False
+        # A rejected move falls back to the plain majorization move from the same point; a
+        # rejected plain majorization move ends the search.
+        rej = idx[~accept]
+        active[rej[plain[rej]]] = False
+        retry = rej[~plain[rej]]
+        trust[retry] = np.abs(move[retry]) / 4.0
+        move[retry] = rho[retry] - lam[retry]
+        plain[retry] = True
+        newton[retry] = False
+        predicted[retry] = 0.0
+        expand[retry] = 1.0
+    return [(float(sigma[j]), complex(lam[j])) for j in range(k)]
+
+
+def _scored_starts(A, M, values, known) -> list[tuple[float, complex]]:
+    """``(sigma_min, λ)`` at the distinct eigenvalues (upper half-plane), least first."""
+    if known is None:
+        starts = list(dict.fromkeys(_upper(lam) for lam in values))
+        scored = list(zip((float(v) for v in _smin_rows_many(A, M, starts)), starts))
+    else:
+        best: dict = {}
+        for value, lam in known:
+            lam = _upper(lam)
+            best[lam] = min(float(value), best.get(lam, math.inf))
+        scored = [(v, lam) for lam, v in best.items()]
+    scored.sort(key=lambda t: t[0])
+    return scored
+
+
+def _distances_of(problems) -> list[DistanceEstimate]:
+    """Distance estimates for ``(A, M, scale, values, kind, known)`` problems (internal).
+
+    ``sigma_min([A - λI, M]) / scale`` is evaluated at the distinct eigenvalues (or taken
+    from ``known``, pairs ``(sigma_min, λ)`` already evaluated on the same ``A, M``); the
+    lowest ones are refined by :func:`_descend`, all problems together.
+    """
+    results: list = [None] * len(problems)
+    searches, owners = [], []
+    prepared = []
+    for i, (A, M, scale, values, kind, known) in enumerate(problems):
+        n = A.shape[0]
+        if n == 0:
+            results[i] = DistanceEstimate(
+                math.inf, None, kind, "a model without states has no modes to lose.")
+            prepared.append(None)
+            continue
+        scale = float(scale)
+        if known is not None:
+            known = [(float(v) * scale, lam) for v, lam in known]
+        scored = _scored_starts(A, M, values, known)
+        best_value, best_at = scored[0]
+        if best_value / scale <= _ZERO_LEVEL:
+            method = (f"smallest singular value evaluated at the eigenvalues; it is at the "
+                      f"rounding level at {_short(best_at)}, so the model is numerically "
+                      f"{_ADJECTIVE[kind]} there and no search was needed")
+            results[i] = DistanceEstimate(float(best_value / scale), best_at, kind, method)
+            prepared.append(None)
+            continue
+        tried = [t for t in scored if t[0] <= _START_FACTOR * best_value][:_MAX_STARTS]
+        freq = float(np.linalg.norm(A)) / max(1, n)
+        for _, lam in tried:
+            radius = 0.05 * max(abs(lam), 0.1 * freq, 1e-300)
+            searches.append(_Search(A, M, lam, radius))
+            owners.append(i)
+        prepared.append((scale, kind, len(scored), len(tried), best_value, best_at))
+    if searches:
+        found = _descend(searches)
+        for i, (value, at) in zip(owners, found):
+            scale, kind, n_scored, n_tried, best_value, best_at = prepared[i]
+            if value < best_value:
+                best_value, best_at = value, at
+            prepared[i] = (scale, kind, n_scored, n_tried, best_value, best_at)
+    for i, item in enumerate(prepared):
+        if item is None:
+            continue
+        scale, kind, n_scored, n_tried, best_value, best_at = item
+        method = (f"smallest singular value evaluated at each of the {n_scored} distinct "
+                  f"eigenvalue(s) (up to conjugation), then refined from the {n_tried} lowest "
+                  f"(those within a factor {_START_FACTOR:g} of the least, at most "
+                  f"{_MAX_STARTS}) by a safeguarded Newton search in the complex plane; the "
+                  "value is a singular value computed at the point reported and the search is "
+                  "local, hence an upper bound on the true distance")
+        results[i] = DistanceEstimate(float(best_value / scale), best_at, kind, method)
+    return results
+
+
+def _distance(A, M, scale, values, kind: str, known=None) -> DistanceEstimate:
+    """Estimate ``min_λ sigma_min([A - λI, M]) / scale`` by local searches from eigenvalues.
+
+    ``known`` optionally gives ``(value, λ)`` pairs already evaluated exactly (the mode
+    table's margins, relative to ``scale``), which then replace the evaluations at the
+    eigenvalues.
+    """
+    return _distances_of([(A, M, scale, values, kind, known)])[0]
+
+
+def _short(lam: complex) -> str:
+    lam = complex(lam)
+    if lam.imag == 0:
+        return f"lambda = {lam.real:.4g}"
+    return f"lambda = {lam.real:.4g} {'+' if lam.imag > 0 else '-'} {abs(lam.imag):.4g}j"
+
+
+def _distances(p, modes=None) -> tuple[DistanceEstimate, DistanceEstimate]:
+    """Both distance estimates for a prepared model (internal).
+
+    ``modes`` (the mode table of the same model) lets the evaluations at the eigenvalues be
+    reused: a margin equals the distance function at its eigenvalue exactly when it was
+    computed on the whole model, which is the case for every mode when the model is
+    controllable (the controllable subspace is the whole space, with an orthonormal basis),
+    and for the uncontrollable modes otherwise (dually for observability).
+    """
+    n = p.model.n
+    if n == 0:
+        return (_distance(p.A, p.B_dec, p.scale, [], "uncontrollability"),
+                _distance(p.A, p.C_dec.T, p.scale, [], "unobservability"))
+    known_c = known_o = None
+    if modes is not None and len(modes) == n:
+        unc = [m for m in modes if not m.controllable]
+        known_c = [(m.controllability_margin, m.value) for m in (unc or modes)]
+        uno = [m for m in modes if not m.observable]
+        known_o = [(m.observability_margin, m.value) for m in (uno or modes)]
+        values = None
+    else:
+        nA = float(np.linalg.norm(p.A))
+        values = _clustered_eigenvalues(p.A, _CLUSTER_FACTOR * nA)
+    return tuple(_distances_of([
+        (p.A, p.B_dec, p.scale, values, "uncontrollability", known_c),
+        (p.A.T, p.C_dec.T, p.scale, values, "unobservability", known_o)]))
+
+
+def distance_to_uncontrollability(model) -> DistanceEstimate:
+    """Estimate how far the model is from the nearest uncontrollable model.
+
+    The distance (Eising 1984) is
+
+    .. math::
+
+        d_c = \\min_{\\lambda \\in \\mathbb{C}} \\sigma_{\\min}([A - \\lambda I,\\; B]),
+
+    the norm of the smallest perturbation ``[ΔA, ΔB]`` that makes the pair uncontrollable.
+    It is measured on the equilibrated, input-scaled model relative to its scale, like
+    every margin in plantcore (see :mod:`plantcore.structure.modes`).
+
+    Parameters
+    ----------
+    model : StateSpaceModel, python-control StateSpace, or tuple (A, B, C[, D])
+
+    Returns
+    -------
+    DistanceEstimate
+        ``value`` is an **estimate and an upper bound** on ``d_c`` (relative to the model's
+        scale); ``at`` is the point ``λ`` where it was found.
+
+    Notes
+    -----
+    How the estimate is found:
+
+    1. ``sigma_min([A - λI, B])`` is evaluated at every distinct eigenvalue of ``A`` (one
+       of each conjugate pair: the function is symmetric about the real axis for real
+       data); it is small there when a mode is nearly uncontrollable.  When the least of
+       these is at the rounding level (``1e3 eps`` relative) the model is numerically
+       uncontrollable and no search is made.
+    2. From the lowest of them (those within a factor 2 of the least, at most 3) local
+       searches minimize ``phi(λ) = sigma_min^2`` over the complex plane, side by side in
+       batched SVDs.  With ``u_0`` the left singular vector, ``∇phi = 2 (λ - ρ)`` where
+       ``ρ = u_0^H A u_0``, and the Hessian follows from second-order perturbation theory
+       of the smallest eigenvalue of ``(A - λI)(A - λI)^H + B B^H`` (Lancaster 1964), using
+       all left singular vectors of the same SVD.  Each step is a Newton step where the
+       Hessian is positive definite, capped by a trust length, and otherwise the move
+       ``λ -> ρ`` (lengthened while it keeps succeeding), which minimizes the majorizing
+       quadratic ``u_0^H G(μ) u_0`` and so never increases ``phi``; a move that does not
+       lower ``phi`` is replaced by ``λ -> ρ``.  At a real ``λ`` with negative curvature
+       across the real axis the search is pushed off the axis.  A search stops when
+       Newton's model predicts a relative gain below ``1e-10``, or after 30 evaluations.
+    3. The least value found is returned; it is a singular value computed at ``at``, so
+       ``d_c <= value`` always holds.  The searches are local and may miss a deeper
+       minimum away from the eigenvalues, so the value is an estimate of ``d_c``, not a
+       certificate of it.  Methods with a guaranteed global minimum exist (Gu 2000) but
+       cost ``O(n^4)`` or more.
+
+    A typical 20-state model costs about a dozen SVDs of ``n x (n + m)`` complex matrices
+    for both distances together.
+
+    References
+    ----------
+    .. [1] R. Eising, "Between controllable and uncontrollable", Systems & Control Letters
+       4(5), 263-264, 1984.
+    .. [2] P. Lancaster, "On eigenvalues of matrices dependent on a parameter", Numerische
+       Mathematik 6, 377-387, 1964.
+    .. [3] J. Nocedal and S. J. Wright, *Numerical Optimization*, 2nd ed., Springer, 2006
+       (trust regions, ch. 4).
+    .. [4] M. Gu, "New methods for estimating the distance to uncontrollability", SIAM J.
+       Matrix Analysis and Applications 21(3), 989-1003, 2000.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import plantcore as pc
+    >>> d = pc.structure.distance_to_uncontrollability(([[-1.0, 0.0], [0.0, -2.0]], [[1.0], [0.0]], [[1.0, 1.0]]))
+    >>> d.value < 1e-15
+    True
+    """
+    p = _prepare(model, None)
+    return _distances(p)[0]
+
+
+def distance_to_unobservability(model) -> DistanceEstimate:
+    """Estimate how far the model is from the nearest unobservable model.
+
+    The dual of :func:`distance_to_uncontrollability`:
+    ``min over λ of sigma_min([A - λI; C])``, relative to the model's scale, found the same
+    way and likewise an estimate and an upper bound.
+
+    Examples
+    --------
+    >>> import plantcore as pc
+    >>> d = pc.structure.distance_to_unobservability(([[-1.0]], [[1.0]], [[1.0]]))
+    >>> 0.0 < d.value <= 1.0
+    True
+    """
+    p = _prepare(model, None)
+    return _distances(p)[1]
