@@ -222,7 +222,7 @@ def collect_report(model, *, tol=None, order=None, max_error=None, source=None,
         bar.step("certifying the minimal realization")
         certificate, certificate_problem = None, ""
         try:
-            certificate = check_equivalence(model, minimal.model)
+            certificate = check_equivalence(model, minimal.model, reference_peak_gain=gain)
         except (ValueError, ArithmeticError) as exc:
             certificate_problem = f"the comparison could not be made: {exc}"
         bar.step("balanced truncation")
@@ -250,7 +250,7 @@ def collect_report(model, *, tol=None, order=None, max_error=None, source=None,
         reduced_certificate = None
         if reduction is not None:
             try:
-                reduced_certificate = check_equivalence(model, reduction.model)
+                reduced_certificate = check_equivalence(model, reduction.model, reference_peak_gain=gain)
             except (ValueError, ArithmeticError):
                 reduced_certificate = None
         bar.step("frequency responses")

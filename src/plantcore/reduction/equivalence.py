@@ -319,7 +319,8 @@ def _incomparable(a, b, tol, reasons) -> EquivalenceCertificate:
 
 # --- public function --------------------------------------------------------------------------
 
-def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False) -> EquivalenceCertificate:
+def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
+                      reference_peak_gain=None) -> EquivalenceCertificate:
     """Certify whether two models have the same transfer matrix.
 
     Parameters
@@ -339,6 +340,9 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False) -> Equiva
         and a rounded similarity transform of it are *not* exactly equal; for decimal data,
         give tuples of strings (``"0.1"``) or fractions.  Meant for small models (a few
         tens of states); models with symbols are refused.
+    reference_peak_gain : PeakGain, optional
+        ``peak_gain(a)`` when the caller has already computed it (a report compares one
+        model with several others); it is used as given, not recomputed.
 
     Returns
     -------
@@ -457,7 +461,7 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False) -> Equiva
         reasons.append(f"A minimal realization of the difference A - B has order {order}.")
 
     # Reference gain: the peak gain of a (its L-infinity norm).
-    ref_peak = peak_gain(ma)
+    ref_peak = peak_gain(ma) if reference_peak_gain is None else reference_peak_gain
     reference = ref_peak.value
     if math.isinf(reference) and math.isfinite(peak_error) and peak_error > 0:
         reference = _gain_near(ma, peak_frequency)

@@ -1,0 +1,53 @@
+"""What a report shows is computed once, in the analysis layer, and reused by the renderer."""
+
+import numpy as np
+import pytest
+
+import plantcore as pc
+from plantcore.analysis import report_contents
+from plantcore.reduction import equivalence
+from plantcore.reports.html import render_html
+
+# Two stable modes, the second one unobservable (its C entry is zero): minimal order 1.
+MODEL = ([[-1.0, 0.0], [0.0, -2.0]], [[1.0], [1.0]], [[1.0, 0.0]])
+
+
+def _refuse(*args, **kwargs):
+    raise AssertionError("recomputed")
+
+
+def test_the_model_peak_gain_is_computed_once_for_all_certificates(monkeypatch):
+    # collect_report computes the peak gain of the model itself and hands it to both
+    # certificates; inside check_equivalence it must then not be computed again.
+    monkeypatch.setattr(equivalence, "peak_gain", _refuse)
+    contents = report_contents.collect_report(MODEL, order=1, progress=False)
+    assert contents.certificate.equivalent
+    assert contents.certificate.reference_gain == pytest.approx(contents.peak_gain.value)
+    assert contents.reduced_certificate is not None
+
+
+def test_an_analysis_passed_in_is_not_repeated(monkeypatch, tmp_path):
+    analysis = pc.analyze(MODEL)
+    monkeypatch.setattr(report_contents, "analyze", _refuse)
+    written = pc.write_html_report(analysis, tmp_path / "r.html", progress=False)
+    assert written.contents.analysis is analysis
+    assert 'id="certificate"' in written.path.read_text(encoding="utf-8")
+    with pytest.raises(ValueError, match="tolerance"):
+        pc.write_html_report(analysis, tmp_path / "s.html", tol=1e-6, progress=False)
+
+
+def test_contents_are_rendered_as_they_are(tmp_path, monkeypatch):
+    contents = report_contents.collect_report(MODEL, progress=False)
+    # the renderer draws the sampled responses it is given and computes nothing itself
+    monkeypatch.setattr(report_contents, "collect_report", _refuse)
+    html = render_html(contents, progress=False)
+    assert html.startswith("<!DOCTYPE html>")
+    written = pc.write_html_report(contents, tmp_path / "c.html", progress=False)
+    assert written.contents is contents
+    labels = [r.label for r in contents.responses]
+    # the default rule truncates the 1-state minimal model (to order 0 or 1)
+    assert labels == ["original", "minimal", "reduced"]
+    assert [r.states for r in contents.responses][:2] == [2, 1]
+    for response in contents.responses:
+        assert response.singular_values.shape == (response.frequencies.size, 1)
+        assert np.all(np.isfinite(response.singular_values))
