@@ -27,7 +27,7 @@ def test_bench_core_runs_on_small_models(capsys):
     bench.main(["--sizes", "40", "80", "--io", "4x4", "--repeats", "5"])
     out = capsys.readouterr().out
     assert "WRONG ANSWERS" not in out
-    assert "time without the modal cross-check" in out
+    assert "time without the modal certificate" in out
     for target in ("minimal_realization <= 0.5 x tb01pd", "kalman_decomposition <= 1.0 x tb01pd",
                    "controllability_staircase <= 1.0 x ab01nd", "peak memory <= 12 n^2 doubles",
                    "backward error <= 100 n eps", "growth exponent <= 3.1"):
@@ -35,19 +35,20 @@ def test_bench_core_runs_on_small_models(capsys):
     assert "All answers" in out
 
 
-def test_crosscheck_switch_is_restored():
-    # The growth fit times the calls with the modal cross-check off; the switch must be
-    # put back afterwards, also when the call fails.
+def test_certificate_switch_is_restored():
+    # The benchmark times the calls with the modal certificate off; the switch must be put
+    # back afterwards, also when the call fails.
     bench = _load()
-    import plantcore.structure.crosscheck as crosscheck
-    before = crosscheck.MODAL_CHECK_MAX_STATES
+    import plantcore.structure.kalman as kalman_module
+
+    before = kalman_module.modal_certificate
     seen = []
 
     def boom():
-        seen.append(crosscheck.MODAL_CHECK_MAX_STATES)
+        seen.append(kalman_module.modal_certificate(None, None, None, scale=1.0, tol=1e-10))
         raise RuntimeError("x")
 
     with pytest.raises(RuntimeError):
-        bench.without_crosscheck(boom)()
-    assert seen == [0]
-    assert crosscheck.MODAL_CHECK_MAX_STATES == before
+        bench.without_certificate(boom)()
+    assert seen == [None]
+    assert kalman_module.modal_certificate is before

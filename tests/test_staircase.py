@@ -68,10 +68,11 @@ def test_decisions_are_recorded_with_margins():
     B = np.array([[1.0], [1.0], [0.0]])
     form = pc.controllability_staircase((A, B, np.eye(3)))
     assert form.rank == 2 and form.block_sizes == (1, 1)
-    steps = [d for d in form.decisions if not d.check_only]
+    steps = [d for d in form.decisions if not d.label.startswith("modal certificate")]
     assert len(steps) == 3  # two steps that gain rank, one that stops
-    check = form.decisions[-1]  # the modal cross-check: one certainly uncontrollable mode
-    assert check.check_only and check.rank == 2 and not check.conflict
+    check = form.decisions[-1]  # the modal certificate: one certainly uncontrollable mode
+    assert check.label.startswith("modal certificate") and check.rank == 2
+    assert not check.conflict and not check.fragile
     last = steps[-1]
     assert last.rank == 0 and last.smallest_kept == np.inf
     assert last.largest_dropped < 1e-15
@@ -105,8 +106,9 @@ def test_modal_cross_check_flags_a_confident_wrong_staircase():
     # A single input driving a 70-state controllable part of a dense random model, with 30
     # uncontrollable states, hidden by an orthogonal similarity: the staircase's Krylov-like
     # chain drifts and keeps rounding noise (slycot's ab01nd gives the same wrong answer).
-    # The left-eigenvector certificate ||w^H B|| / ||w|| (Hautus 1969) proves 30 modes
-    # uncontrollable, so the answer must be marked fragile, never presented as clear.
+    # The PBH measures sigma_min([A - lambda I, B]) at every eigenvalue (Hautus 1969)
+    # prove exactly 30 modes uncontrollable, so a staircase that keeps more must be marked
+    # fragile, never presented as clear.
     rng = np.random.default_rng(0)
     n = 100
     A = rng.standard_normal((n, n))
@@ -117,8 +119,8 @@ def test_modal_cross_check_flags_a_confident_wrong_staircase():
     form = pc.controllability_staircase((Q @ A @ Q.T, Q @ B, np.ones((1, n))))
     assert form.rank == 70 or form.fragile
     check = form.decisions[-1]
-    assert check.check_only and check.rank <= 70
-    assert check.conflict == (form.rank > 70)
+    assert check.label.startswith("modal certificate") and check.rank == 70
+    assert check.conflict == (form.rank != 70)
 
 
 def test_krylov_rank_fails_but_staircase_does_not():
@@ -186,7 +188,8 @@ def test_edge_cases():
     assert f.rank == 0
     zero_b = pc.StateSpaceModel(-np.eye(2), np.zeros((2, 1)), np.eye(2))
     f = pc.controllability_staircase(zero_b)
-    assert f.rank == 0 and len([d for d in f.decisions if not d.check_only]) == 1
+    assert f.rank == 0
+    assert len([d for d in f.decisions if not d.label.startswith("modal certificate")]) == 1
     one = pc.StateSpaceModel([[0.5]], [[2.0]], [[1.0]], dt=1.0)
     assert pc.observability_staircase(one).rank == 1
 

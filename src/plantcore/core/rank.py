@@ -1,4 +1,4 @@
-"""Rank decisions, their margins, the default tolerance, and equilibration.
+"""Rank decisions, their margins and the default tolerance.
 
 Every numerical rank that plantcore decides is decided from singular values (of a small
 block produced by orthogonal transformations, never of a Krylov matrix) and recorded as a
@@ -8,10 +8,11 @@ different tolerance would change the answer.
 
 Default tolerance
 -----------------
-Ranks are decided on the equilibrated model (see :func:`equilibrate`), with singular values
+Ranks are decided on the equilibrated model (see :mod:`plantcore.core.equilibration`), with singular values
 measured **relative to the model's scale** ``max(||A||_F, ||B||_F, ||C||_F)`` (after input and
-output columns/rows have been scaled to that size, see :func:`io_scaled`).  The default
-relative tolerance is :data:`DEFAULT_RELATIVE_TOLERANCE` ``= 3e-11``, chosen as follows:
+output columns/rows have been scaled to that size, see
+:func:`~plantcore.core.equilibration.io_scaled`).  The default
+relative tolerance is :data:`DEFAULT_RELATIVE_TOLERANCE` ``= 5e-11``, chosen as follows:
 
 * A model that went through a similarity transformation of condition number up to about
   ``1e3`` carries rounding noise near ``1e3 * eps ~ 2e-13`` relative.  Such noise must be
@@ -19,11 +20,12 @@ relative tolerance is :data:`DEFAULT_RELATIVE_TOLERANCE` ``= 3e-11``, chosen as 
 * Couplings of ``1e-8`` relative and above are real and must be kept, and not fragile:
   ``1e-8 >= 100 * tol`` requires ``tol <= 1e-10``.
 
-``3e-11`` lies between the two limits, a little closer to the noise side.  For large models
-the tolerance grows as ``max(3e-11, 20 * n * eps)`` so that the rounding of the
+``5e-11`` lies between the two limits (a factor 2.5 above the noise limit and 2 below the
+limit for real couplings).  For large models
+the tolerance grows as ``max(5e-11, 20 * n * eps)`` so that the rounding of the
 decomposition itself (``O(n eps)`` by the standard backward-error analysis of Householder
 transformations; Higham, *Accuracy and Stability of Numerical Algorithms*, 2002, ch. 19)
-stays below it; up to n = 6800 the first term rules.  A user tolerance ``tol`` is also
+stays below it; up to n = 11,000 the first term rules.  A user tolerance ``tol`` is also
 relative to the model's scale.
 """
 
@@ -65,10 +67,20 @@ class RankDecision:
         The relative tolerance used.
     conflict : bool
         True when this decision is a cross-check that contradicts another decision (see
-        :mod:`plantcore.structure.crosscheck`); the answer then depends on the method and is fragile.
+        :mod:`plantcore.structure.certificate`); the answer then depends on the method and is fragile.
     check_only : bool
         True for a one-sided cross-check: it decides nothing itself, so only a
         ``conflict`` (not its margins) makes it fragile.
+    window_outcome : str or None
+        ``None`` when the decision was not examined across the tolerance window.  Otherwise
+        the window ``[tolerance / 100, 100 tolerance]`` was examined by an independent
+        method (the modal certificate): ``""`` when the outcome (part sizes, minimal order)
+        is the same at every tolerance of the window, so a margin inside the window does
+        not make the decision fragile; else a sentence saying what changes inside it,
+        which makes it fragile.
+    superseded : bool
+        True when another method decided this outcome instead (the decision is kept in the
+        record, says what the staircase found, and makes nothing fragile).
     """
 
     label: str
@@ -79,6 +91,8 @@ class RankDecision:
     tolerance: float
     conflict: bool = False
     check_only: bool = False
+    window_outcome: str | None = None
+    superseded: bool = False
 
     @property
     def margin(self) -> float:
@@ -92,11 +106,18 @@ class RankDecision:
 
     @property
     def fragile(self) -> bool:
-        """True when a kept or dropped value lies within a factor 100 of the tolerance, or
-        when this cross-check contradicts the decision it checks."""
+        """True when the outcome depends on the tolerance: a kept or dropped value lies
+        within a factor 100 of the tolerance and the window was not shown to give the same
+        outcome (``window_outcome``), or a cross-check contradicts the decision it checks."""
+        if self.superseded:
+            return False
+        if self.conflict:
+            return True
+        if self.window_outcome is not None:
+            return bool(self.window_outcome)
         if self.check_only:
-            return self.conflict
-        return self.conflict or self.margin < FRAGILITY_FACTOR
+            return False
+        return self.margin < FRAGILITY_FACTOR
 
     def to_dict(self) -> dict:
         """JSON-safe dictionary (``inf`` becomes ``None``)."""
@@ -113,12 +134,20 @@ class RankDecision:
             "margin": safe(self.margin),
             "fragile": self.fragile,
             "conflict": self.conflict,
+            "window_outcome": self.window_outcome,
+            "superseded": self.superseded,
         }
 
     def describe(self) -> str:
         """One line for reports."""
         kept = "none" if not math.isfinite(self.smallest_kept) else f"{self.smallest_kept:.3g}"
         flag = "  CONFLICT" if self.conflict else ("  FRAGILE" if self.fragile else "")
+        if self.superseded:
+            flag = "  (superseded: another method decided)"
+        elif self.fragile and self.window_outcome:
+            flag += f" ({self.window_outcome})"
+        elif self.window_outcome == "" and self.margin < FRAGILITY_FACTOR:
+            flag = "  (near the tolerance, but the same outcome across the window)"
         return (f"{self.label}: rank {self.rank} of {self.size}; smallest kept {kept}, "
                 f"largest dropped {self.largest_dropped:.3g}, tolerance {self.tolerance:.3g}{flag}")
 

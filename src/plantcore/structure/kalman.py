@@ -22,6 +22,7 @@ final zero-pattern transformation share one prepared model and read best togethe
 from __future__ import annotations
 
 import dataclasses
+import math
 from dataclasses import dataclass, field
 from typing import NamedTuple
 
@@ -33,9 +34,11 @@ import warnings
 
 from plantcore.core.errors import AccuracyWarning, NumericalBreakdown
 from plantcore.core.model import StateSpaceModel, as_model
-from plantcore.structure.crosscheck import modal_decision, modal_measures
+from plantcore.structure.certificate import modal_certificate
+from plantcore.structure.reconcile import (certificate_decisions, confirm_window,
+                                           spectral_decomposition, supersede)
 from plantcore.structure.staircase_kernels import reduce_staircase
-from plantcore.core.rank import any_fragile, resolve_tolerance
+from plantcore.core.rank import RankDecision, any_fragile, resolve_tolerance
 from plantcore.core.equilibration import equilibrate, io_scaled
 from plantcore.structure.staircase import _input_gains, _scale_of
 
@@ -153,15 +156,13 @@ def _nested(p: _Prepared, *, keep_A: bool = True) -> _Nested:
 def _start(p: _Prepared, *, keep_A: bool):
     """The common start of the decomposition and the minimal realization (internal).
 
-    Returns the input and output gains of the decision scaling, the modal cross-check
-    measures (taken first: the staircases overwrite their input), and the two nested
-    staircases.
+    Returns the input and output gains of the decision scaling, the modal certificate
+    (taken first: the staircases overwrite their input), and the two nested staircases.
     """
     g_in = _input_gains(p.B, p.B_dec)
     g_out = _input_gains(p.C.T, p.C_dec.T)
-    measures = (modal_measures(p.A, p.B_dec, scale=p.scale, tol=p.tol, side="left"),
-                modal_measures(p.A, p.C_dec, scale=p.scale, tol=p.tol, side="right"))
-    return g_in, g_out, measures, _nested(p, keep_A=keep_A)
+    cert = modal_certificate(p.A, p.B_dec, p.C_dec, scale=p.scale, tol=p.tol)
+    return g_in, g_out, cert, _nested(p, keep_A=keep_A)
 
 
 @dataclass(frozen=True)
@@ -244,7 +245,7 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
     ----------
     model : StateSpaceModel, python-control StateSpace, or tuple (A, B, C[, D])
     tol : float, optional
-        Relative rank tolerance; default ``3e-11`` of the model's scale, as for
+        Relative rank tolerance; default ``5e-11`` of the model's scale, as for
         :func:`plantcore.controllability_staircase` (see :mod:`plantcore.core.rank`).
 
     Returns
@@ -311,10 +312,31 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
     >>> bool(np.allclose(kd.T @ kd.model.A @ kd.T_inv, A))
     True
     """
-    p = _prepare(model, tol)
+    return _decompose(_prepare(model, tol))
+
+
+def _decompose(p: _Prepared) -> KalmanDecomposition:
+    """The decomposition of a prepared model (internal; also used by the minimal
+    realization when the staircase and the certificate disagree)."""
+    try:
+        return _decomposition(p)
+    except NumericalBreakdown:
+        # the staircase's parts are (nearly) dependent; the certificate may still split
+        # the model spectrally
+        cert = modal_certificate(p.A, p.B_dec, p.C_dec, scale=p.scale, tol=p.tol)
+        spectral = spectral_decomposition(p.A, p.B, p.C, cert) if cert is not None else None
+        if spectral is None:
+            raise
+        record = (RankDecision("staircase: the four parts are (nearly) dependent", 0, 0,
+                               math.inf, 0.0, p.tol, superseded=True),)
+        return _from_spectral(p, spectral, record, cert, cert.sizes())
+
+
+def _decomposition(p: _Prepared) -> KalmanDecomposition:
+    """The decomposition from the staircases, checked against the modal certificate."""
     n = p.model.n
     m = p.model.n_inputs
-    g_in, g_out, (left_g, right_g), nest = _start(p, keep_A=True)
+    g_in, g_out, cert, nest = _start(p, keep_A=True)
     red1, red2, nc, n1 = nest.red1, nest.red2, nest.nc, nest.n1
     decisions_c = nest.decisions
     n2 = nc - n1
@@ -459,11 +481,12 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
     T_inv /= s[None, :]
     del T_e, Ti_e
     sizes = PartSizes(n1, n2, n3c, n4)
-    checks = [modal_decision(left_g, tol=p.tol, missing_found=n3c + n4,
-                             label="modal cross-check: modes not proven uncontrollable"),
-              modal_decision(right_g, tol=p.tol, missing_found=n2 + n4,
-                             label="modal cross-check: modes not proven unobservable")]
-    decisions = decisions + tuple(d for d in checks if d is not None)
+    decisions = confirm_window(decisions, cert, sizes)
+    if cert is not None and tuple(cert.sizes()) != tuple(sizes):
+        spectral = spectral_decomposition(p.A, p.B, p.C, cert)
+        if spectral is not None:
+            return _from_spectral(p, spectral, decisions, cert, sizes)
+    decisions = decisions + certificate_decisions(cert, sizes)
     if condition > _CONDITION_WARNING:
         warnings.warn(
             f"the Kalman transformation T has condition number {condition:.3g}: the parts are "
@@ -480,6 +503,26 @@ def kalman_decomposition(model, tol=None) -> KalmanDecomposition:
     del Az
     return KalmanDecomposition(new, T, T_inv, condition, sizes, decisions,
                                any_fragile(decisions), residual)
+
+
+def _from_spectral(p: _Prepared, spectral, decisions, cert, staircase_sizes):
+    """The decomposition the modal certificate supports, built from spectral subspaces
+    (see :mod:`plantcore.structure.reconcile`); the staircase's decisions stay in the
+    record as superseded."""
+    s = p.s
+    T = spectral.T * s[:, None]
+    T_inv = spectral.T_inv / s[None, :]
+    sizes = PartSizes(*spectral.sizes)
+    decisions = supersede(decisions) + certificate_decisions(cert, staircase_sizes,
+                                                             decided=True)
+    n = p.model.n
+    states = tuple(f"z{i + 1}" for i in range(n))
+    new = StateSpaceModel(spectral.A, spectral.B, spectral.C, p.model.D, p.model.dt,
+                          states=states, inputs=p.model.inputs, outputs=p.model.outputs,
+                          name=p.model.name)
+    condition = float(np.linalg.cond(spectral.T))
+    return KalmanDecomposition(new, T, T_inv, condition, sizes, decisions,
+                               any_fragile(decisions), spectral.zeroed)
 
 
 class _Part4(NamedTuple):

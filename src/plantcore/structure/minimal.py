@@ -6,10 +6,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from plantcore.structure.crosscheck import modal_decision
-from plantcore.structure.kalman import _prepare, _start
 from plantcore.core.model import StateSpaceModel
 from plantcore.core.rank import any_fragile
+from plantcore.core.errors import NumericalBreakdown
+from plantcore.structure.kalman import _decompose, _prepare, _start
+from plantcore.structure.reconcile import certificate_decisions, confirm_window
 
 __all__ = ["MinimalRealization", "minimal_realization"]
 
@@ -53,7 +54,7 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
     ----------
     model : StateSpaceModel, python-control StateSpace, or tuple (A, B, C[, D])
     tol : float, optional
-        Relative rank tolerance; default ``3e-11`` of the model's scale (see
+        Relative rank tolerance; default ``5e-11`` of the model's scale (see
         :mod:`plantcore.core.rank`).
 
     Returns
@@ -92,15 +93,22 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
     p = _prepare(model, tol)
     n = p.model.n
     m = p.model.n_inputs
-    g_in, g_out, (left_g, right_g), nest = _start(p, keep_A=False)
+    g_in, g_out, cert, nest = _start(p, keep_A=False)
     red1, red2, nc, r = nest.red1, nest.red2, nest.nc, nest.n1
-    # Certainly uncontrollable modes must be among the n - nc removed as uncontrollable;
-    # certainly unobservable modes among all n - r removed.
-    checks = [modal_decision(left_g, tol=p.tol, missing_found=n - nc,
-                             label="modal cross-check: modes not proven uncontrollable"),
-              modal_decision(right_g, tol=p.tol, missing_found=n - r,
-                             label="modal cross-check: modes not proven unobservable")]
-    decisions = tuple(nest.decisions) + tuple(d for d in checks if d is not None)
+    decisions = tuple(nest.decisions)
+    if cert is not None:
+        # The same counts as the Kalman decomposition: the minimal order and the number of
+        # uncontrollable states must both agree with the certificate; when they do not, the
+        # decomposition reconciles the two (and the minimal model is its first part).
+        found = cert.sizes()
+        staircase_like = (r, nc - r, found[2], found[3])
+        if (found[0], found[2] + found[3]) != (r, n - nc):
+            try:
+                return _minimal_from_decomposition(_decompose(p), p.s)
+            except NumericalBreakdown:
+                staircase_like = (r, nc - r, n - nc, 0)   # conflict recorded below
+        decisions = confirm_window(decisions, cert, staircase_like)
+        decisions = decisions + certificate_decisions(cert, staircase_like)
     # The minimal model is the leading block of the second staircase, in the coordinates
     # W1 = U1 diag(Z, I) (or Z alone when everything is controllable); only the r kept
     # columns of W1 are formed, by applying the recorded reflectors to [Z_r; 0].

@@ -20,10 +20,10 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from plantcore.structure.staircase_kernels import reduce_staircase
-from plantcore.structure.crosscheck import modal_decision, modal_measures
+from plantcore.structure.certificate import modal_certificate
 from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.core.equilibration import Equilibration, equilibrate, io_scaled
-from plantcore.core.rank import any_fragile, resolve_tolerance
+from plantcore.core.rank import FRAGILITY_FACTOR, RankDecision, any_fragile, resolve_tolerance
 
 __all__ = ["StaircaseForm", "controllability_staircase", "observability_staircase"]
 
@@ -131,18 +131,39 @@ def _controllability(model, tol, label="controllability"):
     B_s, _ = io_scaled(B_e, C_e, scale)
     g = _input_gains(B_e, B_s)
     del B_e
-    # modal cross-check measures, taken before the staircase overwrites A_e
-    measures = modal_measures(A_e, B_s, scale=scale, tol=tol, side="left")
+    # the modal certificate (controllability side only), before the staircase overwrites A_e
+    cert = modal_certificate(A_e, B_s, np.zeros((0, model.n)), scale=scale, tol=tol)
     red = reduce_staircase(A_e, B_s, C_e, scale=scale, tol=tol, label=label)
     del A_e, C_e, B_s
     U = red.form_U()
     red.transforms.clear()
     B_t = red.B / g[None, :]  # back to the user's input units (exact: powers of two)
-    check = modal_decision(measures, tol=tol, missing_found=model.n - int(sum(red.blocks)),
-                           label="modal cross-check: modes not proven "
-                                 + ("uncontrollable" if label == "controllability" else "unobservable"))
-    decisions = tuple(red.decisions) + ((check,) if check is not None else ())
+    decisions = tuple(red.decisions) + _certificate_check(cert, int(sum(red.blocks)), label)
     return model, eq, red.A, B_t, red.C, U, red.blocks, decisions
+
+
+def _certificate_check(cert, rank: int, label: str) -> tuple:
+    """The certificate's count of modes not uncontrollable, against the staircase's rank:
+    a conflict when they differ (the staircase form is returned as found); the window is
+    examined as in :func:`plantcore.structure.reconcile.certificate_decisions`."""
+    if cert is None:
+        return ()
+    n = cert.n
+    t = cert.tolerance
+    counts = {x: n - int(cert.uncontrollable_copies(x).sum())
+              for x in (t / FRAGILITY_FACTOR, t, t * FRAGILITY_FACTOR)}
+    outcome = ""
+    if len(set(counts.values())) > 1:
+        outcome = "inside the window the rank changes: " + ", ".join(
+            f"{r} at {x:.2g}" for x, r in counts.items())
+    conflict = counts[t] != rank
+    if conflict:
+        outcome = (f"the staircase gives rank {rank}, the PBH measures {counts[t]}"
+                   + (f"; {outcome}" if outcome else ""))
+    kept, dropped = cert.counts_summary("c")
+    word = "uncontrollable" if label == "controllability" else "unobservable"
+    return (RankDecision(f"modal certificate: modes not {word}", counts[t], n, kept, dropped,
+                         t, conflict=conflict, check_only=True, window_outcome=outcome),)
 
 
 def _form(model, eq, A_t, B_t, C_t, U, blocks, decisions, kind) -> StaircaseForm:
@@ -165,7 +186,7 @@ def controllability_staircase(model, tol=None) -> StaircaseForm:
     model : StateSpaceModel, python-control StateSpace, or tuple (A, B, C[, D])
     tol : float, optional
         Relative rank tolerance; default :data:`plantcore.core.rank.DEFAULT_RELATIVE_TOLERANCE`
-        (``3e-11``, growing as ``20 n eps`` for very large n).  Singular values are measured
+        (``5e-11``, growing as ``20 n eps`` for very large n).  Singular values are measured
         relative to ``max(||A||_F, column norms of B, row norms of C)`` of the equilibrated
         model, after each input column has been rescaled by a power of two to that size
         (input units do not change controllability).  See :mod:`plantcore.core.rank` for the

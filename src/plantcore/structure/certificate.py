@@ -1,0 +1,618 @@
+r"""The modal certificate: PBH measures at every eigenvalue, at every size.
+
+The staircase algorithms decide ranks step by step, and a long chain of small subdiagonal
+blocks (many states driven through few inputs) can make rounding noise of ``eps ||A||``
+reappear as a "coupling" many orders of magnitude larger (C. C. Paige, "Properties of
+numerical algorithms related to computing controllability", IEEE Trans. Automatic Control
+26(1), 130-138, 1981).  The certificate is an independent second method: for every cluster
+of computed eigenvalues ``lambda`` it gives the PBH measures
+
+.. math::
+
+    c(\lambda) = \sigma_{\min}([A - \lambda I,\; B]) / s, \qquad
+    o(\lambda) = \sigma_{\min}([A - \lambda I;\; C]) / s,
+
+(M. L. J. Hautus, "Controllability and observability conditions of linear autonomous
+systems", Proc. KNAW A 72, 1969), with ``s`` the model's scale; ``c(lambda)`` is the size of
+the smallest perturbation of ``[A, B]`` that makes ``lambda`` an uncontrollable eigenvalue
+(R. Eising, "Between controllable and uncontrollable", Systems & Control Letters 4(5),
+263-264, 1984).  A mode is certainly uncontrollable at the tolerance when ``c <= tol``.
+
+Method
+------
+Two tiers, so that the cost stays ``O(n^3)`` for the models people bring and the answer
+stays right for the hard ones:
+
+1. *Eigenvector tier, every eigenvalue.*  One eigendecomposition with left and right
+   eigenvectors (LAPACK ``geev``).  For a left eigenvector ``w`` (``||w|| = 1``),
+   ``w^H [A - lambda I, B] = [r, w^H B]`` with ``r`` the rounding residual, so
+   ``||w^H B|| + n eps`` is an upper figure for ``c``.  A lower figure comes from the
+   first-order decoupling of ``lambda`` from the rest of the spectrum: with the eigenvalue
+   condition numbers ``kappa = 1 / |w^H v|`` and the estimated separation
+   ``g = min_j |lambda - lambda_j| / max(kappa, kappa_j)`` from the nearest other
+   eigenvalues, ``c >= ||w^H B|| min(1, g) / 2`` up to second-order terms
+   (Bavely and Stewart's block diagonalization argument: C. A. Bavely and G. W. Stewart,
+   "An algorithm for computing reducing subspaces by block diagonalization", SIAM J.
+   Numer. Anal. 16(2), 359-367, 1979).  The dual with right eigenvectors and ``C`` gives
+   ``o``.
+2. *Measured tier, where the eigenvectors cannot decide.*  Every cluster whose interval
+   ``[lower, upper]`` meets the decision window ``[tol / 100, 100 tol]``, and every cluster
+   of several eigenvalues, is measured directly on the Schur form ``A = Q T Q^H``:
+   ``[T - lambda I, Q^H B]`` has the singular values of ``[A - lambda I, B]``, and one
+   triangular-pentagonal QR (LAPACK ``?tpqrt``) turns it into an ``n x n`` triangle with the
+   same singular values in ``O(n^2 m)``; a few steps of inverse iteration give its smallest
+   singular values (an upper bound that is tight in practice).  The Schur form is computed
+   only when some cluster needs it.
+3. *Clusters.*  Eigenvalues within each other's error discs are one cluster: the disc of a
+   computed eigenvalue has a radius of ``1e3 kappa eps ||A||``, its first-order error
+   (J. H. Wilkinson, *The Algebraic Eigenvalue Problem*, 1965, chapter 2) with room for the
+   higher-order terms that rule near a defective eigenvalue, at least
+   ``1e3 eps ||A||``; the scattered copies of a defective eigenvalue of multiplicity ``k``
+   (a ring of radius ``eps^(1/k) ||A||``) are ill conditioned in just that proportion, so
+   they link up, while a group is never let grow wider than such a ring (see
+   :func:`_clusters`), so distinct ill-conditioned eigenvalues stay apart.  For a cluster of ``k`` copies the
+   number of uncontrollable copies is the algebraic multiplicity of ``lambda`` as an
+   input-decoupling zero: the cluster is moved to the bottom of the real Schur form
+   (``?trsen``; G. H. Golub and C. F. Van Loan, *Matrix Computations*, 4th ed., 2013,
+   section 7.6), and the count is read from the singular values of the ``k``-fold block
+   Toeplitz matrix of the pencil ``[T_22 - lambda I, B_2]`` of that block (its left kernel
+   has dimension ``sum_i min(k, nu_i)``, the partial multiplicities ``nu_i``).
+
+How it can fail: measures are taken at the computed eigenvalues.  For hypersensitive
+spectra (strongly non-normal chains) the computed eigenvalues can lie far from the
+uncontrollable ones; the margins then fall inside the decision window, and the answer is
+marked fragile rather than certified.  The measured tier costs ``O(n^2 m)`` per cluster
+with a memory-bound constant (about 10 ms for a real and 100 ms for a complex eigenvalue at
+n = 2000), so strongly non-normal large models, where most clusters need it, are slow.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.linalg
+import scipy.sparse
+from scipy.linalg import blas, lapack
+from scipy.sparse.csgraph import connected_components
+from scipy.spatial import cKDTree
+
+from plantcore.core.rank import FRAGILITY_FACTOR
+
+__all__ = ["ModalCertificate", "modal_certificate"]
+
+_EPS = np.finfo(float).eps
+_CLUSTER_FACTOR = _EPS ** (1.0 / 3.0)
+_REPEATED_RADIUS = 1e3 * _EPS    # exactly repeated, well-conditioned eigenvalues
+_ERROR_FACTOR = 1e3              # error disc of a computed eigenvalue: 1e3 kappa eps ||A||
+_INVERSE_STEPS = 4
+_TOEPLITZ_MAX = 24          # larger clusters fall back to a small staircase
+_MAX_CLUSTER = 12           # copies of one eigenvalue grouped at most (see _clusters)
+
+
+@dataclass(frozen=True)
+class ModalCertificate:
+    """PBH measures per cluster of eigenvalues (every array: one entry per cluster).
+
+    Attributes
+    ----------
+    eigenvalues : (k,) complex ndarray
+        Cluster representatives (the mean of the cluster's computed eigenvalues).
+    multiplicities : (k,) int ndarray
+        Computed eigenvalues in each cluster (they sum to ``n``).
+    controllability, observability : (k,) ndarray
+        Best figure of ``sigma_min([A - lambda I, B]) / scale`` (``[A - lambda I; C]``):
+        measured where ``*_measured`` is True, else the eigenvector upper figure.
+    controllability_lower, observability_lower : (k,) ndarray
+        A lower figure: equal to the measure where measured, else the first-order
+        decoupling bound of the module notes.
+    controllability_measured, observability_measured : (k,) bool ndarray
+        Where the measured tier was used.
+    tolerance, scale : float
+        The relative tolerance and the model scale the measures are divided by.
+    """
+
+    eigenvalues: np.ndarray = field(repr=False)
+    multiplicities: np.ndarray = field(repr=False)
+    controllability: np.ndarray = field(repr=False)
+    observability: np.ndarray = field(repr=False)
+    controllability_lower: np.ndarray = field(repr=False)
+    observability_lower: np.ndarray = field(repr=False)
+    controllability_measured: np.ndarray = field(repr=False)
+    observability_measured: np.ndarray = field(repr=False)
+    tolerance: float
+    scale: float
+    _copies_c: tuple = field(repr=False, default=())
+    _copies_o: tuple = field(repr=False, default=())
+    _local_both: dict = field(repr=False, default_factory=dict)
+
+    @property
+    def n(self) -> int:
+        return int(self.multiplicities.sum())
+
+    def _count(self, side: str, t: float) -> np.ndarray:
+        up = self.controllability if side == "c" else self.observability
+        low = self.controllability_lower if side == "c" else self.observability_lower
+        copies = self._copies_c if side == "c" else self._copies_o
+        out = np.zeros(self.multiplicities.size, dtype=int)
+        for i in range(out.size):
+            if low[i] > t or up[i] > t:
+                continue          # (an unmeasured cluster is only ever asked inside its bounds)
+            values = copies[i] if copies and copies[i] is not None else np.array([up[i]])
+            out[i] = max(1, int(np.count_nonzero(values <= t)))
+        return np.minimum(out, self.multiplicities)
+
+    def uncontrollable_copies(self, t: float | None = None) -> np.ndarray:
+        """Copies of each cluster that are uncontrollable at the tolerance ``t``."""
+        return self._count("c", self.tolerance if t is None else t)
+
+    def unobservable_copies(self, t: float | None = None) -> np.ndarray:
+        """Copies of each cluster that are unobservable at the tolerance ``t``."""
+        return self._count("o", self.tolerance if t is None else t)
+
+    def sizes(self, t: float | None = None) -> tuple:
+        """The four Kalman part sizes the certificate implies at the tolerance ``t``:
+        (controllable and observable, controllable unobservable, uncontrollable observable,
+        uncontrollable and unobservable)."""
+        k = self.multiplicities
+        u, v = self.uncontrollable_copies(t), self.unobservable_copies(t)
+        # Copies that are both uncontrollable and unobservable: the smaller count where a
+        # whole cluster is in one part; for a cluster shared between parts, the split from
+        # the cluster's own decoupled block (see _local_split), when it agrees with the
+        # counts, else the counts taken as disjoint where they fit.
+        both = np.where((u == k) | (v == k), np.minimum(u, v), np.maximum(0, u + v - k))
+        for c, value in self._local_both.items():
+            if 0 < u[c] < k[c] or 0 < v[c] < k[c]:
+                both[c] = min(value, u[c], v[c])
+        n4 = int(both.sum())
+        n3 = int((u - both).sum())
+        n2 = int((v - both).sum())
+        return (int(k.sum()) - n2 - n3 - n4, n2, n3, n4)
+
+    def shared_clusters(self, t: float | None = None) -> np.ndarray:
+        """Clusters whose copies lie in more than one part (not a spectral split)."""
+        k = self.multiplicities
+        u, v = self.uncontrollable_copies(t), self.unobservable_copies(t)
+        return ((u > 0) & (u < k)) | ((v > 0) & (v < k))
+
+    def window_sizes(self) -> dict:
+        """Part sizes at the ends of the decision window and at the tolerance itself."""
+        t = self.tolerance
+        return {t / FRAGILITY_FACTOR: self.sizes(t / FRAGILITY_FACTOR), t: self.sizes(t),
+                t * FRAGILITY_FACTOR: self.sizes(t * FRAGILITY_FACTOR)}
+
+    def counts_summary(self, side: str) -> tuple[float, float]:
+        """(smallest figure kept, largest figure dropped) at the tolerance, copy by copy,
+        for the decision record of one side."""
+        t = self.tolerance
+        up = self.controllability if side == "c" else self.observability
+        low = self.controllability_lower if side == "c" else self.observability_lower
+        copies = self._copies_c if side == "c" else self._copies_o
+        kept, dropped = [math.inf], [0.0]
+        for i in range(self.multiplicities.size):
+            values = copies[i] if copies and copies[i] is not None else None
+            if values is None:
+                (dropped if up[i] <= t else kept).append(float(up[i] if up[i] <= t else low[i]))
+                continue
+            below = values[values <= t]
+            above = values[values > t]
+            if below.size:
+                dropped.append(float(below.max()))
+            if above.size:
+                kept.append(float(above.min()))
+        return min(kept), max(dropped)
+
+
+# --- building blocks ---------------------------------------------------------------------
+
+def _clusters(values: np.ndarray, radii: np.ndarray, base: float) -> np.ndarray:
+    """Groups of eigenvalues that are computed copies of one eigenvalue (labels).
+
+    Two eigenvalues can belong together only when each lies within the other's error
+    disc (``|lambda_i - lambda_j| <= 2 min(r_i, r_j)``): both must be ill conditioned in
+    proportion to their distance, as the scattered copies of one eigenvalue are.  A group of ``k`` copies of a defective
+    eigenvalue scatters over a ring of diameter at most ``b_k = 2 (n eps)^(1/k) base``; so
+    for ``k`` from 2 up to :data:`_MAX_CLUSTER`, the connected groups at the distance
+    ``b_k`` (over such pairs, among the eigenvalues not yet grouped) are accepted when a
+    group of ``s`` members fits its own ring, ``diameter <= b_s``, with
+    ``2 <= s <= _MAX_CLUSTER``.  Tight groups are found first and never merged later, so
+    two nearby defective eigenvalues stay two groups, and distinct, merely ill-conditioned
+    eigenvalues do not chain into one large group.
+    """
+    n = values.size
+    labels = np.arange(n)
+    if n < 2:
+        return labels
+    points = np.column_stack([values.real, values.imag])
+    tree = cKDTree(points)
+    bound = {k: 2.0 * (n * _EPS) ** (1.0 / k) * base for k in range(2, _MAX_CLUSTER + 1)}
+    pairs = tree.query_pairs(bound[_MAX_CLUSTER], output_type="ndarray").reshape(-1, 2)
+    if not pairs.size:
+        return labels
+    dist = np.abs(values[pairs[:, 0]] - values[pairs[:, 1]])
+    keep = dist <= 2.0 * np.minimum(radii[pairs[:, 0]], radii[pairs[:, 1]])
+    pairs, dist = pairs[keep], dist[keep]
+    free = np.ones(n, dtype=bool)
+    for k in range(2, _MAX_CLUSTER + 1):
+        use = (dist <= bound[k]) & free[pairs[:, 0]] & free[pairs[:, 1]]
+        if not np.any(use):
+            continue
+        graph = scipy.sparse.coo_matrix((np.ones(int(use.sum())),
+                                         (pairs[use, 0], pairs[use, 1])), shape=(n, n))
+        _, comp = connected_components(graph, directed=False)
+        for c in np.unique(comp[pairs[use, 0]]):
+            group = np.nonzero(comp == c)[0]
+            s = group.size
+            if not 2 <= s <= _MAX_CLUSTER:
+                continue
+            z = values[group]
+            if float(np.abs(z[:, None] - z[None, :]).max()) <= bound[s]:
+                labels[group] = group[0]
+                free[group] = False
+    return np.unique(labels, return_inverse=True)[1]
+
+
+def _separation(values: np.ndarray, labels: np.ndarray, kappa: np.ndarray) -> np.ndarray:
+    """A first-order estimate of how well each eigenvalue is separated from the others of
+    other clusters: ``min_j |lambda_i - lambda_j| / max(kappa_i, kappa_j)`` over its nearest
+    neighbours.  Dividing by the neighbours' condition numbers too matters near a defective
+    eigenvalue: the scattered copies of a Jordan block are far apart but ill conditioned,
+    and the block is nearly singular much closer to them than their distance says."""
+    n = values.size
+    if n < 2:
+        return np.full(n, math.inf)
+    points = np.column_stack([values.real, values.imag])
+    k = min(n, 9)
+    dist, idx = cKDTree(points).query(points, k=k)
+    dist, idx = np.atleast_2d(dist), np.atleast_2d(idx)
+    out = np.full(n, math.inf)
+    for j in range(1, k):
+        other = labels[idx[:, j]] != labels
+        estimate = dist[:, j] / np.maximum(kappa, kappa[idx[:, j]])
+        out = np.where(other & (estimate < out), estimate, out)
+    return out
+
+
+def _smallest_singular_values(top, bottom, k: int) -> np.ndarray:
+    """Upper bounds on the ``k`` smallest singular values of ``[top; bottom]``.
+
+    ``top`` (n x n, upper triangular, Fortran order) is overwritten.  ``?tpqrt`` gives the
+    triangle ``R`` with the same singular values; block inverse iteration on ``R^H R`` (two
+    triangular solves per step) and Rayleigh-Ritz on ``R X`` give values that bound the
+    ``k`` smallest singular values from above (Courant-Fischer).
+    """
+    n = top.shape[0]
+    cplx = np.iscomplexobj(top)
+    tpqrt = lapack.ztpqrt if cplx else lapack.dtpqrt
+    trmm = blas.ztrmm if cplx else blas.dtrmm
+    R, _, _, info = tpqrt(0, max(1, min(32, n)), top, np.array(bottom, order="F"),
+                          overwrite_a=1, overwrite_b=1)
+    if info != 0:   # pragma: no cover - LAPACK argument error
+        raise np.linalg.LinAlgError(f"?tpqrt failed (info={info})")
+    d = R.diagonal().copy()
+    big = float(np.abs(R[0, :]).max() + np.abs(d).max()) + 1e-300
+    floor = 1e-3 * _EPS * big              # keeps an exactly singular triangle solvable
+    small = np.abs(d) < floor
+    idx = np.nonzero(small)[0]
+    R[idx, idx] = floor
+    width = min(n, k + (1 if k > 1 else 0))
+    rng = np.random.default_rng(20240917)
+    X = rng.standard_normal((n, width))
+    if cplx:
+        X = X + 1j * rng.standard_normal((n, width))
+    with np.errstate(over="ignore", invalid="ignore"):
+        for _ in range(_INVERSE_STEPS):
+            X = scipy.linalg.solve_triangular(R, X, trans="C", check_finite=False)
+            X /= np.maximum(np.linalg.norm(X, axis=0), 1e-300)
+            X = scipy.linalg.solve_triangular(R, X, check_finite=False)
+            if not np.all(np.isfinite(X)):
+                break
+            X, _ = np.linalg.qr(X)
+    if not np.all(np.isfinite(X)):
+        # the triangle is singular to working precision at several pivots: its smallest
+        # singular values are at rounding level
+        return np.full(k, floor)
+    Y = trmm(1.0, R, X)
+    if idx.size:                            # the true triangle for the bound
+        Y[idx, :] -= (floor - d[idx])[:, None] * X[idx, :]
+    return np.linalg.svd(Y, compute_uv=False)[::-1][:k]
+
+
+def _decoupling_zero_values(A, B, lam, alpha: float) -> np.ndarray:
+    """Singular values (ascending) whose count below a threshold is the algebraic number of
+    uncontrollable copies of ``lam`` in the small pair ``(A, B)`` (k x k, k x m).
+
+    The k-fold block bidiagonal Toeplitz matrix with ``[A - lam I, B]`` on the diagonal and
+    ``alpha [-I, 0]`` below it (``alpha`` the model scale, so that both kinds of block have
+    the same size) has a left kernel of dimension ``sum_i min(k, nu_i)``, the
+    algebraic multiplicity of ``lam`` as an input-decoupling zero (the pencil
+    ``[A - s I, B]`` has no left minimal indices); one SVD reads it off.  Clusters larger
+    than :data:`_TOEPLITZ_MAX` use the singular values of an orthogonal staircase instead
+    (P. Van Dooren, "The generalized eigenstructure problem in linear system theory", IEEE
+    Trans. Automatic Control 26(1), 111-129, 1981).
+    """
+    k, m = A.shape[0], B.shape[1]
+    if k > _TOEPLITZ_MAX:
+        return _staircase_values(A - lam * np.eye(k), B)
+    width = k + m
+    P0 = np.hstack([A - lam * np.eye(k), B])
+    E = np.hstack([-alpha * np.eye(k), np.zeros((k, m))])
+    M = np.zeros((k * k, k * width), dtype=np.result_type(P0, complex))
+    for i in range(k):
+        M[i * k:(i + 1) * k, i * width:(i + 1) * width] = P0
+        if i + 1 < k:
+            M[(i + 1) * k:(i + 2) * k, i * width:(i + 1) * width] = E
+    return np.sort(np.linalg.svd(M, compute_uv=False))[:k]
+
+
+def _staircase_values(A, B) -> np.ndarray:
+    """For a large cluster: the singular values the controllability staircase of a small
+    pair leaves out, padded with the steps' smallest kept values (ascending, k entries)."""
+    A = np.array(A, dtype=complex)
+    k = A.shape[0]
+    X = np.array(B, dtype=complex)
+    done, values = 0, []
+    while done < k and X.size:
+        U, s, _ = np.linalg.svd(X)
+        r = int(np.count_nonzero(s > 1e-6 * (s[0] if s.size else 1.0)))
+        values.extend(s[r:].tolist())
+        if r == 0:
+            break
+        sl = slice(done, k)
+        A[sl, :] = U.conj().T @ A[sl, :]
+        A[:, sl] = A[:, sl] @ U
+        X = A[done + r:, done:done + r]
+        done += r
+    values.extend([0.0] * (k - done - len(values)))
+    return np.sort(np.asarray(values[:k] + [math.inf] * max(0, k - len(values))))
+
+
+class _Schur:
+    """The real Schur form of ``A`` and, lazily, its complex form (internal)."""
+
+    def __init__(self, A):
+        self.T, self.Q = scipy.linalg.schur(A, output="real")
+        self._complex = None
+
+    @property
+    def complex(self):
+        if self._complex is None:
+            self._complex = scipy.linalg.rsf2csf(self.T, self.Q)
+        return self._complex
+
+    def eigenvalues(self) -> np.ndarray:
+        T = self.T
+        ev = np.diag(T).astype(complex)
+        for i in np.nonzero(np.diag(T, -1))[0]:
+            a, b, c, d = T[i, i], T[i, i + 1], T[i + 1, i], T[i + 1, i + 1]
+            im = math.sqrt(abs(b * c)) if b * c < 0 else 0.0
+            ev[i], ev[i + 1] = complex((a + d) / 2, im), complex((a + d) / 2, -im)
+        return ev
+
+
+def _measure(schur: _Schur, X, lam: complex, side: str, k: int) -> np.ndarray:
+    """The ``k`` smallest singular values of ``[A - lam I, B]`` (side "c", ``X = B``) or
+    ``[A - lam I; C]`` (side "o", ``X = C``), measured on the Schur form."""
+    real = lam.imag == 0.0 and not np.any(np.diag(schur.T, -1))
+    if real:
+        T, Q = schur.T, schur.Q
+    else:
+        T, Q = schur.complex
+    n = T.shape[0]
+    if side == "c":
+        top = np.array(np.conj(T.T[::-1, ::-1]), order="F")
+        bottom = (Q.conj().T @ X).conj().T[:, ::-1]
+    else:
+        top = np.array(np.conj(T), order="F")
+        bottom = np.conj(X @ Q)
+    top[np.diag_indices(n)] -= lam.real if real else np.conj(lam)
+    return _smallest_singular_values(top, bottom, k)
+
+
+def _cluster_copy_values(schur: _Schur, B, C, members: np.ndarray, lam: complex,
+                         side: str, scale: float) -> np.ndarray:
+    """Singular values that count the uncontrollable (unobservable) copies of a cluster,
+    from its own block of the reordered real Schur form."""
+    select = members
+    k = int(select.sum())
+    T, Q = schur.T, schur.Q
+    if side == "c":   # the cluster to the bottom: its block has [0 I] as left invariant space
+        Ts, Qs, *_, info = lapack.dtrsen((~select).astype(np.int32), T, Q, job="N")
+        if info != 0:
+            raise np.linalg.LinAlgError("the cluster could not be reordered")
+        return _decoupling_zero_values(Ts[-k:, -k:], (Qs.T @ B)[-k:], lam, scale)
+    Ts, Qs, *_, info = lapack.dtrsen(select.astype(np.int32), T, Q, job="N")
+    if info != 0:
+        raise np.linalg.LinAlgError("the cluster could not be reordered")
+    return _decoupling_zero_values(Ts[:k, :k].T, (C @ Qs)[:, :k].T, lam, scale)
+
+
+def _subspace(A, X, threshold: float) -> np.ndarray:
+    """Orthonormal basis of the controllable subspace of a small pair by the orthogonal
+    staircase (Van Dooren 1981), ranks decided at the absolute ``threshold``."""
+    k = A.shape[0]
+    basis = np.zeros((k, 0), dtype=complex)
+    Q = np.eye(k, dtype=complex)
+    A = np.array(A, dtype=complex)
+    X = np.array(X, dtype=complex)
+    done = 0
+    while done < k and X.size:
+        U, s, _ = np.linalg.svd(X)
+        r = int(np.count_nonzero(s > threshold))
+        if r == 0:
+            break
+        rest = slice(done, k)
+        A[rest, :] = U.conj().T @ A[rest, :]
+        A[:, rest] = A[:, rest] @ U
+        Q[:, rest] = Q[:, rest] @ U
+        X = A[done + r:, done:done + r]
+        done += r
+    basis = Q[:, :done]
+    return basis
+
+
+def _local_split(schur: _Schur, B, C, members: np.ndarray, threshold: float) -> int | None:
+    """Copies of a shared cluster that are both uncontrollable and unobservable.
+
+    The cluster is moved to the top of the real Schur form and decoupled from the rest by
+    one Sylvester equation (Bavely and Stewart 1979), so that its own block ``(A_c, B_c,
+    C_c)`` carries its part of the controllable and unobservable subspaces (for disjoint
+    spectra these subspaces are direct sums over the blocks).  Orthogonal staircases of
+    the small block give R_c and N_c; the copies in part 4 (unobservable, outside the
+    controllable subspace) number ``dim(R_c + N_c) - dim R_c``.
+    """
+    k = int(members.sum())
+    n = schur.T.shape[0]
+    Ts, Qs, *_, info = lapack.dtrsen(members.astype(np.int32), schur.T, schur.Q, job="N")
+    if info != 0:
+        return None
+    T11, T12, T22 = Ts[:k, :k], Ts[:k, k:], Ts[k:, k:]
+    Bq, Cq = Qs.T @ B, C @ Qs
+    if k < n:
+        try:
+            Y = scipy.linalg.solve_sylvester(T11, -T22, -T12)   # T11 Y - Y T22 = -T12
+        except (np.linalg.LinAlgError, ValueError):
+            return None
+        if not np.all(np.isfinite(Y)) or np.linalg.norm(Y) > 1e6:
+            return None
+        B_c = Bq[:k] - Y @ Bq[k:]          # rows of X^-1 B with X = [[I, Y], [0, I]]
+    else:
+        B_c = Bq[:k]
+    C_c = Cq[:, :k]
+    R = _subspace(T11, B_c, threshold)
+    N_perp = _subspace(T11.T, C_c.T, threshold)         # observable directions (dual)
+    # N_c is the orthogonal complement of the observable directions
+    if N_perp.shape[1]:
+        full = np.linalg.qr(N_perp, mode="complete")[0]
+        N = full[:, N_perp.shape[1]:]
+    else:
+        N = np.eye(k)
+    span = np.hstack([R, N])
+    if span.shape[1] == 0:
+        return 0
+    s = np.linalg.svd(span, compute_uv=False)
+    rank_sum = int(np.count_nonzero(s > 1e-8))
+    # part 4 of the block: N without R ∩ N, of dimension dim(R + N) - dim R
+    return rank_sum - R.shape[1]
+
+
+def modal_certificate(A, B, C, *, scale: float, tol: float) -> ModalCertificate | None:
+    """The modal certificate of ``(A, B, C)`` (see the module notes for the method).
+
+    Parameters
+    ----------
+    A : (n, n) ndarray
+        Equilibrated state matrix (not modified).
+    B, C : (n, m), (p, n) ndarray
+        Inputs and outputs scaled for rank decisions.
+    scale : float
+        The model scale the measures are divided by.
+    tol : float
+        Relative tolerance.
+
+    Returns
+    -------
+    ModalCertificate or None
+        None when the eigenvalue computation fails (non-finite data after scaling).
+    """
+    n = A.shape[0]
+    m, p = B.shape[1], C.shape[0]
+    if n == 0:
+        return None
+    try:
+        lam, VL, VR = scipy.linalg.eig(A, left=True, right=True, check_finite=True)
+    except (np.linalg.LinAlgError, ValueError):
+        return None
+    if not np.all(np.isfinite(lam)):
+        return None
+    VL = VL / np.linalg.norm(VL, axis=0)
+    VR = VR / np.linalg.norm(VR, axis=0)
+    overlap = np.abs(np.einsum("ij,ij->j", VL.conj(), VR))
+    kappa = np.where(overlap > 0, 1.0 / np.maximum(overlap, 1e-300), math.inf)
+    floor = n * _EPS
+    upper_c = (np.linalg.norm(VL.conj().T @ B, axis=1) / scale + floor) if m else np.zeros(n)
+    upper_o = (np.linalg.norm(C @ VR, axis=0) / scale + floor) if p else np.zeros(n)
+    norm_A = float(np.linalg.norm(A))
+    # Error discs: the first-order error of a computed eigenvalue is about
+    # kappa eps ||A||; for the scattered copies of a defective eigenvalue of multiplicity k
+    # this is the radius eps^(1/k) ||A|| of their ring, so copies of one eigenvalue link up
+    # while well-conditioned distinct eigenvalues do not.
+    base = max(norm_A, scale * _EPS)
+    radii = np.maximum(_REPEATED_RADIUS, _ERROR_FACTOR * _EPS * kappa) * base
+    labels = _clusters(lam, radii, base)
+    separation = _separation(lam, labels, kappa) / scale
+    decoupling = np.minimum(1.0, separation) / 2.0
+    k = int(labels.max()) + 1
+    mult = np.bincount(labels, minlength=k)
+    reps = np.array([lam[labels == c].mean() for c in range(k)])
+    # cluster figures: the best (smallest) upper figure and the smallest lower figure
+    up_c = np.array([upper_c[labels == c].min() for c in range(k)])
+    up_o = np.array([upper_o[labels == c].min() for c in range(k)])
+    low_c = np.minimum(up_c, [float((upper_c * decoupling)[labels == c].min()) for c in range(k)])
+    low_o = np.minimum(up_o, [float((upper_o * decoupling)[labels == c].min()) for c in range(k)])
+    lo, hi = tol / FRAGILITY_FACTOR, tol * FRAGILITY_FACTOR
+    need_c = (m > 0) & ((mult > 1) | ((low_c <= hi) & (up_c >= lo)))
+    need_o = (p > 0) & ((mult > 1) | ((low_o <= hi) & (up_o >= lo)))
+    copies_c, copies_o = [None] * k, [None] * k
+    measured_c, measured_o = np.zeros(k, dtype=bool), np.zeros(k, dtype=bool)
+    local_both = {}
+    if np.any(need_c) or np.any(need_o):
+        schur = _Schur(A)
+        positions = schur.eigenvalues()
+        # the cluster of each diagonal position of the Schur form (nearest eigenvalue)
+        pos_label = np.empty(n, dtype=int)
+        for i, value in enumerate(positions):
+            pos_label[i] = labels[int(np.argmin(np.abs(lam - value)))]
+        done = np.zeros(k, dtype=bool)
+        for c in range(k):
+            if done[c] or not (need_c[c] or need_o[c]):
+                continue
+            value = reps[c]
+            if abs(value.imag) <= _CLUSTER_FACTOR * norm_A:
+                value = complex(value.real, 0.0)
+            partner = None
+            if value.imag != 0.0:   # the conjugate cluster has the same measures
+                partner = int(np.argmin(np.abs(reps - np.conj(value))))
+                if partner == c or mult[partner] != mult[c]:
+                    partner = None
+            for side, need, up, low, copies, measured, X in (
+                    ("c", need_c, up_c, low_c, copies_c, measured_c, B),
+                    ("o", need_o, up_o, low_o, copies_o, measured_o, C)):
+                if not need[c]:
+                    continue
+                values = _measure(schur, X, value, side, int(mult[c])) / scale
+                up[c] = low[c] = float(values[0])
+                copies[c] = values
+                if mult[c] > 1 and values[0] <= hi:
+                    members = pos_label == c
+                    if partner is not None:
+                        members |= pos_label == partner
+                    try:
+                        counted = _cluster_copy_values(schur, B, C, members, value, side,
+                                                       scale) / scale
+                        copies[c] = np.sort(counted)[:mult[c]]
+                    except np.linalg.LinAlgError:
+                        pass      # the geometric count of the measured values stands
+                measured[c] = True
+                if partner is not None:
+                    up[partner], low[partner] = up[c], low[c]
+                    copies[partner], measured[partner] = copies[c], True
+            done[c] = True
+            if partner is not None:
+                done[partner] = True
+        # clusters shared between parts: which copies are in neither subspace
+        for c in range(k):
+            if mult[c] < 2 or not (measured_c[c] or measured_o[c]) or m == 0 or p == 0:
+                continue
+            copies = [copies_c[c], copies_o[c]]
+            u = int(np.count_nonzero(copies[0] <= tol)) if copies[0] is not None else 0
+            v = int(np.count_nonzero(copies[1] <= tol)) if copies[1] is not None else 0
+            if (0 < u < mult[c]) or (0 < v < mult[c]):
+                members = pos_label == c
+                both = _local_split(schur, B, C, members, tol * scale)
+                if both is not None:
+                    local_both[c] = both
+    return ModalCertificate(reps, mult, up_c, up_o, low_c, low_o, measured_c, measured_o,
+                            float(tol), float(scale), tuple(copies_c), tuple(copies_o),
+                            local_both)
