@@ -374,12 +374,30 @@ class _Schur:
     def __init__(self, A):
         self.T, self.Q = scipy.linalg.schur(A, output="real")
         self._complex = None
+        self._pairs = {}
 
     @property
     def complex(self):
         if self._complex is None:
             self._complex = scipy.linalg.rsf2csf(self.T, self.Q)
         return self._complex
+
+    def pair(self, X, side: str, real: bool):
+        """The triangle and the extra rows whose stacked singular values are those of
+        ``[A - lam I, B]`` (side "c") or ``[A - lam I; C]`` (side "o") once ``lam`` is taken
+        off the triangle's diagonal (conjugated): for "c", ``[J (T - lam I)^H J; (Q^H B)^H J]``
+        with ``J`` the flip, so that the top block is upper triangular; for "o",
+        ``conj([T - lam I; C Q])``.  Computed once per side and arithmetic (cached)."""
+        key = (side, real, id(X))
+        cached = self._pairs.get(key)
+        if cached is None:
+            T, Q = (self.T, self.Q) if real else self.complex
+            if side == "c":
+                cached = (np.conj(T.T[::-1, ::-1]), (Q.conj().T @ X).conj().T[:, ::-1])
+            else:
+                cached = (np.conj(T), np.conj(X @ Q))
+            self._pairs[key] = cached
+        return cached
 
     def eigenvalues(self) -> np.ndarray:
         T = self.T
@@ -395,17 +413,9 @@ def _measure(schur: _Schur, X, lam: complex, side: str, k: int) -> np.ndarray:
     """The ``k`` smallest singular values of ``[A - lam I, B]`` (side "c", ``X = B``) or
     ``[A - lam I; C]`` (side "o", ``X = C``), measured on the Schur form."""
     real = lam.imag == 0.0 and not np.any(np.diag(schur.T, -1))
-    if real:
-        T, Q = schur.T, schur.Q
-    else:
-        T, Q = schur.complex
+    T, bottom = schur.pair(X, side, real)
     n = T.shape[0]
-    if side == "c":
-        top = np.array(np.conj(T.T[::-1, ::-1]), order="F")
-        bottom = (Q.conj().T @ X).conj().T[:, ::-1]
-    else:
-        top = np.array(np.conj(T), order="F")
-        bottom = np.conj(X @ Q)
+    top = np.array(T, order="F")
     top[np.diag_indices(n)] -= lam.real if real else np.conj(lam)
     return _smallest_singular_values(top, bottom, k)
 

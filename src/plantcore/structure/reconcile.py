@@ -19,8 +19,9 @@ decomposition that the certificate supports from spectral subspaces:
   part 4 from part 1 (C. A. Bavely and G. W. Stewart, "An algorithm for computing reducing
   subspaces by block diagonalization", SIAM J. Numer. Anal. 16(2), 359-367, 1979).  The
   entries that the zero pattern sets to zero are measured; the decomposition is used only
-  when they are below the tolerance.  Otherwise the staircase answer is returned, marked
-  fragile with a conflict.
+  when they are below the top of the window, ``100 tol`` (its measured backward error, which
+  includes them, is reported with the result).  Otherwise the staircase answer is
+  returned, marked fragile with a conflict.
 """
 
 from __future__ import annotations
@@ -127,7 +128,7 @@ def spectral_decomposition(A, B, C, cert) -> SpectralDecomposition | None:
     """The Kalman decomposition from the certificate's part of every cluster.
 
     Returns None when a cluster is shared between parts, the reordering fails, or the
-    entries set to zero exceed the tolerance (the split is then not supported).
+    entries set to zero exceed ``100 tol`` (the split is then not supported).
     """
     if cert is None or np.any(cert.shared_clusters()):
         return None
@@ -183,6 +184,6 @@ def spectral_decomposition(A, B, C, cert) -> SpectralDecomposition | None:
         if Cz[:, blocks[j]].size:
             zeroed = max(zeroed, float(np.abs(Cz[:, blocks[j]]).max()) / norms[2])
         Cz[:, blocks[j]] = 0.0
-    if zeroed > cert.tolerance:
+    if zeroed > FRAGILITY_FACTOR * cert.tolerance:
         return None
     return SpectralDecomposition(T_e, T_inv, Az, Bz, Cz, (n1, n2, n3, n4), zeroed)
