@@ -1,0 +1,280 @@
+"""Tests of plantcore/structure/certificate.py (the modal PBH certificate).
+
+Outside checks used here:
+
+* The PBH measure ``sigma_min([A - lambda I, B])`` (M. L. J. Hautus, "Controllability and
+  observability conditions of linear autonomous systems", Proc. KNAW A 72, 1969), computed
+  by a dense SVD of the whole matrix (``np.linalg.svd``, common practice) at the cluster's
+  eigenvalue, divided by the model scale.
+* Part sizes known by construction: models built in the four-block Kalman form with exact
+  zeros (R. E. Kalman, "Mathematical description of linear dynamical systems", J. SIAM
+  Control 1(2), 1963) and hidden by a similarity; the generator is copied here (from the
+  project's failure reproducers) so that no file outside the repository is needed.
+"""
+
+import math
+
+import numpy as np
+import pytest
+
+import plantcore as pc
+from plantcore.structure.certificate import modal_certificate
+from plantcore.structure.kalman import _prepare
+
+EPS = np.finfo(float).eps
+ZERO_BLOCKS = [(0, 1), (0, 3), (2, 0), (2, 1), (2, 3), (3, 0), (3, 1)]
+
+
+# --- generator (textbook four-block Kalman form, exact zeros) ----------------------------
+
+def rand_orth(n, rng):
+    q, r = np.linalg.qr(rng.standard_normal((n, n)))
+    return q * np.sign(np.diag(r))[None, :]
+
+
+def cuts(sizes):
+    c = np.cumsum((0,) + tuple(sizes))
+    return [slice(int(c[i]), int(c[i + 1])) for i in range(4)]
+
+
+def assemble(diag, sizes, m, p, rng):
+    """The four-block Kalman form with exact zeros and random couplings."""
+    n = sum(sizes)
+    bl = cuts(sizes)
+    A = rng.standard_normal((n, n)) / math.sqrt(n)
+    for i in range(4):
+        A[bl[i], bl[i]] = diag[i]
+    for i, j in ZERO_BLOCKS:
+        A[bl[i], bl[j]] = 0.0
+    B = rng.standard_normal((n, m))
+    B[bl[2], :] = 0.0
+    B[bl[3], :] = 0.0
+    C = rng.standard_normal((p, n))
+    C[:, bl[1]] = 0.0
+    C[:, bl[3]] = 0.0
+    return A, B, C
+
+
+def diag_block(k, rng, discrete):
+    if k == 0:
+        return np.zeros((0, 0))
+    G = rng.standard_normal((k, k)) / math.sqrt(k)
+    if discrete:
+        M = 0.6 * G
+        rho = max(abs(np.linalg.eigvals(M)))
+        if rho > 0.95:
+            M *= 0.9 / rho
+        return M
+    M = G - (1.0 + rng.uniform(0.0, 1.0)) * np.eye(k)
+    ev = np.linalg.eigvals(M)
+    if max(ev.real) > -0.05:
+        M -= (max(ev.real) + 0.2) * np.eye(k)
+    return M
+
+
+def hide(Az, Bz, Cz, cond, rng):
+    """x = T z with T = U diag(s) V^T, s log-spaced in [1/cond, 1]."""
+    n = Az.shape[0]
+    U, V = rand_orth(n, rng), rand_orth(n, rng)
+    s = np.geomspace(1.0, 1.0 / cond, n) if cond != 1.0 else np.ones(n)
+    T = (U * s[None, :]) @ V.T
+    Ti = (V / s[None, :]) @ U.T
+    return T @ Az @ Ti, T @ Bz, Cz @ Ti
+
+
+def four_block(seed, n_range=(8, 60), discrete=False, cond=1.0):
+    rng = np.random.default_rng([2, seed])
+    n = int(rng.integers(n_range[0], n_range[1] + 1))
+    m, p = int(rng.integers(1, 4)), int(rng.integers(1, 4))
+    extra = rng.multinomial(n - 1, rng.dirichlet(np.ones(4)))
+    sizes = (int(extra[0]) + 1, int(extra[1]), int(extra[2]), int(extra[3]))
+    Az, Bz, Cz = assemble([diag_block(k, rng, discrete) for k in sizes], sizes, m, p, rng)
+    A, B, C = hide(Az, Bz, Cz, cond, rng)
+    return A, B, C, sizes
+
+
+def certificate_of(A, B, C, tol=None):
+    p = _prepare((A, B, C), tol)
+    return p, modal_certificate(p.A, p.B_dec, p.C_dec, scale=p.scale, tol=p.tol)
+
+
+def jordan(lam, k):
+    return lam * np.eye(k) + np.eye(k, k=1)
+
+
+# --- 1. the figures against a dense SVD --------------------------------------------------
+
+def dense_pbh(A, X, lam, side):
+    """sigma_min([A - lam I, X]) (side "c") or of [A - lam I; X] (side "o"), dense SVD."""
+    n = A.shape[0]
+    M = (np.hstack([A - lam * np.eye(n), X]) if side == "c"
+         else np.vstack([A - lam * np.eye(n), X]))
+    return float(np.linalg.svd(M, compute_uv=False)[-1])
+
+
+def random_models():
+    """Small random models, real and complex spectra, 1-3 inputs and outputs, and one with
+    a weakly controllable mode (its figure inside the decision window at the default
+    tolerance, so that the measured tier runs there too)."""
+    out = []
+    for seed in range(14):
+        rng = np.random.default_rng([1, seed])
+        n = int(rng.integers(5, 31))
+        m, p = int(rng.integers(1, 4)), int(rng.integers(1, 4))
+        A = rng.standard_normal((n, n))
+        if seed % 2:
+            A = A + A.T                 # symmetric: a real spectrum
+        out.append((f"random{seed}", A, rng.standard_normal((n, m)), rng.standard_normal((p, n))))
+    A = np.diag([-1.0, -2.0, -3.0])
+    out.append(("weak", A, np.array([[1.0], [1.0], [1e-9]]), np.ones((1, 3))))
+    return out
+
+
+@pytest.mark.parametrize("tol", [None, 1e-2], ids=["default-tol", "tol-1e-2"])
+@pytest.mark.parametrize("name,A,B,C", random_models(), ids=[m[0] for m in random_models()])
+def test_figures_agree_with_dense_svd(name, A, B, C, tol):
+    p, cert = certificate_of(A, B, C, tol)
+    n = A.shape[0]
+    assert cert.n == n
+    for side, X, fig, low, measured in (
+            ("c", p.B_dec, cert.controllability, cert.controllability_lower,
+             cert.controllability_measured),
+            ("o", p.C_dec, cert.observability, cert.observability_lower,
+             cert.observability_measured)):
+        for i, lam in enumerate(cert.eigenvalues):
+            ref = dense_pbh(p.A, X, lam, side) / p.scale
+            if measured[i]:
+                # an upper bound from inverse iteration (>= sigma_min up to rounding,
+                # 50 n eps), tight to a factor 2
+                assert fig[i] >= ref - 50 * n * EPS, (side, i)
+                assert fig[i] <= 2.0 * ref, (side, i)
+                assert low[i] == fig[i]
+            else:
+                # lower figure <= sigma_min <= upper figure (relative 1e-8, plus the
+                # n eps the upper figure carries)
+                assert low[i] <= ref * (1 + 1e-8) + n * EPS, (side, i)
+                assert ref <= fig[i] * (1 + 1e-8) + n * EPS, (side, i)
+    # which clusters the measured tier took (so that both branches above are exercised)
+    if name == "weak":
+        # the weak mode's figure (~2e-10) lies inside the window [5e-13, 5e-9] of the
+        # default tolerance, the others (~0.5) inside [1e-4, 1] of tol = 1e-2
+        expected = [False, False, True] if tol is None else [True, True, False]
+        assert cert.controllability_measured.tolist() == expected
+    elif tol == 1e-2:
+        # every random figure lies in the window [1e-4, 1]: all clusters measured
+        assert cert.controllability_measured.all() and cert.observability_measured.all()
+    else:
+        assert not cert.controllability_measured.any()
+
+
+# --- 2. counts on hidden four-block models -----------------------------------------------
+
+COUNT_CASES = [(seed, bool(seed % 2), [1.0, 1e3][(seed // 2) % 2]) for seed in range(24)]
+
+
+@pytest.mark.parametrize("seed,discrete,cond", COUNT_CASES,
+                         ids=[f"s{s}-{'d' if d else 'c'}-cond{c:g}" for s, d, c in COUNT_CASES])
+def test_sizes_of_hidden_four_block_models(seed, discrete, cond):
+    A, B, C, sizes = four_block(seed, discrete=discrete, cond=cond)
+    _, cert = certificate_of(A, B, C)
+    assert cert.sizes() == sizes          # the constructed sizes (by construction)
+    assert int(cert.multiplicities.sum()) == A.shape[0]
+
+
+def test_sizes_at_401_states_and_decomposition_unflagged():
+    # the repro_1 generator: n = 401, 3 inputs, 3 outputs, orthogonal hiding.  Before the
+    # certificate ran above 400 states this was answered (401, 0, 0, 0), unflagged.
+    n = 401
+    rng = np.random.default_rng([9, n, 0])
+    sizes = (int(0.4 * n), int(0.15 * n), int(0.15 * n),
+             n - int(0.4 * n) - 2 * int(0.15 * n))
+    assert sizes == (160, 60, 60, 121)
+    Az, Bz, Cz = assemble([diag_block(k, rng, False) for k in sizes], sizes, 3, 3, rng)
+    A, B, C = hide(Az, Bz, Cz, 1.0, rng)
+    _, cert = certificate_of(A, B, C)
+    assert cert.sizes() == sizes
+    kd = pc.kalman_decomposition((A, B, C))
+    assert tuple(kd.sizes) == sizes
+    assert not kd.fragile
+
+
+# --- 3. clustering -----------------------------------------------------------------------
+
+@pytest.mark.parametrize("seed", range(4))
+def test_jordan_block_and_simple_copy_in_another_part(seed):
+    # part 1: a Jordan block of size 4 at 0 (driven and seen through its couplings) plus two
+    # random modes; part 3: a simple eigenvalue 0 (uncontrollable) plus two random modes.
+    rng = np.random.default_rng([3, seed])
+    sizes = (6, 2, 3, 2)
+    d1 = np.zeros((6, 6))
+    d1[:4, :4] = jordan(0.0, 4)
+    d1[4:, 4:] = diag_block(2, rng, False)
+    d1[:4, 4:] = rng.standard_normal((4, 2))
+    d3 = np.zeros((3, 3))
+    d3[1:, 1:] = diag_block(2, rng, False)
+    d3[0, 1:] = rng.standard_normal(2)
+    Az, Bz, Cz = assemble([d1, diag_block(2, rng, False), d3, diag_block(2, rng, False)],
+                          sizes, 2, 2, rng)
+    A, B, C = hide(Az, Bz, Cz, 1.0, rng)
+    _, cert = certificate_of(A, B, C)
+    i = int(np.argmin(np.abs(cert.eigenvalues)))
+    # the 4 scattered copies of the Jordan block (a ring of radius ~eps^(1/4) ||A||:
+    # J. H. Wilkinson, The Algebraic Eigenvalue Problem, 1965, ch. 2) and the simple 0
+    # form one cluster of 5, with exactly one uncontrollable copy (the part-3 zero)
+    assert cert.multiplicities[i] == 5
+    assert abs(cert.eigenvalues[i]) <= 1e-8 * np.linalg.norm(A)
+    assert cert.uncontrollable_copies()[i] == 1
+    assert cert.unobservable_copies()[i] == 0
+    assert cert.sizes() == sizes
+    assert cert.multiplicities.sum() == sum(sizes)
+
+
+@pytest.mark.parametrize("hidden", [False, True], ids=["block-form", "hidden"])
+@pytest.mark.parametrize("m", [1, 2])
+def test_two_defective_eigenvalues_stay_apart(hidden, m):
+    # Jordan blocks of size 4 at -1 and at -0.5, B = C = 0: every copy is uncontrollable
+    # and unobservable (by construction).
+    rng = np.random.default_rng([4, m])
+    Az = np.zeros((8, 8))
+    Az[:4, :4] = jordan(-1.0, 4)
+    Az[4:, 4:] = jordan(-0.5, 4)
+    Bz, Cz = np.zeros((8, m)), np.zeros((m, 8))
+    A, B, C = hide(Az, Bz, Cz, 1.0, rng) if hidden else (Az, Bz, Cz)
+    _, cert = certificate_of(A, B, C)
+    # not merged: no cluster holds copies of both eigenvalues
+    assert cert.multiplicities.max() <= 4
+    for lam in (-1.0, -0.5):
+        near = np.abs(cert.eigenvalues - lam) < 0.1
+        assert cert.multiplicities[near].sum() == 4
+    assert cert.uncontrollable_copies().sum() == 8
+    assert cert.unobservable_copies().sum() == 8
+    assert cert.sizes() == (0, 0, 0, 8)
+
+
+@pytest.mark.parametrize("seed", range(30))
+def test_shared_scalar_cluster_split_by_ranks(seed):
+    # A = a I_k (k copies of one eigenvalue, shared between parts) plus 0-3 other modes,
+    # hidden orthogonally.  For A = a I the controllable subspace is range(B) and the
+    # unobservable subspace ker(C), so (Kalman 1963; common practice)
+    # n1 = rank(C B), n2 = rank B - rank(C B), n3 = rank C - rank(C B), n4 = the rest;
+    # ranks of the small block-form data at an absolute 1e-8 (entries of order one).
+    rng = np.random.default_rng([9, seed])
+    k = int(rng.integers(2, 6))
+    m, p = int(rng.integers(1, k)), int(rng.integers(1, k))
+    Bk, Ck = rng.standard_normal((k, m)), rng.standard_normal((p, k))
+    if seed % 3 == 0:               # C blind to range(B): R inside N
+        Ck = Ck @ (np.eye(k) - Bk @ np.linalg.pinv(Bk))
+    rank = lambda M: int(np.linalg.matrix_rank(M, tol=1e-8))  # noqa: E731
+    n1 = rank(Ck @ Bk)
+    n2, n3 = rank(Bk) - n1, rank(Ck) - n1
+    extra = int(rng.integers(0, 4))
+    sizes = (n1 + extra, n2, n3, k - n1 - n2 - n3)
+    A = np.zeros((k + extra, k + extra))
+    A[:k, :k] = -0.7 * np.eye(k)
+    if extra:                        # other modes, driven and seen: part 1
+        A[k:, k:] = diag_block(extra, rng, False)
+    B = np.vstack([Bk, rng.standard_normal((extra, m))])
+    C = np.hstack([Ck, rng.standard_normal((p, extra))])
+    Q = rand_orth(k + extra, rng)
+    _, cert = certificate_of(Q @ A @ Q.T, Q @ B, C @ Q.T)
+    assert cert.sizes() == sizes
