@@ -77,13 +77,18 @@ def certificate_decisions(cert, staircase_sizes, *, decided: bool = False) -> tu
     return tuple(out)
 
 
-def confirm_window(decisions, cert, sizes) -> tuple:
+def confirm_window(decisions, cert, sizes, *, rank: int | None = None) -> tuple:
     """Staircase decisions, marked as examined across the window when the certificate
-    gives the same part sizes at every tolerance of it."""
+    gives the same part sizes (or, with ``rank``, the same number of modes that are not
+    uncontrollable) at every tolerance of it."""
     if cert is None:
         return tuple(decisions)
-    window = cert.window_sizes()
-    if any(tuple(v) != tuple(sizes) for v in window.values()):
+    t = cert.tolerance
+    if rank is not None:
+        for x in (t / FRAGILITY_FACTOR, t, t * FRAGILITY_FACTOR):
+            if cert.n - int(cert.uncontrollable_copies(x).sum()) != rank:
+                return tuple(decisions)
+    elif any(tuple(v) != tuple(sizes) for v in cert.window_sizes().values()):
         return tuple(decisions)
     return tuple(d if d.check_only or d.superseded else dataclasses.replace(d, window_outcome="")
                  for d in decisions)

@@ -18,12 +18,15 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
+import scipy.linalg
+from scipy.linalg import lapack
 
-from plantcore.structure.staircase_kernels import reduce_staircase
-from plantcore.structure.certificate import modal_certificate
-from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.core.equilibration import Equilibration, equilibrate, io_scaled
+from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.core.rank import FRAGILITY_FACTOR, RankDecision, any_fragile, resolve_tolerance
+from plantcore.structure.certificate import modal_certificate
+from plantcore.structure.reconcile import confirm_window, supersede
+from plantcore.structure.staircase_kernels import reduce_staircase
 
 __all__ = ["StaircaseForm", "controllability_staircase", "observability_staircase"]
 
@@ -131,18 +134,80 @@ def _controllability(model, tol, label="controllability"):
     B_s, _ = io_scaled(B_e, C_e, scale)
     g = _input_gains(B_e, B_s)
     del B_e
-    # the modal certificate (controllability side only), before the staircase overwrites A_e
+    # the modal certificate (controllability side only); reduce_staircase copies A_e
     cert = modal_certificate(A_e, B_s, np.zeros((0, model.n)), scale=scale, tol=tol)
     red = reduce_staircase(A_e, B_s, C_e, scale=scale, tol=tol, label=label)
+    rank = int(sum(red.blocks))
+    check = _certificate_check(cert, rank, label)
+    if check and check[0].conflict:
+        corrected = _spectral_staircase(A_e, B_s, C_e, cert, scale=scale, tol=tol,
+                                        label=label)
+        if corrected is not None:
+            A_t, B_t, C_t, U, blocks, decisions = corrected
+            decisions = (supersede(red.decisions) + tuple(decisions)
+                         + _certificate_check(cert, int(sum(blocks)), label, decided=True))
+            return model, eq, A_t, B_t / g[None, :], C_t, U, blocks, decisions
     del A_e, C_e, B_s
     U = red.form_U()
     red.transforms.clear()
     B_t = red.B / g[None, :]  # back to the user's input units (exact: powers of two)
-    decisions = tuple(red.decisions) + _certificate_check(cert, int(sum(red.blocks)), label)
+    decisions = confirm_window(tuple(red.decisions), cert, None, rank=rank) + check
     return model, eq, red.A, B_t, red.C, U, red.blocks, decisions
 
 
-def _certificate_check(cert, rank: int, label: str) -> tuple:
+def _spectral_staircase(A, B, C, cert, *, scale, tol, label):
+    """The staircase form the certificate supports when the staircase kept noise.
+
+    The eigenvalues the certificate finds controllable are moved to the top of the real
+    Schur form (LAPACK ``?trsen``; Golub and Van Loan, *Matrix Computations*, 2013, 7.6):
+    their Schur vectors span the controllable subspace R, and ``B`` has only rounding
+    outside it.  The staircase of the restricted pair then gives the block Hessenberg form
+    of the controllable part.  None when a cluster is shared between the parts, the
+    reordering fails, the rows of ``B`` outside R exceed ``100 tol``, or the restricted
+    staircase does not keep all of R.
+    """
+    n = A.shape[0]
+    copies = cert.uncontrollable_copies()
+    if np.any((copies > 0) & (copies < cert.multiplicities)):
+        return None
+    controllable = copies == 0
+    T, Q = scipy.linalg.schur(A, output="real")
+    ev = np.diag(T).astype(complex)
+    for i in np.nonzero(np.diag(T, -1))[0]:
+        a, b, c, d = T[i, i], T[i, i + 1], T[i + 1, i], T[i + 1, i + 1]
+        im = np.sqrt(abs(b * c)) if b * c < 0 else 0.0
+        ev[i], ev[i + 1] = complex((a + d) / 2, im), complex((a + d) / 2, -im)
+    select = controllable[np.argmin(np.abs(ev[:, None] - cert.eigenvalues[None, :]), axis=1)]
+    sub = np.nonzero(np.diag(T, -1))[0]
+    select[sub + 1] = select[sub]
+    nc = int(select.sum())
+    if 0 < nc < n:
+        T, Q, *_, info = lapack.dtrsen(select.astype(np.int32), T, Q, job="N")
+        if info != 0:
+            return None
+    Bq = Q.T @ B
+    norm_B = max(float(np.linalg.norm(B)), 1e-300)
+    if nc < n and float(np.abs(Bq[nc:]).max()) / norm_B > FRAGILITY_FACTOR * tol:
+        return None
+    Cq = C @ Q
+    red = reduce_staircase(T[:nc, :nc], Bq[:nc], Cq[:, :nc], scale=scale, tol=tol,
+                           label=label + " of the controllable part")
+    if int(sum(red.blocks)) != nc:
+        return None
+    U1 = red.form_U()
+    U = Q.copy()
+    U[:, :nc] = Q[:, :nc] @ U1
+    A_t = np.zeros((n, n))
+    A_t[:nc, :nc] = red.A
+    A_t[:nc, nc:] = U1.T @ T[:nc, nc:]
+    A_t[nc:, nc:] = T[nc:, nc:]
+    B_t = np.zeros_like(Bq)
+    B_t[:nc] = red.B
+    C_t = np.hstack([red.C, Cq[:, nc:]])
+    return A_t, B_t, C_t, U, list(red.blocks), tuple(red.decisions)
+
+
+def _certificate_check(cert, rank: int, label: str, *, decided: bool = False) -> tuple:
     """The certificate's count of modes not uncontrollable, against the staircase's rank:
     a conflict when they differ (the staircase form is returned as found); the window is
     examined as in :func:`plantcore.structure.reconcile.certificate_decisions`."""
@@ -156,14 +221,15 @@ def _certificate_check(cert, rank: int, label: str) -> tuple:
     if len(set(counts.values())) > 1:
         outcome = "inside the window the rank changes: " + ", ".join(
             f"{r} at {x:.2g}" for x, r in counts.items())
-    conflict = counts[t] != rank
+    conflict = counts[t] != rank and not decided
     if conflict:
         outcome = (f"the staircase gives rank {rank}, the PBH measures {counts[t]}"
                    + (f"; {outcome}" if outcome else ""))
     kept, dropped = cert.counts_summary("c")
     word = "uncontrollable" if label == "controllability" else "unobservable"
     return (RankDecision(f"modal certificate: modes not {word}", counts[t], n, kept, dropped,
-                         t, conflict=conflict, check_only=True, window_outcome=outcome),)
+                         t, conflict=conflict, check_only=not decided,
+                         window_outcome=outcome),)
 
 
 def _form(model, eq, A_t, B_t, C_t, U, blocks, decisions, kind) -> StaircaseForm:
