@@ -148,7 +148,9 @@ def test_figures_agree_with_dense_svd(name, A, B, C, tol):
                 # 50 n eps), tight to a factor 2
                 assert fig[i] >= ref - 50 * n * EPS, (side, i)
                 assert fig[i] <= 2.0 * ref, (side, i)
-                assert low[i] == fig[i]
+                # the lower figure is the measure less the eigenvalue's own first-order
+                # error (10 kappa eps ||A||), rounding level on these models
+                assert 0.0 <= fig[i] - low[i] <= 1e-10, (side, i)
             else:
                 # lower figure <= sigma_min <= upper figure (relative 1e-8, plus the
                 # n eps the upper figure carries)

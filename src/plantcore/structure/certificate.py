@@ -60,8 +60,10 @@ stays right for the hard ones:
 
 How it can fail: measures are taken at the computed eigenvalues.  For hypersensitive
 spectra (strongly non-normal chains) the computed eigenvalues can lie far from the
-uncontrollable ones; the margins then fall inside the decision window, and the answer is
-marked fragile rather than certified.  The measured tier costs ``O(n^2 m)`` per cluster
+uncontrollable ones.  So the lower figure of every cluster is reduced by the eigenvalue's
+own first-order error ``10 kappa eps ||A||`` (Weyl's inequality moves ``sigma_min`` by at
+most the shift); where that leaves the figure inside the decision window, the cluster is
+*undecided* and the answer is marked fragile rather than certified.  The measured tier costs ``O(n^2 m)`` per cluster
 with a memory-bound constant (about 10 ms for a real and 100 ms for a complex eigenvalue at
 n = 2000), so strongly non-normal large models, where most clusters need it, are slow.
 """
@@ -86,6 +88,7 @@ _EPS = np.finfo(float).eps
 _CLUSTER_FACTOR = _EPS ** (1.0 / 3.0)
 _REPEATED_RADIUS = 1e3 * _EPS    # exactly repeated, well-conditioned eigenvalues
 _ERROR_FACTOR = 1e3              # error disc of a computed eigenvalue: 1e3 kappa eps ||A||
+_EIGENVALUE_ERROR = 10.0         # first-order error of a computed eigenvalue, in kappa eps ||A||
 _INVERSE_STEPS = 4
 _TOEPLITZ_MAX = 24          # larger clusters fall back to a small staircase
 _MAX_CLUSTER = 12           # copies of one eigenvalue grouped at most (see _clusters)
@@ -142,6 +145,15 @@ class ModalCertificate:
             values = copies[i] if copies and copies[i] is not None else np.array([up[i]])
             out[i] = max(1, int(np.count_nonzero(values <= t)))
         return np.minimum(out, self.multiplicities)
+
+    def undecided(self, t: float | None = None) -> int:
+        """Clusters (on either side) whose measure lies above ``t`` but whose lower figure
+        does not: the answer at ``t`` is not certified there (see the module notes on
+        ill-conditioned eigenvalues)."""
+        t = self.tolerance if t is None else t
+        c = (self.controllability_lower <= t) & (self.controllability > t)
+        o = (self.observability_lower <= t) & (self.observability > t)
+        return int(np.count_nonzero(c | o))
 
     def uncontrollable_copies(self, t: float | None = None) -> np.ndarray:
         """Copies of each cluster that are uncontrollable at the tolerance ``t``."""
@@ -623,6 +635,15 @@ def modal_certificate(A, B, C, *, scale: float, tol: float) -> ModalCertificate 
                 both = _local_split(schur, B, C, members, tol * scale)
                 if both is not None:
                     local_both[c] = both
+    # A measure taken at a computed eigenvalue certifies only the computed point: the
+    # eigenvalue itself may lie anywhere within its first-order error ``kappa eps ||A||``,
+    # and sigma_min([A - z I, B]) >= sigma_min([A - lambda I, B]) - |z - lambda| (Weyl), so
+    # the lower figures drop by that radius (negligible unless the eigenvalue is ill
+    # conditioned, as in long non-normal chains).
+    error = _EIGENVALUE_ERROR * _EPS * kappa * norm_A / scale
+    radius = np.array([float(error[labels == c].max()) for c in range(k)])
+    low_c = np.maximum(0.0, np.minimum(low_c, up_c - radius))
+    low_o = np.maximum(0.0, np.minimum(low_o, up_o - radius))
     return ModalCertificate(reps, mult, up_c, up_o, low_c, low_o, measured_c, measured_o,
                             float(tol), float(scale), tuple(copies_c), tuple(copies_o),
                             local_both)

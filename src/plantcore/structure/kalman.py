@@ -35,8 +35,9 @@ import warnings
 from plantcore.core.errors import AccuracyWarning, NumericalBreakdown
 from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.structure.certificate import modal_certificate
-from plantcore.structure.reconcile import (certificate_decisions, confirm_window,
-                                           spectral_decomposition, supersede)
+from plantcore.structure.reconcile import (certificate_decisions, certificate_finds_more,
+                                           confirm_window, spectral_decomposition,
+                                           supersede)
 from plantcore.structure.staircase_kernels import reduce_staircase
 from plantcore.core.rank import RankDecision, any_fragile, resolve_tolerance
 from plantcore.core.equilibration import equilibrate, io_scaled
@@ -485,7 +486,7 @@ def _decomposition(p: _Prepared) -> KalmanDecomposition:
     del T_e, Ti_e
     sizes = PartSizes(n1, n2, n3c, n4)
     decisions = confirm_window(decisions, cert, sizes)
-    if cert is not None and tuple(cert.sizes()) != tuple(sizes):
+    if cert is not None and certificate_finds_more(cert.sizes(), sizes):
         spectral = spectral_decomposition(p.A, p.B, p.C, cert)
         if spectral is not None:
             return _from_spectral(p, spectral, decisions, cert, sizes)

@@ -102,11 +102,17 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
         # decomposition reconciles the two (and the minimal model is its first part).
         found = cert.sizes()
         staircase_like = (r, nc - r, found[2], found[3])
-        if (found[0], found[2] + found[3]) != (r, n - nc):
+        disagree = (found[0], found[2] + found[3]) != (r, n - nc)
+        if disagree and found[0] < r and found[2] + found[3] >= n - nc:
+            # the certificate proves modes the staircase kept: the decomposition decides
             try:
-                return _minimal_from_decomposition(_decompose(p), p.s)
+                kd = _decompose(p)
+                if kd.sizes.controllable_observable < r:
+                    return _minimal_from_decomposition(kd, p.s)
             except NumericalBreakdown:
-                staircase_like = (r, nc - r, n - nc, 0)   # conflict recorded below
+                pass
+        if disagree:
+            staircase_like = (r, nc - r, n - nc, 0)   # the conflict is recorded below
         decisions = confirm_window(decisions, cert, staircase_like)
         decisions = decisions + certificate_decisions(cert, staircase_like)
     # The minimal model is the leading block of the second staircase, in the coordinates

@@ -60,6 +60,7 @@ def certificate_decisions(cert, staircase_sizes, *, decided: bool = False) -> tu
         outcome = (f"inside the window the part sizes change: {_sizes_text(low)} at "
                    f"{t / FRAGILITY_FACTOR:.2g}, {_sizes_text(here)} at {t:.2g}, "
                    f"{_sizes_text(high)} at {t * FRAGILITY_FACTOR:.2g}")
+    outcome = _with_undecided(outcome, cert)
     conflict = tuple(here) != tuple(staircase_sizes) and not decided
     n = cert.n
     out = []
@@ -77,21 +78,56 @@ def certificate_decisions(cert, staircase_sizes, *, decided: bool = False) -> tu
     return tuple(out)
 
 
+def certificate_finds_more(cert_sizes, staircase_sizes) -> bool:
+    """True when the certificate proves at least as many modes uncontrollable and as many
+    unobservable as the staircase kept out, and more of one kind.
+
+    That is the direction in which the staircase is known to fail (it keeps rounding noise
+    as couplings); the certificate then decides.  The other way round, the staircase's
+    dropped singular values are themselves backward-stable evidence (a perturbation of
+    that size makes the modes exactly uncontrollable), so a certificate that misses them
+    does not overrule it: the disagreement is reported as a conflict instead.
+    """
+    c, s = tuple(cert_sizes), tuple(staircase_sizes)
+    unc = (c[2] + c[3], s[2] + s[3])
+    uno = (c[1] + c[3], s[1] + s[3])
+    return unc[0] >= unc[1] and uno[0] >= uno[1] and (unc[0] > unc[1] or uno[0] > uno[1])
+
+
+def _with_undecided(outcome: str, cert) -> str:
+    """Add the clusters the certificate cannot decide inside the window."""
+    t = cert.tolerance
+    count = max(cert.undecided(x) for x in (t / FRAGILITY_FACTOR, t, t * FRAGILITY_FACTOR))
+    if not count:
+        return outcome
+    text = (f"{count} eigenvalue cluster(s) cannot be decided: their PBH measure exceeds "
+            "the tolerance by less than the computed eigenvalue's own error")
+    return f"{outcome}; {text}" if outcome else text
+
+
 def confirm_window(decisions, cert, sizes, *, rank: int | None = None) -> tuple:
     """Staircase decisions, marked as examined across the window when the certificate
     gives the same part sizes (or, with ``rank``, the same number of modes that are not
-    uncontrollable) at every tolerance of it."""
+    uncontrollable) at every tolerance of it, and the decision dropped nothing inside the
+    window."""
     if cert is None:
         return tuple(decisions)
     t = cert.tolerance
+    if max(cert.undecided(x) for x in (t / FRAGILITY_FACTOR, t, t * FRAGILITY_FACTOR)):
+        return tuple(decisions)
     if rank is not None:
         for x in (t / FRAGILITY_FACTOR, t, t * FRAGILITY_FACTOR):
             if cert.n - int(cert.uncontrollable_copies(x).sum()) != rank:
                 return tuple(decisions)
     elif any(tuple(v) != tuple(sizes) for v in cert.window_sizes().values()):
         return tuple(decisions)
-    return tuple(d if d.check_only or d.superseded else dataclasses.replace(d, window_outcome="")
-                 for d in decisions)
+    # Only the kept side is confirmed: a value dropped inside the window stays fragile,
+    # because the certificate is measured in the same (equilibrated) coordinates and
+    # shares any weakness of their scaling, while a kept value near the tolerance whose
+    # modes the certificate finds well away from it is confirmed by a second method.
+    return tuple(d if d.check_only or d.superseded
+                 or d.largest_dropped >= d.tolerance / FRAGILITY_FACTOR
+                 else dataclasses.replace(d, window_outcome="") for d in decisions)
 
 
 def supersede(decisions) -> tuple:

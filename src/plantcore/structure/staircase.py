@@ -139,7 +139,7 @@ def _controllability(model, tol, label="controllability"):
     red = reduce_staircase(A_e, B_s, C_e, scale=scale, tol=tol, label=label)
     rank = int(sum(red.blocks))
     check = _certificate_check(cert, rank, label)
-    if check and check[0].conflict:
+    if check and check[0].conflict and check[0].rank < rank:   # the staircase kept noise
         corrected = _spectral_staircase(A_e, B_s, C_e, cert, scale=scale, tol=tol,
                                         label=label)
         if corrected is not None:
@@ -221,6 +221,11 @@ def _certificate_check(cert, rank: int, label: str, *, decided: bool = False) ->
     if len(set(counts.values())) > 1:
         outcome = "inside the window the rank changes: " + ", ".join(
             f"{r} at {x:.2g}" for x, r in counts.items())
+    undecided = max(cert.undecided(x) for x in counts)
+    if undecided:
+        outcome = (f"{outcome}; " if outcome else "") + (
+            f"{undecided} eigenvalue cluster(s) cannot be decided: their PBH measure exceeds "
+            "the tolerance by less than the computed eigenvalue's own error")
     conflict = counts[t] != rank and not decided
     if conflict:
         outcome = (f"the staircase gives rank {rank}, the PBH measures {counts[t]}"
