@@ -574,8 +574,18 @@ def modal_certificate(A, B, C, *, scale: float, tol: float) -> ModalCertificate 
     low_c = np.minimum(up_c, [float((upper_c * decoupling)[labels == c].min()) for c in range(k)])
     low_o = np.minimum(up_o, [float((upper_o * decoupling)[labels == c].min()) for c in range(k)])
     lo, hi = tol / FRAGILITY_FACTOR, tol * FRAGILITY_FACTOR
-    need_c = (m > 0) & ((mult > 1) | ((low_c <= hi) & (up_c >= lo)))
-    need_o = (p > 0) & ((mult > 1) | ((low_o <= hi) & (up_o >= lo)))
+    # A measure at a computed eigenvalue certifies nothing beyond the eigenvalue's own
+    # first-order error (see below); where that error alone exceeds the window, measuring
+    # would not decide, and the cluster is left undecided without the cost.
+    # (For a cluster of several copies the measure is taken at their mean, which is as
+    # accurate as the cluster's invariant subspace, not as its scattered members: the
+    # rounding level is used there.)
+    error = _EIGENVALUE_ERROR * _EPS * kappa * norm_A / scale
+    radius = np.array([float(error[labels == c].max()) if mult[c] == 1
+                       else _EIGENVALUE_ERROR * n * _EPS * norm_A / scale for c in range(k)])
+    useful = radius <= hi
+    need_c = (m > 0) & useful & ((mult > 1) | ((low_c <= hi) & (up_c >= lo)))
+    need_o = (p > 0) & useful & ((mult > 1) | ((low_o <= hi) & (up_o >= lo)))
     copies_c, copies_o = [None] * k, [None] * k
     measured_c, measured_o = np.zeros(k, dtype=bool), np.zeros(k, dtype=bool)
     local_both = {}
@@ -640,8 +650,6 @@ def modal_certificate(A, B, C, *, scale: float, tol: float) -> ModalCertificate 
     # and sigma_min([A - z I, B]) >= sigma_min([A - lambda I, B]) - |z - lambda| (Weyl), so
     # the lower figures drop by that radius (negligible unless the eigenvalue is ill
     # conditioned, as in long non-normal chains).
-    error = _EIGENVALUE_ERROR * _EPS * kappa * norm_A / scale
-    radius = np.array([float(error[labels == c].max()) for c in range(k)])
     low_c = np.maximum(0.0, np.minimum(low_c, up_c - radius))
     low_o = np.maximum(0.0, np.minimum(low_o, up_o - radius))
     return ModalCertificate(reps, mult, up_c, up_o, low_c, low_o, measured_c, measured_o,
