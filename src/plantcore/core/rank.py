@@ -2,17 +2,19 @@
 
 Every numerical rank that plantcore decides is decided from singular values (of a small
 block produced by orthogonal transformations, never of a Krylov matrix) and recorded as a
-:class:`RankDecision`.  A decision is *fragile* when a kept or dropped singular value lies
-within a factor :data:`FRAGILITY_FACTOR` of the tolerance, which means that a modestly
-different tolerance would change the answer.
+:class:`RankDecision`.  A decision is *fragile* when its outcome depends on the tolerance:
+a kept or dropped singular value lies within a factor :data:`FRAGILITY_FACTOR` of the
+tolerance (the *window* ``[tol / 100, 100 tol]``) and no second method has shown the
+outcome to be the same across the window, or when a second method contradicts it (see
+``RankDecision.window_outcome`` and :mod:`plantcore.structure.reconcile`).
 
 Default tolerance
 -----------------
-Ranks are decided on the equilibrated model (see :mod:`plantcore.core.equilibration`), with singular values
-measured **relative to the model's scale** ``max(||A||_F, ||B||_F, ||C||_F)`` (after input and
-output columns/rows have been scaled to that size, see
-:func:`~plantcore.core.equilibration.io_scaled`).  The default
-relative tolerance is :data:`DEFAULT_RELATIVE_TOLERANCE` ``= 5e-11``, chosen as follows:
+Ranks are decided on the equilibrated model (see :mod:`plantcore.core.equilibration`), with
+singular values measured **relative to the model's scale** ``max(||A||_F, ||B||_F,
+||C||_F)`` (after input and output columns/rows have been scaled to that size, see
+:func:`~plantcore.core.equilibration.io_scaled`).  The default relative tolerance is
+:data:`DEFAULT_RELATIVE_TOLERANCE` ``= 5e-11``, chosen as follows:
 
 * A model that went through a similarity transformation of condition number up to about
   ``1e3`` carries rounding noise near ``1e3 * eps ~ 2e-13`` relative.  Such noise must be
@@ -66,11 +68,12 @@ class RankDecision:
     tolerance : float
         The relative tolerance used.
     conflict : bool
-        True when this decision is a cross-check that contradicts another decision (see
+        True when this decision is a second method that contradicts another decision (see
         :mod:`plantcore.structure.certificate`); the answer then depends on the method and is fragile.
     check_only : bool
-        True for a one-sided cross-check: it decides nothing itself, so only a
-        ``conflict`` (not its margins) makes it fragile.
+        True for a check that decides nothing itself (the certificate checking the
+        staircase), so only a ``conflict`` or its ``window_outcome`` (not its margins)
+        makes it fragile.
     window_outcome : str or None
         ``None`` when the decision was not examined across the tolerance window.  Otherwise
         the window ``[tolerance / 100, 100 tolerance]`` was examined by an independent

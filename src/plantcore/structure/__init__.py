@@ -1,4 +1,4 @@
-"""Layer 1, the structure of a model: staircase forms, the modal cross-check, the Kalman
+"""Layer 1, the structure of a model: staircase forms, the modal certificate, the Kalman
 decomposition, the minimal realization, per-mode classification and the exact path.
 
 Imports only :mod:`plantcore.core`.
