@@ -25,75 +25,25 @@ import warnings
 
 import numpy as np
 import pytest
+from four_block import ZERO_BLOCKS, assemble, certificate_of, cuts, diag_block, hide
 
 import plantcore as pc
 from plantcore.core.rank import FRAGILITY_FACTOR, RankDecision
-from plantcore.structure.certificate import modal_certificate
 from plantcore.structure.kalman import _prepare
-from plantcore.structure.reconcile import (certificate_decisions, confirm_window,
-                                           spectral_decomposition, supersede)
+from plantcore.structure.reconcile import (
+    certificate_decisions,
+    confirm_window,
+    spectral_decomposition,
+    supersede,
+)
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
-ZERO_BLOCKS = [(0, 1), (0, 3), (2, 0), (2, 1), (2, 3), (3, 0), (3, 1)]
-
-
-# --- generator (textbook four-block Kalman form, exact zeros) ----------------------------
-
-def rand_orth(n, rng):
-    q, r = np.linalg.qr(rng.standard_normal((n, n)))
-    return q * np.sign(np.diag(r))[None, :]
-
-
-def cuts(sizes):
-    c = np.cumsum((0,) + tuple(sizes))
-    return [slice(int(c[i]), int(c[i + 1])) for i in range(4)]
-
-
-def assemble(diag, sizes, m, p, rng):
-    n = sum(sizes)
-    bl = cuts(sizes)
-    A = rng.standard_normal((n, n)) / math.sqrt(n)
-    for i in range(4):
-        A[bl[i], bl[i]] = diag[i]
-    for i, j in ZERO_BLOCKS:
-        A[bl[i], bl[j]] = 0.0
-    B = rng.standard_normal((n, m))
-    B[bl[2], :] = 0.0
-    B[bl[3], :] = 0.0
-    C = rng.standard_normal((p, n))
-    C[:, bl[1]] = 0.0
-    C[:, bl[3]] = 0.0
-    return A, B, C
-
-
-def diag_block(k, rng):
-    if k == 0:
-        return np.zeros((0, 0))
-    M = rng.standard_normal((k, k)) / math.sqrt(k) - (1.0 + rng.uniform(0.0, 1.0)) * np.eye(k)
-    ev = np.linalg.eigvals(M)
-    if max(ev.real) > -0.05:
-        M -= (max(ev.real) + 0.2) * np.eye(k)
-    return M
-
-
-def hide(Az, Bz, Cz, cond, rng):
-    n = Az.shape[0]
-    U, V = rand_orth(n, rng), rand_orth(n, rng)
-    s = np.geomspace(1.0, 1.0 / cond, n) if cond != 1.0 else np.ones(n)
-    T = (U * s[None, :]) @ V.T
-    Ti = (V / s[None, :]) @ U.T
-    return T @ Az @ Ti, T @ Bz, Cz @ Ti
 
 
 def hidden_model(sizes, seed, m=2, p=2, cond=1.0):
     rng = np.random.default_rng([5, seed])
     Az, Bz, Cz = assemble([diag_block(k, rng) for k in sizes], sizes, m, p, rng)
     return hide(Az, Bz, Cz, cond, rng)
-
-
-def certificate_of(A, B, C, tol=None):
-    p = _prepare((A, B, C), tol)
-    return p, modal_certificate(p.A, p.B_dec, p.C_dec, scale=p.scale, tol=p.tol)
 
 
 def weak_model():

@@ -82,7 +82,7 @@ from scipy.spatial import cKDTree
 
 from plantcore.core.rank import FRAGILITY_FACTOR
 
-__all__ = ["ModalCertificate", "modal_certificate"]
+__all__ = ["ModalCertificate", "modal_certificate", "schur_eigenvalues"]
 
 _EPS = np.finfo(float).eps
 _CLUSTER_FACTOR = _EPS ** (1.0 / 3.0)
@@ -380,6 +380,18 @@ def _staircase_values(A, B) -> np.ndarray:
     return np.sort(np.asarray(values[:k] + [math.inf] * max(0, k - len(values))))
 
 
+def schur_eigenvalues(T: np.ndarray) -> np.ndarray:
+    """Eigenvalues of a real quasi-triangular (real Schur) matrix, by diagonal position;
+    a 2 x 2 block ``[[a, b], [c, d]]`` with ``b c < 0`` gives ``(a + d) / 2 +- i sqrt(-b c)``
+    (standardized blocks have ``a = d``)."""
+    ev = np.diag(T).astype(complex)
+    for i in np.nonzero(np.diag(T, -1))[0]:
+        a, b, c, d = T[i, i], T[i, i + 1], T[i + 1, i], T[i + 1, i + 1]
+        im = math.sqrt(abs(b * c)) if b * c < 0 else 0.0
+        ev[i], ev[i + 1] = complex((a + d) / 2, im), complex((a + d) / 2, -im)
+    return ev
+
+
 class _Schur:
     """The real Schur form of ``A`` and, lazily, its complex form (internal)."""
 
@@ -412,13 +424,7 @@ class _Schur:
         return cached
 
     def eigenvalues(self) -> np.ndarray:
-        T = self.T
-        ev = np.diag(T).astype(complex)
-        for i in np.nonzero(np.diag(T, -1))[0]:
-            a, b, c, d = T[i, i], T[i, i + 1], T[i + 1, i], T[i + 1, i + 1]
-            im = math.sqrt(abs(b * c)) if b * c < 0 else 0.0
-            ev[i], ev[i + 1] = complex((a + d) / 2, im), complex((a + d) / 2, -im)
-        return ev
+        return schur_eigenvalues(self.T)
 
 
 def _measure(schur: _Schur, X, lam: complex, side: str, k: int) -> np.ndarray:

@@ -34,6 +34,7 @@ import scipy.linalg
 from scipy.linalg import lapack
 
 from plantcore.core.rank import FRAGILITY_FACTOR, RankDecision
+from plantcore.structure.certificate import schur_eigenvalues
 
 __all__ = ["certificate_decisions", "confirm_window", "spectral_decomposition"]
 
@@ -154,12 +155,9 @@ class SpectralDecomposition:
 
 
 def _positions_part(T, reps, labels):
-    ev = np.diag(T).astype(complex)
+    """The part of each diagonal position of a real Schur form (nearest cluster)."""
+    ev = schur_eigenvalues(T)
     sub = np.nonzero(np.diag(T, -1))[0]
-    for i in sub:
-        a, b, c, d = T[i, i], T[i, i + 1], T[i + 1, i], T[i + 1, i + 1]
-        im = np.sqrt(abs(b * c)) if b * c < 0 else 0.0
-        ev[i], ev[i + 1] = complex((a + d) / 2, im), complex((a + d) / 2, -im)
     part = labels[np.argmin(np.abs(ev[:, None] - reps[None, :]), axis=1)]
     part[sub + 1] = part[sub]            # a 2 x 2 block belongs to one part
     return part

@@ -24,7 +24,7 @@ from scipy.linalg import lapack
 from plantcore.core.equilibration import Equilibration, equilibrate, io_scaled
 from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.core.rank import FRAGILITY_FACTOR, RankDecision, any_fragile, resolve_tolerance
-from plantcore.structure.certificate import modal_certificate
+from plantcore.structure.certificate import modal_certificate, schur_eigenvalues
 from plantcore.structure.reconcile import confirm_window, supersede
 from plantcore.structure.staircase_kernels import reduce_staircase
 
@@ -172,11 +172,7 @@ def _spectral_staircase(A, B, C, cert, *, scale, tol, label):
         return None
     controllable = copies == 0
     T, Q = scipy.linalg.schur(A, output="real")
-    ev = np.diag(T).astype(complex)
-    for i in np.nonzero(np.diag(T, -1))[0]:
-        a, b, c, d = T[i, i], T[i, i + 1], T[i + 1, i], T[i + 1, i + 1]
-        im = np.sqrt(abs(b * c)) if b * c < 0 else 0.0
-        ev[i], ev[i + 1] = complex((a + d) / 2, im), complex((a + d) / 2, -im)
+    ev = schur_eigenvalues(T)
     select = controllable[np.argmin(np.abs(ev[:, None] - cert.eigenvalues[None, :]), axis=1)]
     sub = np.nonzero(np.diag(T, -1))[0]
     select[sub + 1] = select[sub]
