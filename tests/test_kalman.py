@@ -332,3 +332,19 @@ def test_accuracy_estimates_above_the_exact_size(monkeypatch):
     assert estimated.residual >= true_a            # doubled probe estimate: above the truth
     assert estimated.residual <= 10 * max(exact.residual, true_a)
     assert estimated.condition == pytest.approx(exact.condition, rel=1e-3)
+
+
+def test_whole_model_contradiction_falls_back_to_the_quotient():
+    # A seeded draw of benchmarks/trust_study.py's scaled family (n = 31, parts
+    # (8, 8, 8, 7), states scaled by 2^k with |k| <= 20) whose whole-model observability
+    # staircase finds no unobservable direction although the controllable part has 8.
+    # That contradiction proves the whole-model staircase kept noise: the quotient by
+    # R ∩ N decides, the contradicting count stays in the record as superseded, and the
+    # answer is returned (flagged, as the certificate disagrees) instead of refused.
+    import test_reconcile
+    km = test_reconcile._load_known_structure().draw("scaled", (20261203, 54))
+    kd = pc.kalman_decomposition(km.model())
+    labels = [d.label for d in kd.decisions if d.superseded]
+    assert any("observability of the whole model" in text for text in labels)
+    sizes = tuple(int(k) for k in kd.sizes)
+    assert sizes == tuple(km.sizes) or kd.fragile

@@ -119,6 +119,32 @@ def test_confirm_window_clears_near_tolerance_decisions_only_when_sizes_match():
     assert confirm_window((near,), None, sizes)[0] is near
 
 
+def test_confirm_window_clears_a_value_dropped_inside_the_window():
+    # The staircase dropped a value 10x below the tolerance; the certificate proves the
+    # same sizes at tol / 100, where the staircase would have kept it, and then decides
+    # (certificate_finds_more), so the returned answer is the same across the window.
+    sizes = (4, 3, 3, 2)
+    A, B, C = hidden_model(sizes, 0)
+    _, cert = certificate_of(A, B, C)
+    t = cert.tolerance
+    dropped = RankDecision("controllability step 3", 0, 1, math.inf, t / 10, t)
+    assert dropped.fragile
+    out = confirm_window((dropped,), cert, sizes)
+    assert out[0].window_outcome == "" and not out[0].fragile
+
+
+def test_general_model_with_deep_dropped_values_is_right_and_unflagged():
+    # A seeded draw of benchmarks/trust_study.py's general family (n = 43, parts
+    # (25, 9, 3, 6), hiding condition 636) whose controllability staircase drops 5e-12
+    # and 2e-11 (inside the window) at its last two steps; every answer is right and,
+    # the certificate confirming the window, none is fragile.
+    km = _load_known_structure().draw("general", (20261203, 0))
+    assert tuple(km.sizes) == (25, 9, 3, 6)
+    answers = _answers(km)
+    assert answers == {"sizes": ((25, 9, 3, 6), False), "minimal_order": (25, False),
+                       "controllable_rank": (34, False), "observable_rank": (28, False)}
+
+
 def test_confirm_window_keeps_fragile_when_window_changes():
     _, cert = certificate_of(*weak_model())
     near = near_tolerance(cert.tolerance)

@@ -381,9 +381,12 @@ def _decomposition(p: _Prepared) -> KalmanDecomposition:
         dropped = max([0.0] + [d.largest_dropped for d in decisions_c])
         if dropped <= _QUOTIENT_MAX_DROPPED * n * np.finfo(float).eps:
             found = _part4_from_quotient(p, A_w, Cq_t, n1, nc)
-        del Cq_t
         if found is None:
-            found = _part4_from_whole_model(p, W1, n1, nc, decisions_c)
+            try:
+                found = _part4_from_whole_model(p, W1, n1, nc, decisions_c)
+            except NumericalBreakdown as exc:
+                found = _part4_after_contradiction(p, A_w, Cq_t, n1, nc, exc)
+        del Cq_t
         decisions_obs, N_q, T4, Lam = found
         n4 = N_q.shape[1]
         if T4 is None:
@@ -595,7 +598,8 @@ class _Part4(NamedTuple):
     Lam: np.ndarray | None  # N_q^T A_q N_q, when the staircase gave it
 
 
-def _part4_from_quotient(p: _Prepared, A_w, Cq_t, n1: int, nc: int):
+def _part4_from_quotient(p: _Prepared, A_w, Cq_t, n1: int, nc: int, *,
+                         accept_fragile: bool = False):
     """Part 4 from the quotient of the model by R ∩ N (internal; ``None`` when not clear-cut).
 
     In the W1 coordinates R ∩ N is the coordinate block ``n1:nc``; it is A-invariant and
@@ -608,8 +612,9 @@ def _part4_from_quotient(p: _Prepared, A_w, Cq_t, n1: int, nc: int):
 
     Its data carry the rounding of the first two staircases besides the model's own; the
     caller uses it only when those staircases dropped nothing beyond rounding, and it is
-    given up (``None``) when one of its decisions is fragile or the decisions disagree,
-    so that the whole model's staircase, which sees only the model's own rounding, decides.
+    given up (``None``) when one of its decisions is fragile (unless ``accept_fragile``) or
+    the decisions disagree, so that the whole model's staircase, which sees only the
+    model's own rounding, decides.
     Returns a :class:`_Part4` with ``N_q`` the ``(n1 + n3, n4)`` orthonormal basis and
     ``Lam = N_q^T A_q N_q``, the quotient's unobservable block, from the staircase form.
     """
@@ -625,10 +630,36 @@ def _part4_from_quotient(p: _Prepared, A_w, Cq_t, n1: int, nc: int):
                             label="observability", overwrite_a=True)
     del Aq_t
     n4 = nq - red3.rank
-    if n4 > n3 or any_fragile(red3.decisions):
+    if n4 > n3 or (any_fragile(red3.decisions) and not accept_fragile):
         return None
     Lam = np.array(red3.A[nq - n4:, nq - n4:].T, order="F")
     return _Part4(tuple(red3.decisions), red3.form_U(n4, first=False), None, Lam)
+
+
+def _part4_after_contradiction(p: _Prepared, A_w, Cq_t, n1: int, nc: int, exc):
+    """Part 4 from the quotient when the whole model's staircase contradicts R ∩ N
+    (internal).
+
+    Every unobservable direction of the controllable part is unobservable in the whole
+    model, so a whole-model staircase that finds fewer has kept rounding noise as
+    couplings (the failure Paige 1981 describes); the quotient by R ∩ N contains R ∩ N by
+    construction and decides instead.  The contradicting decisions stay in the record as
+    superseded, and the modal certificate checks the result as always.  Re-raises ``exc``
+    when the quotient cannot decide either.
+    """
+    found = _part4_from_quotient(p, A_w, Cq_t, n1, nc, accept_fragile=True)
+    if found is None:
+        raise exc
+    n = A_w.shape[0]
+    n2 = nc - n1
+    nN = exc.context.get("nN")
+    if nN is None:          # another contradiction (the subspaces do not meet as they must)
+        raise exc
+    record = RankDecision(
+        f"observability of the whole model: {nN} unobservable directions, fewer "
+        f"than the {n2} of the controllable part (superseded by the quotient by R ∩ N)",
+        n - nN, n, math.inf, 0.0, p.tol, superseded=True)
+    return found._replace(decisions=(record,) + tuple(found.decisions))
 
 
 def _part4_from_whole_model(p: _Prepared, W1, n1: int, nc: int, decisions_c):

@@ -109,8 +109,7 @@ def _with_undecided(outcome: str, cert) -> str:
 def confirm_window(decisions, cert, sizes, *, rank: int | None = None) -> tuple:
     """Staircase decisions, marked as examined across the window when the certificate
     gives the same part sizes (or, with ``rank``, the same number of modes that are not
-    uncontrollable) at every tolerance of it, and the decision dropped nothing inside the
-    window."""
+    uncontrollable) at every tolerance of it."""
     if cert is None:
         return tuple(decisions)
     t = cert.tolerance
@@ -122,13 +121,12 @@ def confirm_window(decisions, cert, sizes, *, rank: int | None = None) -> tuple:
                 return tuple(decisions)
     elif any(tuple(v) != tuple(sizes) for v in cert.window_sizes().values()):
         return tuple(decisions)
-    # Only the kept side is confirmed: a value dropped inside the window stays fragile,
-    # because the certificate is measured in the same (equilibrated) coordinates and
-    # shares any weakness of their scaling, while a kept value near the tolerance whose
-    # modes the certificate finds well away from it is confirmed by a second method.
-    return tuple(d if d.check_only or d.superseded
-                 or d.largest_dropped >= d.tolerance / FRAGILITY_FACTOR
-                 else dataclasses.replace(d, window_outcome="") for d in decisions)
+    # Both sides are confirmed.  A value the staircase dropped inside the window would be
+    # kept at a smaller tolerance, but the certificate proves the same modes uncontrollable
+    # there too, and it overrules a staircase that keeps them (certificate_finds_more), so
+    # the answer returned is the same at every tolerance of the window.
+    return tuple(d if d.check_only or d.superseded else dataclasses.replace(d, window_outcome="")
+                 for d in decisions)
 
 
 def supersede(decisions) -> tuple:
