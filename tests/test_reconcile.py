@@ -25,6 +25,7 @@ import warnings
 
 import numpy as np
 import pytest
+from numpy.testing import assert_allclose
 from four_block import ZERO_BLOCKS, assemble, certificate_of, cuts, diag_block, hide
 
 import plantcore as pc
@@ -215,7 +216,7 @@ def test_spectral_decomposition_accepts_zeroed_entries_up_to_100_tol():
 
 
 @pytest.mark.parametrize("C", [[[1.0, 2.0]], [[1.0, 0.0]]], ids=["C=[1,2]", "C=[1,0]"])
-def test_shared_cluster_is_not_split_spectrally(C):
+def test_shared_cluster_is_split_by_its_own_block(C):
     # Two identical decoupled subsystems x' = a x with one shared input: A = a I, B = [1; 1].
     # R = span([1, 1]), N = ker C (one-dimensional, not R): R ∩ N = 0, R + N = R^2, so the
     # sizes are (1, 0, 0, 1) (Kalman 1963) and the eigenvalue a has one copy in part 1 and
@@ -228,8 +229,10 @@ def test_shared_cluster_is_not_split_spectrally(C):
     assert cert.unobservable_copies().tolist() == [1]
     assert cert.shared_clusters().tolist() == [True]
     assert cert.sizes() == (1, 0, 0, 1)
-    # documented: None when a cluster is shared between parts
-    assert spectral_decomposition(p.A, p.B, p.C, cert) is None
+    # the shared block is split by its own small staircases
+    sd = spectral_decomposition(p.A, p.B, p.C, cert)
+    assert sd.sizes == (1, 0, 0, 1) and sd.zeroed < cert.tolerance
+    assert_allclose(sd.T @ sd.A @ sd.T_inv, p.A, atol=1e-14)
     kd = pc.kalman_decomposition((A, B, C))
     assert tuple(kd.sizes) == (1, 0, 0, 1) and not kd.fragile
     assert spectral_decomposition(p.A, p.B, p.C, None) is None

@@ -82,7 +82,7 @@ from scipy.spatial import cKDTree
 
 from plantcore.core.rank import FRAGILITY_FACTOR
 
-__all__ = ["ModalCertificate", "modal_certificate", "schur_eigenvalues"]
+__all__ = ["ModalCertificate", "modal_certificate", "schur_eigenvalues", "controllable_basis"]
 
 _EPS = np.finfo(float).eps
 _CLUSTER_FACTOR = _EPS ** (1.0 / 3.0)
@@ -262,7 +262,31 @@ def _clusters(values: np.ndarray, radii: np.ndarray, base: float) -> np.ndarray:
             if float(np.abs(z[:, None] - z[None, :]).max()) <= bound[s]:
                 labels[group] = group[0]
                 free[group] = False
-    return np.unique(labels, return_inverse=True)[1]
+    return _merge_concentric(values, np.unique(labels, return_inverse=True)[1], base)
+
+
+def _merge_concentric(values: np.ndarray, labels: np.ndarray, base: float) -> np.ndarray:
+    """Merge groups whose centres agree to rounding: the copies of one eigenvalue with
+    Jordan blocks of different sizes scatter over rings of different radii
+    (``eps^(1/k)``), which the ring rule of :func:`_clusters` keeps apart, but the mean of
+    each ring is the eigenvalue to about ``eps ||A||`` (the trace of the block is exact to
+    rounding).  A group of several members is merged with any group or single eigenvalue
+    whose centre lies within ``1e3 n eps ||A||`` of its own."""
+    k = int(labels.max()) + 1
+    size = np.bincount(labels, minlength=k)
+    if not np.any(size > 1):
+        return labels
+    centre = np.array([values[labels == c].mean() for c in range(k)])
+    radius = _ERROR_FACTOR * values.size * _EPS * base
+    pairs = cKDTree(np.column_stack([centre.real, centre.imag])).query_pairs(
+        radius, output_type="ndarray").reshape(-1, 2)
+    pairs = pairs[(size[pairs[:, 0]] > 1) | (size[pairs[:, 1]] > 1)]
+    if not pairs.size:
+        return labels
+    graph = scipy.sparse.coo_matrix((np.ones(len(pairs)), (pairs[:, 0], pairs[:, 1])),
+                                    shape=(k, k))
+    _, merged = connected_components(graph, directed=False)
+    return np.unique(merged[labels], return_inverse=True)[1]
 
 
 def _separation(values: np.ndarray, labels: np.ndarray, kappa: np.ndarray) -> np.ndarray:
@@ -456,14 +480,14 @@ def _cluster_copy_values(schur: _Schur, B, C, members: np.ndarray, lam: complex,
     return _decoupling_zero_values(Ts[:k, :k].T, (C @ Qs)[:, :k].T, lam, scale)
 
 
-def _subspace(A, X, threshold: float) -> np.ndarray:
+def controllable_basis(A, X, threshold: float) -> np.ndarray:
     """Orthonormal basis of the controllable subspace of a small pair by the orthogonal
     staircase (Van Dooren 1981), ranks decided at the absolute ``threshold``."""
     k = A.shape[0]
-    basis = np.zeros((k, 0), dtype=complex)
-    Q = np.eye(k, dtype=complex)
-    A = np.array(A, dtype=complex)
-    X = np.array(X, dtype=complex)
+    kind = np.result_type(A, X, float)       # real data stay real
+    Q = np.eye(k, dtype=kind)
+    A = np.array(A, dtype=kind)
+    X = np.array(X, dtype=kind)
     done = 0
     while done < k and X.size:
         U, s, _ = np.linalg.svd(X)
@@ -476,8 +500,7 @@ def _subspace(A, X, threshold: float) -> np.ndarray:
         Q[:, rest] = Q[:, rest] @ U
         X = A[done + r:, done:done + r]
         done += r
-    basis = Q[:, :done]
-    return basis
+    return Q[:, :done]
 
 
 def _local_split(schur: _Schur, B, C, members: np.ndarray, threshold: float) -> int | None:
@@ -508,8 +531,8 @@ def _local_split(schur: _Schur, B, C, members: np.ndarray, threshold: float) -> 
     else:
         B_c = Bq[:k]
     C_c = Cq[:, :k]
-    R = _subspace(T11, B_c, threshold)
-    N_perp = _subspace(T11.T, C_c.T, threshold)         # observable directions (dual)
+    R = controllable_basis(T11, B_c, threshold)
+    N_perp = controllable_basis(T11.T, C_c.T, threshold)         # observable directions (dual)
     # N_c is the orthogonal complement of the observable directions
     if N_perp.shape[1]:
         full = np.linalg.qr(N_perp, mode="complete")[0]
@@ -523,6 +546,25 @@ def _local_split(schur: _Schur, B, C, members: np.ndarray, threshold: float) -> 
     rank_sum = int(np.count_nonzero(s > 1e-8))
     # part 4 of the block: N without R ∩ N, of dimension dim(R + N) - dim R
     return rank_sum - R.shape[1]
+
+
+def _eigen_residuals(A, lam, VL, VR, block: int = 256):
+    """Norms of the residuals ``w_i^H (A - lambda_i I)`` and ``(A - lambda_i I) v_i`` of the
+    computed left and right eigenvectors (columns of ``VL``, ``VR``), in blocks of
+    columns so that no further ``n x n`` complex array is formed."""
+    n = A.shape[0]
+    left, right = np.empty(n), np.empty(n)
+    for start in range(0, n, block):
+        sl = slice(start, min(n, start + block))
+        W, V, z = VL[:, sl], VR[:, sl], lam[sl]
+        # w^H A = (A^T conj(w))^T, taken as two real products
+        WA = A.T @ W.real - 1j * (A.T @ W.imag)          # columns: (w^H A)^T
+        WA -= np.conj(W) * z[None, :]
+        left[sl] = np.linalg.norm(WA, axis=0)
+        AV = A @ V.real + 1j * (A @ V.imag)
+        AV -= V * z[None, :]
+        right[sl] = np.linalg.norm(AV, axis=0)
+    return left, right
 
 
 def modal_certificate(A, B, C, *, scale: float, tol: float) -> ModalCertificate | None:
@@ -558,10 +600,16 @@ def modal_certificate(A, B, C, *, scale: float, tol: float) -> ModalCertificate 
     VR = VR / np.linalg.norm(VR, axis=0)
     overlap = np.abs(np.einsum("ij,ij->j", VL.conj(), VR))
     kappa = np.where(overlap > 0, 1.0 / np.maximum(overlap, 1e-300), math.inf)
-    floor = n * _EPS
-    upper_c = (np.linalg.norm(VL.conj().T @ B, axis=1) / scale + floor) if m else np.zeros(n)
-    upper_o = (np.linalg.norm(C @ VR, axis=0) / scale + floor) if p else np.zeros(n)
     norm_A = float(np.linalg.norm(A))
+    # the residuals ||w^H (A - lambda I)|| and ||(A - lambda I) v||, measured, plus the
+    # rounding of measuring them (sqrt(n) eps ||A||, common practice for the typical
+    # error of an inner product of length n)
+    floor = math.sqrt(n) * _EPS * norm_A / scale
+    res_l, res_r = _eigen_residuals(A, lam, VL, VR)
+    upper_c = (np.hypot(np.linalg.norm(VL.conj().T @ B, axis=1), res_l) / scale + floor
+               if m else np.zeros(n))
+    upper_o = (np.hypot(np.linalg.norm(C @ VR, axis=0), res_r) / scale + floor
+               if p else np.zeros(n))
     # Error discs: the first-order error of a computed eigenvalue is about
     # kappa eps ||A||; for the scattered copies of a defective eigenvalue of multiplicity k
     # this is the radius eps^(1/k) ||A|| of their ring, so copies of one eigenvalue link up
@@ -603,6 +651,7 @@ def modal_certificate(A, B, C, *, scale: float, tol: float) -> ModalCertificate 
         for i, value in enumerate(positions):
             pos_label[i] = labels[int(np.argmin(np.abs(lam - value)))]
         done = np.zeros(k, dtype=bool)
+        partners = {}          # complex clusters measured with their conjugate
         for c in range(k):
             if done[c] or not (need_c[c] or need_o[c]):
                 continue
@@ -639,6 +688,7 @@ def modal_certificate(A, B, C, *, scale: float, tol: float) -> ModalCertificate 
             done[c] = True
             if partner is not None:
                 done[partner] = True
+                partners[c], partners[partner] = partner, c
         # clusters shared between parts: which copies are in neither subspace
         for c in range(k):
             if mult[c] < 2 or not (measured_c[c] or measured_o[c]) or m == 0 or p == 0:
@@ -646,10 +696,17 @@ def modal_certificate(A, B, C, *, scale: float, tol: float) -> ModalCertificate 
             copies = [copies_c[c], copies_o[c]]
             u = int(np.count_nonzero(copies[0] <= tol)) if copies[0] is not None else 0
             v = int(np.count_nonzero(copies[1] <= tol)) if copies[1] is not None else 0
-            if (0 < u < mult[c]) or (0 < v < mult[c]):
+            if ((0 < u < mult[c]) or (0 < v < mult[c])) and c not in local_both:
                 members = pos_label == c
+                partner = partners.get(c)
+                if partner is not None:
+                    # a 2 x 2 block of the real Schur form holds one copy of each
+                    members |= pos_label == partner
                 both = _local_split(schur, B, C, members, tol * scale)
                 if both is not None:
+                    if partner is not None:
+                        local_both[partner] = both // 2
+                        both //= 2
                     local_both[c] = both
     # A measure taken at a computed eigenvalue certifies only the computed point: the
     # eigenvalue itself may lie anywhere within its first-order error ``kappa eps ||A||``,

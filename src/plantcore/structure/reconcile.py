@@ -27,6 +27,7 @@ decomposition that the certificate supports from spectral subspaces:
 from __future__ import annotations
 
 import dataclasses
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -34,7 +35,7 @@ import scipy.linalg
 from scipy.linalg import lapack
 
 from plantcore.core.rank import FRAGILITY_FACTOR, RankDecision
-from plantcore.structure.certificate import schur_eigenvalues
+from plantcore.structure.certificate import controllable_basis, schur_eigenvalues
 
 __all__ = ["certificate_decisions", "confirm_window", "spectral_decomposition"]
 
@@ -161,52 +162,151 @@ def _positions_part(T, reps, labels):
     return part
 
 
+def _orthonormal_complement(X: np.ndarray, k: int, threshold: float = 1e-8) -> np.ndarray:
+    """An orthonormal basis of the orthogonal complement of ``range(X)`` in R^k."""
+    if X.shape[1] == 0:
+        return np.eye(k)
+    U, s, _ = np.linalg.svd(X, full_matrices=True)
+    return U[:, int(np.count_nonzero(s > threshold * max(1.0, s[0]))):]
+
+
+def _local_parts(A, B, C, threshold: float) -> list:
+    """Bases of the four Kalman parts of a small pair (its block of the Schur form).
+
+    R and the observable directions come from orthogonal staircases of the block
+    (P. Van Dooren, "The generalized eigenstructure problem in linear system theory",
+    IEEE Trans. Automatic Control 26(1), 111-129, 1981), N is the orthogonal complement
+    of the observable directions; then part 2 = R ∩ N, part 1 = R ⊖ part 2, part 4 =
+    N ⊖ part 2 and part 3 the complement of R + N (R. E. Kalman, "Mathematical
+    description of linear dynamical systems", SIAM J. Control 1(2), 152-192, 1963).
+    Cosines are judged at ``1e-8``, as in :func:`plantcore.structure.certificate._local_split`.
+    """
+    k = A.shape[0]
+    R = controllable_basis(A, B, threshold)
+    O = controllable_basis(A.T, C.T, threshold)        # observable directions (dual)
+    N = _orthonormal_complement(O, k)
+    # R a lies in N  <=>  O^T R a = 0
+    if R.shape[1]:
+        inside = _orthonormal_complement((O.T @ R).T, R.shape[1]) if O.shape[1] else \
+            np.eye(R.shape[1])
+        P2 = R @ inside
+        P1 = R @ _orthonormal_complement(inside, R.shape[1])
+    else:
+        P1 = P2 = np.zeros((k, 0))
+    P4 = N @ _orthonormal_complement(N.T @ P2, N.shape[1]) if N.shape[1] else np.zeros((k, 0))
+    P3 = _orthonormal_complement(np.hstack([P1, P2, P4]), k)
+    return [P1, P2, P3, P4]
+
+
 def spectral_decomposition(A, B, C, cert) -> SpectralDecomposition | None:
     """The Kalman decomposition from the certificate's part of every cluster.
 
-    Returns None when a cluster is shared between parts, the reordering fails, or the
-    entries set to zero exceed ``100 tol`` (the split is then not supported).
+    The real Schur form is reordered to put the clusters shared between parts first, then
+    the others in the part order (2, 1, 4, 3).  The shared block is decoupled from the rest
+    by one Sylvester equation (Bavely and Stewart 1979), so that its own small pair carries
+    its share of R and N and is split by :func:`_local_parts`; in the rest, one more
+    Sylvester equation decouples part 4 from part 1.  Returns None when the reordering
+    fails, a decoupling is ill conditioned, the parts found do not have the certificate's
+    sizes, or the entries set to zero exceed ``100 tol`` (the split is then not supported).
     """
-    if cert is None or np.any(cert.shared_clusters()):
+    if cert is None:
         return None
     n = A.shape[0]
+    shared = cert.shared_clusters()
     unc = cert.uncontrollable_copies() > 0
     uno = cert.unobservable_copies() > 0
     labels = 1 + uno.astype(int) + 2 * unc.astype(int)
+    labels[shared] = 0
     reps = cert.eigenvalues
     T, Q = scipy.linalg.schur(A, output="real")
-    for group in ((2,), (2, 1), (2, 1, 4)):
+    order = (0, 2, 1, 4, 3)
+    for end in range(1, len(order)):
         part = _positions_part(T, reps, labels)
-        select = np.isin(part, group)
+        select = np.isin(part, order[:end])
         if 0 < select.sum() < n:
             T, Q, *_, info = lapack.dtrsen(select.astype(np.int32), T, Q, job="N")
             if info != 0:
                 return None
     part = _positions_part(T, reps, labels)
-    n2, n1, n4, n3 = (int(np.sum(part == k)) for k in (2, 1, 4, 3))
-    if not np.array_equal(part, np.repeat([2, 1, 4, 3], [n2, n1, n4, n3])):
+    counts = [int(np.sum(part == k)) for k in order]
+    if not np.array_equal(part, np.repeat(order, counts)):
         return None
-    s2, s1 = slice(0, n2), slice(n2, n2 + n1)
-    s4, s3 = slice(n2 + n1, n2 + n1 + n4), slice(n2 + n1 + n4, n)
-    G = np.zeros((n, n))
-    G[s1, :n1] = np.eye(n1)
-    G[s2, n1:n1 + n2] = np.eye(n2)
-    G[s3, n1 + n2:n1 + n2 + n3] = np.eye(n3)
+    ns, n2, n1, n4, n3 = counts
+    S, rest = slice(0, ns), slice(ns, n)
+    Y = np.zeros((ns, n - ns))
+    if ns and ns < n:
+        Y = _decoupling(T[S, S], T[rest, rest], T[S, rest])
+        if Y is None:
+            return None
+    columns = [[], [], [], []]                 # per part, columns in Schur coordinates
+    if ns:
+        Bq, Cq = Q.T @ B, C @ Q
+        local = _local_parts(T[S, S], Bq[S] - Y @ Bq[rest], Cq[:, S],
+                             cert.tolerance * cert.scale)
+        for k, P in enumerate(local):
+            if P.shape[1]:
+                columns[k].append(np.vstack([P, np.zeros((n - ns, P.shape[1]))]))
+    # the rest, in its own coordinates: parts 2, 1, 4, 3 in this order
+    o2, o1, o4 = 0, n2, n2 + n1
+    o3 = o4 + n4
+    nr = n - ns
+    G_r = [np.zeros((nr, c)) for c in (n1, n2, n3, n4)]
+    G_r[0][o1:o1 + n1] = np.eye(n1)
+    G_r[1][o2:o2 + n2] = np.eye(n2)
+    G_r[2][o3:o3 + n3] = np.eye(n3)
     if n4:
-        W = np.zeros((n, n4))
-        W[s4] = np.eye(n4)
+        W = np.zeros((nr, n4))
+        W[o4:o4 + n4] = np.eye(n4)
         if n1:
-            W[s1] = scipy.linalg.solve_sylvester(T[s1, s1], -T[s4, s4], -T[s1, s4])
-        G[:, n - n4:] = np.linalg.qr(W)[0]
-    G_inv = np.linalg.inv(G)
+            T_r = T[rest, rest]
+            Y14 = _decoupling(T_r[o1:o1 + n1, o1:o1 + n1], T_r[o4:o4 + n4, o4:o4 + n4],
+                              T_r[o1:o1 + n1, o4:o4 + n4], limit=math.inf)
+            if Y14 is None:
+                return None
+            W[o1:o1 + n1] = Y14
+        G_r[3] = np.linalg.qr(W)[0]
+    for k, X in enumerate(G_r):
+        if X.shape[1]:
+            columns[k].append(np.vstack([Y @ X, X]))
+    parts = [np.hstack(c) if c else np.zeros((n, 0)) for c in columns]
+    sizes = tuple(P.shape[1] for P in parts)
+    if sum(sizes) != n or sizes != tuple(cert.sizes()):
+        return None
+    G = np.hstack(parts)
+    try:
+        G_inv = np.linalg.inv(G)
+    except np.linalg.LinAlgError:
+        return None
     T_e = Q @ G
     T_inv = G_inv @ Q.T
     Az = G_inv @ T @ G
     Bz = T_inv @ B
     Cz = C @ T_e
-    cuts = np.cumsum([0, n1, n2, n3, n4])
+    zeroed = _impose_kalman_zeros(Az, Bz, Cz, sizes, [np.linalg.norm(X) for X in (A, B, C)])
+    if zeroed > FRAGILITY_FACTOR * cert.tolerance:
+        return None
+    return SpectralDecomposition(T_e, T_inv, Az, Bz, Cz, sizes, zeroed)
+
+
+def _decoupling(T11, T22, T12, limit: float = 1e6):
+    """``Y`` with ``T11 Y - Y T22 = -T12`` (so that ``[[I, Y], [0, I]]`` block-diagonalizes
+    ``[[T11, T12], [0, T22]]``; Bavely and Stewart 1979), or None when it cannot be solved
+    or its norm exceeds ``limit`` (the blocks are then too close to decouple reliably)."""
+    try:
+        Y = scipy.linalg.solve_sylvester(T11, -T22, -T12)
+    except (np.linalg.LinAlgError, ValueError):
+        return None
+    if not np.all(np.isfinite(Y)) or np.linalg.norm(Y) > limit:
+        return None
+    return Y
+
+
+def _impose_kalman_zeros(Az, Bz, Cz, sizes, norms) -> float:
+    """Set the Kalman zero pattern exactly; return the largest entry set to zero, relative
+    to the norm of its matrix."""
+    cuts = np.cumsum([0, *sizes])
     blocks = [slice(int(cuts[i]), int(cuts[i + 1])) for i in range(4)]
-    norms = [max(float(np.linalg.norm(X)), 1e-300) for X in (A, B, C)]
+    norms = [max(float(x), 1e-300) for x in norms]
     zeroed = 0.0
     for i, j in ((0, 1), (0, 3), (2, 0), (2, 1), (2, 3), (3, 0), (3, 1)):
         block = Az[blocks[i], blocks[j]]
@@ -221,6 +321,4 @@ def spectral_decomposition(A, B, C, cert) -> SpectralDecomposition | None:
         if Cz[:, blocks[j]].size:
             zeroed = max(zeroed, float(np.abs(Cz[:, blocks[j]]).max()) / norms[2])
         Cz[:, blocks[j]] = 0.0
-    if zeroed > FRAGILITY_FACTOR * cert.tolerance:
-        return None
-    return SpectralDecomposition(T_e, T_inv, Az, Bz, Cz, (n1, n2, n3, n4), zeroed)
+    return zeroed
