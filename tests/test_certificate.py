@@ -215,3 +215,43 @@ def test_shared_scalar_cluster_split_by_ranks(seed):
     Q = rand_orth(k + extra, rng)
     _, cert = certificate_of(Q @ A @ Q.T, Q @ B, C @ Q.T)
     assert cert.sizes() == sizes
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_jordan_rings_of_one_eigenvalue_form_one_cluster(seed):
+    # Jordan blocks of sizes 1, 2 and 7 at 0.5, orthogonally hidden.  The computed copies
+    # scatter on rings of radius ~eps^(1/k) ||A|| for k = 1, 2, 7 (Wilkinson 1965, ch. 2),
+    # which the ring rule keeps apart; their centres agree to rounding, so the ten copies
+    # are one cluster.  B reaches only the 7-block through its last state and C reads only
+    # the 2-block at its first, so (by construction) 7 copies are controllable, 2 observable
+    # and none both: parts (0, 7, 2, 1).
+    rng = np.random.default_rng([12, seed])
+    Az = np.zeros((10, 10))
+    Az[0, 0] = 0.5
+    Az[1:3, 1:3] = jordan(0.5, 2)
+    Az[3:, 3:] = jordan(0.5, 7)
+    Bz = np.zeros((10, 1))
+    Bz[9, 0] = 1.0
+    Cz = np.zeros((1, 10))
+    Cz[0, 1] = 1.0
+    A, B, C = hide(Az, Bz, Cz, 1.0, rng)
+    _, cert = certificate_of(A, B, C)
+    assert cert.multiplicities.tolist() == [10]
+    assert cert.uncontrollable_copies().tolist() == [3]
+    assert cert.unobservable_copies().tolist() == [8]
+    assert cert.sizes() == (0, 7, 2, 1)
+
+
+def test_complex_eigenvalue_shared_by_three_parts():
+    # Three identical 2-state oscillators (eigenvalues -0.1 +- 2i) in parts 1, 3 and 4,
+    # one input and one output: each eigenvalue of the pair has a copy in every one of
+    # the three parts, so parts (2, 0, 2, 2).  The conjugate copies share the 2 x 2 blocks
+    # of the real Schur form and are split together.
+    rng = np.random.default_rng(31)
+    osc = np.array([[-0.1, 2.0], [-2.0, -0.1]])
+    d = [osc, np.zeros((0, 0)), osc, osc]
+    Az, Bz, Cz = assemble(d, (2, 0, 2, 2), 1, 1, rng)
+    A, B, C = hide(Az, Bz, Cz, 1.0, rng)
+    _, cert = certificate_of(A, B, C)
+    assert sorted(cert.multiplicities.tolist()) == [3, 3]
+    assert cert.sizes() == (2, 0, 2, 2)
