@@ -131,7 +131,8 @@ def test_text_report_warns_when_a_decision_is_fragile():
 
 def test_text_report_names_the_failing_verdicts():
     A = np.diag([0.5, -1.0])
-    a = pc.analyze((A, [[0.0], [1.0]], [[0.0, 1.0]]))
+    with pytest.warns(pc.HiddenModeWarning, match="0.5 .unstable"):   # the 0.5 mode is hidden
+        a = pc.analyze((A, [[0.0], [1.0]], [[0.0, 1.0]]))
     assert not a.stabilizable and not a.detectable
     text = a.to_text()
     assert "stabilizable  NO   the inputs cannot move the mode(s) 0.5" in text
@@ -154,6 +155,7 @@ def test_markdown_report():
     pc.StateSpaceModel([[0.0, 1.0], [-1.0, 0.0]], [[0.0], [1.0]], [[1.0, 0.0]], dt=None),
     pc.StateSpaceModel([[0.5, 0.1], [0.0, 1.0]], [[1.0], [0.0]], [[1.0, 1.0]], dt=0.2),
 ], ids=["zones", "static", "oscillator", "discrete-boundary"])
+@pytest.mark.filterwarnings("ignore::plantcore.HiddenModeWarning")  # discrete-boundary hides z = 1
 def test_dict_is_json_safe(model):
     a = pc.analyze(model)
     d = a.to_dict()
@@ -243,3 +245,53 @@ def test_minimal_read_off_the_decomposition_matches_minimal_realization(case):
     assert_allclose(got.model.C, ref.model.C, atol=1e-10 * max(np.linalg.norm(case.model.C), 1.0))
     assert_allclose(got.W.T @ got.V, np.eye(got.order), atol=1e-12)
     assert_allclose(got.V, ref.V, atol=1e-10)
+
+
+# --- removed modes that are not stable (issue 20, item 2) -----------------------------------
+# By construction (diagonal A, PBH test, M. L. J. Hautus 1969): the mode 0.5 has a zero row
+# of B, so the inputs cannot move it; the outputs see it.
+
+HIDDEN = (np.diag([-1.0, -2.0, 0.5]), [[1.0], [1.0], [0.0]], [[1.0, 1.0, 1.0]])
+
+
+def test_analysis_carries_and_warns_about_the_hidden_unstable_mode():
+    with pytest.warns(pc.HiddenModeWarning, match=r"0\.5 \(unstable, in the uncontrollable"):
+        a = pc.analyze(HIDDEN)
+    (mode,) = a.removed_unstable_modes
+    assert mode.part == "uncontrollable_observable" and mode.unstable
+    assert a.minimal.removed_unstable_modes == a.removed_unstable_modes
+    d = a.to_dict()
+    assert d["removed_unstable_modes"] == [{"value": [0.5, 0.0], "part": "uncontrollable_observable",
+                                            "unstable": True, "marginal": False}]
+    json.dumps(d, allow_nan=False)
+
+
+def test_text_and_markdown_put_the_hidden_mode_first():
+    with pytest.warns(pc.HiddenModeWarning):
+        a = pc.analyze(HIDDEN)
+    text = a.to_text()
+    warning = text.index("WARNING: the minimal realization removed 1 mode that is not stable")
+    assert warning < text.index("Kalman parts")
+    assert "hidden modes  YES" in text
+    md = a.to_markdown()
+    assert md.index("**WARNING: the minimal realization removed") < md.index("## Kalman parts")
+
+
+def test_stable_hidden_mode_gives_a_quiet_analysis():
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", pc.HiddenModeWarning)
+        a = pc.analyze((np.diag([-1.0, -2.0, -0.5]), HIDDEN[1], HIDDEN[2]))
+    assert a.removed_unstable_modes == () and a.minimal_order == 2
+    text = a.to_text()
+    assert "WARNING" not in text and "hidden modes  none" in text
+
+
+def test_inspect_shows_the_hidden_mode_without_a_python_warning(tmp_path, capsys, recwarn):
+    path = tmp_path / "hidden.toml"
+    pc.save_model(pc.StateSpaceModel(*HIDDEN), path)
+    assert main(["inspect", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "WARNING: the minimal realization removed 1 mode" in out
+    assert not [w for w in recwarn if issubclass(w.category, pc.HiddenModeWarning)]

@@ -387,3 +387,22 @@ def test_cli_reduce_bad_order_exits_2_without_output(tmp_path, capsys):
     assert not out.exists()
     assert main(["reduce", str(src), "-o", str(out), "--order", "2", "--max-error", "1"]) == 2
     assert not out.exists()
+
+
+def test_truncation_of_an_unstable_model_removes_no_unstable_mode():
+    # Poles fixed by construction (block triangular A): 0.5 and 2 unstable, the rest stable.
+    # The unstable part is kept unreduced, so nothing that is not stable is removed.
+    import warnings
+
+    rng = np.random.default_rng(20)
+    n = 6
+    Q = np.linalg.qr(rng.standard_normal((n, n)))[0]
+    A = Q @ (np.diag([2.0, 0.5, -1.0, -3.0, -10.0, -30.0])
+             + np.triu(rng.standard_normal((n, n)) * 0.1, 1)) @ Q.T
+    model = pc.StateSpaceModel(A, rng.standard_normal((n, 1)), rng.standard_normal((1, n)))
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", pc.HiddenModeWarning)
+        red = pc.balanced_truncation(model, order=3)
+    assert red.removed_unstable_modes == ()
+    ev = np.linalg.eigvals(red.model.A)
+    assert_allclose(np.sort(ev[ev.real > 0].real), [0.5, 2.0], rtol=1e-10)

@@ -253,3 +253,24 @@ def test_the_well_formedness_check_can_fail():
     with pytest.raises(AssertionError):
         assert_well_formed("<main><div>")
     assert_well_formed('<p>a<br><img src="x" alt="y"></p>')
+
+
+# --- removed modes that are not stable (issue 20, item 2) -----------------------------------
+
+def test_hidden_unstable_mode_is_shown_above_every_section(tmp_path):
+    # By construction (zero row of B, PBH test, Hautus 1969): 0.5 cannot be moved by the input.
+    model = (np.diag([-1.0, -2.0, 0.5]), [[1.0], [1.0], [0.0]], [[1.0, 1.0, 1.0]])
+    text = write_html_report(model, tmp_path / "hidden.html", progress=False).path.read_text(
+        encoding="utf-8")
+    alert = text.index('<div class="alert" role="alert">WARNING: the minimal realization removed')
+    assert alert < text.index('<section id="model">')
+    assert "0.5 (unstable, in the uncontrollable part" in text
+    assert re.search(r'Removed modes not stable</div><div class="a">1<', text)
+    assert SAFETY_CAUTION in html.unescape(text)
+
+
+def test_stable_model_report_has_no_hidden_mode_alert(thermal_report):
+    text, contents = thermal_report
+    assert contents.analysis.removed_unstable_modes == ()
+    assert 'class="alert"' not in text
+    assert re.search(r'Removed modes not stable</div><div class="a">0<', text)

@@ -126,3 +126,89 @@ def test_property(sizes, seed, discrete, m, p):
     _check(mr, case.model)
     if not mr.fragile:
         assert mr.order == case.minimal_order
+
+
+# --- removed modes that are not stable (issue 20, item 2) -----------------------------------
+# The answers are fixed by construction: a diagonal A whose mode has a zero row of B cannot be
+# moved by the inputs (and one with a zero column of C cannot be seen), by the PBH test
+# (M. L. J. Hautus, 1969); the mode is unstable when Re > 0 (continuous) or |z| > 1 (discrete),
+# and an integrator (s = 0) or z = 1 lies on the stability boundary (common practice).
+
+def _hidden_example(Q=None, dt=None, hidden=0.5):
+    """Three states, one input, one output; the third mode is uncontrollable, observable."""
+    A = np.diag([-1.0, -2.0, hidden]) if dt is None else np.diag([0.5, 0.3, hidden])
+    B = np.array([[1.0], [1.0], [0.0]])
+    C = np.array([[1.0, 1.0, 1.0]])
+    if Q is not None:
+        A, B, C = Q @ A @ Q.T, Q @ B, C @ Q.T
+    return pc.StateSpaceModel(A, B, C, dt=dt)
+
+
+@pytest.mark.parametrize("rotated", [False, True])
+def test_unstable_uncontrollable_mode_is_named(rotated):
+    Q = np.linalg.qr(np.random.default_rng(20).standard_normal((3, 3)))[0] if rotated else None
+    with pytest.warns(pc.HiddenModeWarning, match=r"0\.5 \(unstable, in the uncontrollable part"):
+        mr = pc.minimal_realization(_hidden_example(Q))
+    assert mr.order == 2
+    (mode,) = mr.removed_unstable_modes
+    assert isinstance(mode, pc.RemovedMode)
+    assert mode.part == "uncontrollable_observable" and mode.unstable and not mode.marginal
+    assert abs(mode.value - 0.5) <= 1e-12
+
+
+def test_warning_says_no_controller_can_stabilize():
+    with pytest.warns(pc.HiddenModeWarning) as record:
+        pc.minimal_realization(_hidden_example())
+    message = str(record[0].message)
+    assert "no controller designed on the reduced model can stabilize the plant" in message
+    assert record[0].filename == __file__          # attributed to the caller's line
+
+
+def test_discrete_mode_outside_the_unit_circle_is_named():
+    with pytest.warns(pc.HiddenModeWarning, match=r"1\.2 \(unstable"):
+        mr = pc.minimal_realization(_hidden_example(dt=0.1, hidden=1.2))
+    (mode,) = mr.removed_unstable_modes
+    assert abs(mode.value - 1.2) <= 1e-12 and mode.unstable
+
+
+@pytest.mark.parametrize("dt, hidden", [(None, -0.5), (0.1, 0.9)])
+def test_removed_stable_mode_gives_no_warning(dt, hidden):
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", pc.HiddenModeWarning)
+        mr = pc.minimal_realization(_hidden_example(dt=dt, hidden=hidden))
+    assert mr.order == 2 and mr.removed_uncontrollable == 1
+    assert mr.removed_unstable_modes == ()
+
+
+@pytest.mark.parametrize("dt, hidden", [(None, 0.0), (0.1, 1.0)])
+def test_uncontrollable_boundary_mode_is_marginal(dt, hidden):
+    with pytest.warns(pc.HiddenModeWarning, match="regulate the plant") as record:
+        mr = pc.minimal_realization(_hidden_example(dt=dt, hidden=hidden))
+    assert "stabilize the plant" not in str(record[0].message)
+    (mode,) = mr.removed_unstable_modes
+    assert mode.marginal and not mode.unstable and abs(mode.value - hidden) <= 1e-12
+
+
+def test_unobservable_and_doubly_hidden_parts_are_told_apart():
+    # 0.5: controllable, not seen (part 2); 0.7: neither moved nor seen (part 4)
+    A = np.diag([-1.0, 0.5, 0.7])
+    B = np.array([[1.0], [1.0], [0.0]])
+    C = np.array([[1.0, 0.0, 0.0]])
+    with pytest.warns(pc.HiddenModeWarning, match="unobservable part"):
+        mr = pc.minimal_realization((A, B, C))
+    parts = {round(m.value.real, 9): m.part for m in mr.removed_unstable_modes}
+    assert parts == {0.5: "controllable_unobservable", 0.7: "uncontrollable_unobservable"}
+
+
+def test_hidden_unstable_oscillation_is_one_conjugate_pair():
+    # an uncontrollable oscillation 0.1 ± 2j beside a stable controllable mode
+    A = np.zeros((3, 3))
+    A[0, 0] = -1.0
+    A[1:, 1:] = [[0.1, 2.0], [-2.0, 0.1]]
+    with pytest.warns(pc.HiddenModeWarning, match=r"0\.1 ± 2j") as record:
+        mr = pc.minimal_realization((A, [[1.0], [0.0], [0.0]], [[1.0, 1.0, 0.0]]))
+    values = sorted(mr.removed_unstable_modes, key=lambda m: m.value.imag)
+    assert_allclose([m.value for m in values], [0.1 - 2j, 0.1 + 2j], atol=1e-12)
+    assert "2 modes that are not stable" in str(record[0].message)

@@ -9,6 +9,7 @@ README): ``core`` -> ``structure`` -> ``reduction`` -> ``analysis``; ``files``,
 from plantcore.analysis import Analysis, analyze
 from plantcore.core import (AccuracyWarning, ModelFileError, NumericalBreakdown, RankDecision,
                             StateSpaceModel, as_model, from_transfer_function)
+from plantcore.core.errors import HiddenModeWarning
 from plantcore.core.version import __version__
 from plantcore.demo import run_demo
 from plantcore.estimation import (ConstrainedJacobians, NonlinearObservability,
@@ -26,6 +27,7 @@ from plantcore.structure import (ExactPartSizes, KalmanDecomposition, MinimalRea
                                  controllability_staircase, exact_minimal_order,
                                  exact_part_sizes, exact_transfer_matrix, kalman_decomposition,
                                  minimal_realization, observability_staircase)
+from plantcore.structure.removed_modes import RemovedMode
 from plantcore.sweeps import SweepResult, SweepSpec, grid, load_sweep_spec, random_points, sweep
 
 __all__ = [
@@ -54,6 +56,8 @@ __all__ = [
     "MinimalRealization",
     "RankDecision",
     "AccuracyWarning",
+    "HiddenModeWarning",
+    "RemovedMode",
     "ModelFileError",
     "NumericalBreakdown",
     "load_model",

@@ -17,8 +17,18 @@ __all__ = ["main"]
 
 EXIT_OK = 0
 EXIT_NOT_EQUIVALENT = 1
+EXIT_HIDDEN_UNSTABLE = 1   # reduce: a removed mode is not stable and was not acknowledged
 EXIT_BAD_INPUT = 2
 EXIT_INTERNAL = 3
+
+_ACKNOWLEDGE = "--accept-hidden-unstable"
+
+_REDUCE_EXIT_CODES = (
+    "exit codes: 0 the reduced model was written; 1 the minimal realization removed a mode "
+    f"that is unstable or on the stability boundary (a WARNING line on stderr names it) and "
+    f"{_ACKNOWLEDGE} was not given, so nothing was written; 2 bad input; 3 numerical "
+    f"breakdown. With {_ACKNOWLEDGE} the model is written, the WARNING is still printed and "
+    "the exit code is 0.")
 
 
 class _UsageError(Exception):
@@ -58,6 +68,7 @@ def _cmd_inspect(args) -> int:
 def _cmd_reduce(args) -> int:
     from plantcore.files import check_output_path, load_model, save_model
     from plantcore.structure.minimal import minimal_realization
+    from plantcore.structure.removed_modes import hidden_mode_message
 
     model = load_model(args.model)
     check_output_path(args.output, inputs=(args.model,))  # refuse before computing
@@ -84,6 +95,14 @@ def _cmd_reduce(args) -> int:
         unit = "rad/sample" if reduced.is_discrete else "rad/s"
         print(f"measured error (peak gain of original - reduced): {measured.value:.6g} "
               f"at {measured.frequency:.6g} {unit}")
+    removed = minimal.removed_unstable_modes
+    if removed:
+        print("WARNING: " + _one_line(hidden_mode_message(removed, "the minimal realization")),
+              file=sys.stderr)
+        if not args.accept_hidden_unstable:
+            print(f"plantcore reduce: {args.output} was not written; give {_ACKNOWLEDGE} to "
+                  "write the reduced model anyway (exit 1).", file=sys.stderr)
+            return EXIT_HIDDEN_UNSTABLE
     save_model(reduced, args.output, inputs=(args.model,))
     print(f"reduced model written to {args.output}")
     from plantcore.reduction.equivalence import check_equivalence
@@ -121,6 +140,12 @@ def _cmd_report(args) -> int:
     reduced = f", reduced {red.order}" if red is not None else ""
     print(f"report written to {args.output} ({model.n} states, minimal "
           f"{contents.analysis.minimal_order}{reduced})")
+    removed = contents.analysis.removed_unstable_modes
+    if removed:
+        from plantcore.structure.removed_modes import hidden_mode_message
+
+        print("WARNING: " + _one_line(hidden_mode_message(removed, "the minimal realization")),
+              file=sys.stderr)
     return EXIT_OK
 
 
@@ -205,7 +230,10 @@ def _build_parser() -> argparse.ArgumentParser:
     p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
     p.add_argument("--format", choices=("text", "markdown", "json"), default="text")
 
-    p = sub.add_parser("reduce", help="write a minimal (or balanced-truncated) model")
+    p = sub.add_parser("reduce", help="write a minimal (or balanced-truncated) model",
+                       description="Write a minimal (or balanced-truncated) model and print "
+                                   "its equivalence certificate.",
+                       epilog=_REDUCE_EXIT_CODES)
     p.add_argument("model", help="model file (.toml, .json or .npz)")
     p.add_argument("-o", "--output", required=True, help="file for the reduced model")
     group = p.add_mutually_exclusive_group()
@@ -214,6 +242,11 @@ def _build_parser() -> argparse.ArgumentParser:
     group.add_argument("--max-error", type=float, default=None, dest="max_error",
                        help="balanced truncation to the lowest order whose error bound is below this")
     p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
+    p.add_argument(_ACKNOWLEDGE, action="store_true", dest="accept_hidden_unstable",
+                   help="write the reduced model even when the minimal realization removes a "
+                        "mode that is unstable or on the stability boundary (no controller "
+                        "designed on the reduced model can stabilize the plant through it); "
+                        "the WARNING is still printed and the exit code is 0")
 
     # --- compare ---
     p = sub.add_parser("compare", help="certify that two models have the same transfer matrix "

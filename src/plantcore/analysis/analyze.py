@@ -21,6 +21,7 @@ from plantcore.structure.kalman import PART_NAMES, KalmanDecomposition, _prepare
 from plantcore.structure.minimal import MinimalRealization, _minimal_from_decomposition
 from plantcore.core.model import StateSpaceModel
 from plantcore.structure.modes import NARROW_MARGIN, _mode_table
+from plantcore.structure.removed_modes import removed_from_modes, warn_hidden_modes
 from plantcore.structure.distance import DistanceEstimate, _distances
 from plantcore.core.rendering import render
 from plantcore.core.wording import SAFETY_CAUTION, describe_direction
@@ -71,6 +72,10 @@ class Analysis:
         original state names (for example ``"1.00 zone2 - 0.45 zone3"``).
     narrow_margin : float
         The threshold under which a passing PBH margin is flagged as narrow.
+    removed_unstable_modes : tuple of RemovedMode
+        The modes outside part 1 (so removed by the minimal realization) that are unstable
+        or on the stability boundary, read from ``modes``; the same tuple as
+        ``minimal.removed_unstable_modes``.  Reports show them among the first verdicts.
     """
 
     model: StateSpaceModel
@@ -87,6 +92,7 @@ class Analysis:
     hankel_note: str
     part_directions: dict = field(repr=False)
     narrow_margin: float = NARROW_MARGIN
+    removed_unstable_modes: tuple = ()
 
     # --- convenient views -----------------------------------------------------------------
     @property
@@ -162,6 +168,7 @@ class Analysis:
             "minimal_order": self.minimal_order,
             "removed_uncontrollable": int(self.minimal.removed_uncontrollable),
             "removed_unobservable": int(self.minimal.removed_unobservable),
+            "removed_unstable_modes": [r.to_dict() for r in self.removed_unstable_modes],
             "decisions": [d.to_dict() for d in kd.decisions],
             "fragile": self.fragile,
             "condition": _safe(kd.condition),
@@ -224,6 +231,13 @@ def analyze(model, tol=None) -> Analysis:
     -------
     Analysis
 
+    Warns
+    -----
+    HiddenModeWarning
+        When a mode outside part 1 (removed by the minimal realization) is unstable or on
+        the stability boundary; ``removed_unstable_modes`` holds them.  (Not issued to
+        plantcore's own callers, such as the reports and the sweep, which show the field.)
+
     Notes
     -----
     The verdicts follow the definitions: *stabilizable* when every mode that is not
@@ -247,8 +261,9 @@ def analyze(model, tol=None) -> Analysis:
     p = _prepare(model, tol)
     model = p.model
     kd = kalman_decomposition(model, tol)
-    mr = _minimal_from_decomposition(kd, p.s)
     modes = tuple(_mode_table(kd, p, NARROW_MARGIN))
+    removed = removed_from_modes(modes)
+    mr = _minimal_from_decomposition(kd, p.s, removed)
     stabilizable = all(m.stable or m.controllable for m in modes)
     detectable = all(m.stable or m.observable for m in modes)
     to_unc, to_unobs = _distances(p, modes)
@@ -266,6 +281,7 @@ def analyze(model, tol=None) -> Analysis:
         # structural analysis does not depend on it and is still delivered.
         hsv = None
         note = f"Hankel singular values not available: {exc}"
+    warn_hidden_modes(removed, "the minimal realization", stacklevel=2)
     return Analysis(
         model=model,
         tolerance=float(p.tol),
@@ -281,4 +297,5 @@ def analyze(model, tol=None) -> Analysis:
         hankel_note=note,
         part_directions=_part_directions(kd, model.states),
         narrow_margin=NARROW_MARGIN,
+        removed_unstable_modes=removed,
     )

@@ -2,13 +2,14 @@
 
 Bad input raises the built-in :class:`ValueError` (or :class:`TypeError`) with a message that
 names the matrix or file field, what was expected and what was received.  The classes here
-cover the other two cases: a numerical computation that broke down, and a result that was
-delivered but may have lost accuracy.
+cover the other cases: a numerical computation that broke down, a result that was
+delivered but may have lost accuracy, and a reduction that removed a mode which is not
+stable.
 """
 
 from __future__ import annotations
 
-__all__ = ["NumericalBreakdown", "AccuracyWarning", "ModelFileError"]
+__all__ = ["NumericalBreakdown", "AccuracyWarning", "HiddenModeWarning", "ModelFileError"]
 
 
 class NumericalBreakdown(ArithmeticError):
@@ -29,6 +30,19 @@ class NumericalBreakdown(ArithmeticError):
 
 class AccuracyWarning(UserWarning):
     """A result was delivered, but a check of its accuracy found a large residual."""
+
+
+class HiddenModeWarning(UserWarning):
+    """A reduction removed a mode that is unstable or on the stability boundary.
+
+    The reduced model has the same transfer function (or, after a truncation, stays within
+    its error bound), but the removed mode is still in the plant: the inputs cannot move it
+    or the outputs cannot see it, so no controller designed on the reduced model can
+    stabilize the plant through an unstable removed mode, or regulate it through one on the
+    boundary.  The message names the eigenvalues and the part each was in; the result
+    carries them in its ``removed_unstable_modes`` field
+    (:class:`plantcore.structure.removed_modes.RemovedMode`).
+    """
 
 
 class ModelFileError(ValueError):

@@ -239,6 +239,12 @@ class ReducedModel:
         2-norm of the Sylvester solution that decoupled the stable from the unstable part
         (0 when there is no unstable part); large values mean a nearly coupled split, and
         above ``1e6`` an :class:`plantcore.AccuracyWarning` is issued.
+    removed_unstable_modes : tuple of RemovedMode
+        Modes removed by the truncation that are unstable or on the stability boundary
+        (part ``"truncated"``).  Always empty, by construction: the truncation acts on the
+        strictly stable part only, the unstable part is kept unreduced, and a mode on the
+        boundary is refused.  The field is there so that every reduction result answers
+        the same question (:attr:`plantcore.MinimalRealization.removed_unstable_modes`).
     """
 
     model: StateSpaceModel
@@ -249,6 +255,7 @@ class ReducedModel:
     unstable_order: int
     original_order: int
     decoupling_norm: float
+    removed_unstable_modes: tuple = ()
 
 
 def _groups(hsv: np.ndarray) -> list[int]:
@@ -325,7 +332,9 @@ def balanced_truncation(model, order=None, max_error=None) -> ReducedModel:
     -----
     1. Split ``G = G_s + G_u`` into a strictly stable and a strictly unstable part (ordered
        real Schur form and a Sylvester equation; common practice, see e.g. Safonov,
-       Jonckheere, Verma and Limebeer 1987).  ``G_u`` is kept unreduced.
+       Jonckheere, Verma and Limebeer 1987).  ``G_u`` is kept unreduced, so no unstable
+       mode is ever truncated (``removed_unstable_modes`` stays empty; a mode on the
+       boundary is refused before anything is removed).
     2. Cholesky factors of the Gramians of ``G_s`` by Hammarling's method (Hammarling 1982).
     3. Square-root method (Laub, Heath, Paige and Ward 1987; Tombs and Postlethwaite 1987):
        ``R_o R_c^T = U Σ V^T``; with ``T = R_c^T V_r Σ_r^{-1/2}`` and

@@ -20,6 +20,9 @@ caller already has without repeating it.
 Every name that comes from a model (model, state, input and output names) is escaped with
 :func:`html.escape` (``quote=True``) before it enters the page, and none is ever placed in
 a plot, where matplotlib would interpret ``$`` as mathematics.
+
+The module runs a little over 600 lines: one renderer per report section, which read best
+side by side with the shared style sheet.
 """
 
 from __future__ import annotations
@@ -38,6 +41,7 @@ from plantcore.core.version import __version__
 from plantcore.core.wording import SAFETY_CAUTION
 from plantcore.files.safe_write import atomic_write_text
 from plantcore.reports.plots import PART_LABELS, eigenvalue_plot, frequency_plot, hankel_plot
+from plantcore.structure.removed_modes import hidden_mode_message
 
 __all__ = [
     "DEFAULT_RELATIVE_ERROR",
@@ -161,6 +165,8 @@ pre { background: var(--band); padding: 0.7rem 0.9rem; overflow-x: auto; font-si
 code, pre, .mono { font-family: "DejaVu Sans Mono", Consolas, "Liberation Mono", monospace; }
 ul.names { columns: 2; font-size: 0.88rem; padding-left: 1.1rem; }
 details summary { cursor: pointer; color: var(--slate); }
+div.alert { border: 2px solid var(--brick); background: #fbf1ee; padding: 0.6rem 0.9rem;
+            margin: 0 0 1.2rem; font-weight: 600; color: var(--brick); }
 section#caution { border: 2px solid var(--brick); background: #fbf1ee; padding: 0.8rem 1rem; }
 section#caution h2 { border: none; color: var(--brick); }
 footer { color: var(--muted); font-size: 0.8rem; border-top: 1px solid var(--rule);
@@ -253,7 +259,12 @@ def _verdict_section(c: ReportContents) -> str:
     a = c.analysis
     m = c.model
     r = a.minimal_order
+    removed = a.removed_unstable_modes
     tiles = [
+        _tile("Removed modes not stable", str(len(removed)),
+              "the minimal realization removes a mode that is unstable or on the stability "
+              "boundary; see the warning above" if removed else
+              "every mode the minimal realization removes is stable", not removed),
         _tile("Minimal", _yes_no(a.is_minimal),
               f"{r} of the {m.n} states shape the input-output behaviour"
               + ("." if a.is_minimal else f"; {m.n - r} can be removed."), a.is_minimal),
@@ -295,6 +306,15 @@ def _verdict_section(c: ReportContents) -> str:
              f"is uncontrollable: {_num(du.value)}; unobservable: {_num(do.value)}. "
              "Both are upper bounds found by a local search.</p>")
     return _section("verdicts", body)
+
+
+def _hidden_alert(c: ReportContents) -> str:
+    """The warning about removed modes that are not stable, shown above every section."""
+    removed = c.analysis.removed_unstable_modes
+    if not removed:
+        return ""
+    text = hidden_mode_message(removed, "the minimal realization")
+    return f'<div class="alert" role="alert">WARNING: {_e(text)}</div>'
 
 
 def _parts_section(c: ReportContents) -> str:
@@ -470,6 +490,7 @@ def render_html(contents: ReportContents, *, progress=None) -> str:
         f"{'discrete' if m.is_discrete else 'continuous'} time</p>"
         f"<p>Made by plantcore {_e(__version__)} on {_e(c.created)}</p></header>",
         f'<nav class="contents">{nav}</nav>',
+        _hidden_alert(c),
         _model_section(c),
         _verdict_section(c),
         _parts_section(c),

@@ -10,6 +10,7 @@ import math
 
 
 from plantcore.core.wording import SAFETY_CAUTION, counted, frequency_phrase, short_number
+from plantcore.structure.removed_modes import hidden_mode_message
 
 __all__ = ["analysis_text", "analysis_markdown", "certificate_text"]
 
@@ -76,10 +77,29 @@ def _mode_list(modes) -> str:
     return ", ".join(shown) + (f" and {more} more" if more > 0 else "")
 
 
+def _hidden_lines(a) -> list[str]:
+    """The warning about removed modes that are not stable (shown first), or nothing."""
+    removed = a.removed_unstable_modes
+    if not removed:
+        return []
+    return ["WARNING: " + hidden_mode_message(removed, "the minimal realization")]
+
+
+def _hidden_verdict(a) -> tuple[str, str, str]:
+    removed = a.removed_unstable_modes
+    if not removed:
+        return ("hidden modes", "none",
+                "every mode outside part 1 (removed by the minimal realization) is stable")
+    words = "; ".join(m.describe() for m in removed if m.value.imag >= 0)
+    verb = "is" if len(removed) == 1 else "are"
+    why = f"the minimal realization removes {_plural(len(removed), 'mode')} that {verb} not stable"
+    return ("hidden modes", "YES", f"{why}: {words}")
+
+
 def _verdict_lines(a) -> list[tuple[str, str, str]]:
-    """(name, yes/no, explanation) for the three verdicts."""
+    """(name, answer, explanation) for the verdicts, the hidden modes first."""
     not_stable = [m for m in a.modes if not m.stable]
-    rows = []
+    rows = [_hidden_verdict(a)]
     for name, ok, attr, can, cannot in (
             ("stabilizable", a.stabilizable, "controllable", "can be moved by the inputs",
              "the inputs cannot move"),
@@ -166,6 +186,8 @@ def analysis_text(a) -> str:
     title = _title(a)
     out += [title, "=" * len(title), _model_line(a),
             f"rank tolerance {_num(a.tolerance)} (relative to the model's scale)", ""]
+    hidden = _hidden_lines(a)
+    out += hidden + ([""] if hidden else [])
 
     out += ["Kalman parts"]
     for i, (name, size) in enumerate(zip(_PART_ORDER, kd.sizes)):
@@ -248,6 +270,8 @@ def analysis_markdown(a) -> str:
     kd = a.decomposition
     out = [f"# {_md_escape(_title(a))}", "", _model_line(a) + ".",
            f"Rank tolerance {_num(a.tolerance)}, relative to the model's scale.", ""]
+    out += [f"> **{_md_escape(line)}**" for line in _hidden_lines(a)]
+    out += [""] if a.removed_unstable_modes else []
 
     out += ["## Kalman parts", "", "| part | meaning | states |", "|---:|---|---:|"]
     for i, (name, size) in enumerate(zip(_PART_ORDER, kd.sizes)):

@@ -11,6 +11,8 @@ from plantcore.core.rank import any_fragile
 from plantcore.core.errors import NumericalBreakdown
 from plantcore.structure.kalman import _decompose, _prepare, _start
 from plantcore.structure.reconcile import certificate_decisions, confirm_window
+from plantcore.structure.removed_modes import (removed_from_blocks, removed_from_decomposition,
+                                               warn_hidden_modes)
 
 __all__ = ["MinimalRealization", "minimal_realization"]
 
@@ -35,6 +37,12 @@ class MinimalRealization:
         states (``x ≈ V z`` on the controllable, observable part).
     decisions : tuple of RankDecision
     fragile : bool
+    removed_unstable_modes : tuple of RemovedMode
+        The removed modes that are unstable or on the stability boundary (classified as
+        :func:`plantcore.classify_modes` does), each with its eigenvalue and the part it
+        was in; empty when every removed mode is stable.  When it is not empty the reduced
+        model cannot be used to stabilize or regulate the plant through those modes (see
+        :class:`plantcore.HiddenModeWarning`).
     """
 
     model: StateSpaceModel
@@ -45,6 +53,7 @@ class MinimalRealization:
     W: np.ndarray = field(repr=False)
     decisions: tuple
     fragile: bool
+    removed_unstable_modes: tuple = ()
 
 
 def minimal_realization(model, tol=None) -> MinimalRealization:
@@ -60,6 +69,13 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
     Returns
     -------
     MinimalRealization
+
+    Warns
+    -----
+    HiddenModeWarning
+        When a removed mode is unstable or on the stability boundary; the message names
+        the eigenvalues and their parts, and ``removed_unstable_modes`` holds them.  (Not
+        issued to plantcore's own internal callers, which read the field.)
 
     Notes
     -----
@@ -108,7 +124,11 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
             try:
                 kd = _decompose(p)
                 if kd.sizes.controllable_observable < r:
-                    return _minimal_from_decomposition(kd, p.s)
+                    result = _minimal_from_decomposition(kd, p.s,
+                                                         removed_from_decomposition(kd, p))
+                    warn_hidden_modes(result.removed_unstable_modes,
+                                      "the minimal realization", stacklevel=2)
+                    return result
             except NumericalBreakdown:
                 pass
         if disagree:
@@ -122,6 +142,7 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
     B_min = red2.C[:m, :r].T / g_in[None, :]
     C_min = red2.B[:r, :].T / g_out[:, None]
     X = red2.form_U(r)
+    removed = _removed_modes(p, red1, red2, nc, r)
     del nest, red2
     if nc < n:
         Y = np.zeros((n, r), order="F")
@@ -137,11 +158,48 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
     name = f"{p.model.name} (minimal)" if p.model.name else None
     new = StateSpaceModel(A_min, B_min, C_min, p.model.D, p.model.dt, states=states,
                           inputs=p.model.inputs, outputs=p.model.outputs, name=name)
-    return MinimalRealization(new, r, n - nc, nc - r, V, W, decisions,
-                              any_fragile(decisions))
+    result = MinimalRealization(new, r, n - nc, nc - r, V, W, decisions,
+                                any_fragile(decisions), removed)
+    warn_hidden_modes(removed, "the minimal realization", stacklevel=2)
+    return result
 
 
-def _minimal_from_decomposition(kd, state_scaling) -> MinimalRealization:
+def _removed_modes(p, red1, red2, nc: int, r: int) -> tuple:
+    """The removed modes that are not stable, from the two staircase forms (internal).
+
+    The unobservable part of the controllable subsystem is the trailing block of the second
+    staircase (of the dual, hence transposed); the uncontrollable part is the first
+    staircase's trailing block, formed as ``U_u^T A_e U_u`` from the reflectors (the
+    minimal realization does not keep that block).  Both are orthogonal restrictions of
+    the equilibrated ``A``.  Only when the uncontrollable part holds a mode that is not
+    stable is the Kalman decomposition made, to tell whether the outputs see that mode
+    (part 3) or not (part 4); should its part sizes disagree with this realization, the
+    mode is reported as ``"uncontrollable"``.
+    """
+    n = p.model.n
+    norm_A = float(np.linalg.norm(p.A))
+    discrete = p.model.is_discrete
+    unobservable = np.array(red2.A[r:nc, r:nc].T)
+    removed = removed_from_blocks([("controllable_unobservable", unobservable)], norm_A,
+                                  discrete)
+    if nc == n:
+        return removed
+    E = np.zeros((n, n - nc), order="F")
+    E[nc:, :] = np.eye(n - nc)
+    U_u = red1.apply_U(E) if red1.transforms else E
+    hidden = removed_from_blocks([("uncontrollable", U_u.T @ p.A @ U_u)], norm_A, discrete)
+    if not hidden:
+        return removed
+    try:
+        kd = _decompose(p)
+    except NumericalBreakdown:
+        return removed + hidden
+    if tuple(kd.sizes)[:2] != (r, nc - r):
+        return removed + hidden
+    return removed_from_decomposition(kd, p)
+
+
+def _minimal_from_decomposition(kd, state_scaling, removed=()) -> MinimalRealization:
     """The minimal realization read off a Kalman decomposition (internal; used by analyze).
 
     Part 1 of the decomposition has the orthonormal (equilibrated) basis that
@@ -149,6 +207,8 @@ def _minimal_from_decomposition(kd, state_scaling) -> MinimalRealization:
     block, rows of ``B`` and columns of ``C`` do not depend on how the other parts were
     completed (``A T1 = T1 A11 + T2 A21`` with ``T2`` orthogonal to ``T1``), so no staircase
     is run twice.  The decisions are those of the decomposition (a superset).
+    ``removed`` is the tuple of removed modes that are not stable (the caller classifies
+    them; see :mod:`plantcore.structure.removed_modes`).
     """
     sizes = kd.sizes
     r = sizes.controllable_observable
@@ -163,4 +223,5 @@ def _minimal_from_decomposition(kd, state_scaling) -> MinimalRealization:
     name = f"{source} (minimal)" if source else None
     model = StateSpaceModel(part.A, part.B, part.C, part.D, part.dt, states=states,
                             inputs=part.inputs, outputs=part.outputs, name=name)
-    return MinimalRealization(model, r, n - nc, nc - r, V, W, tuple(kd.decisions), kd.fragile)
+    return MinimalRealization(model, r, n - nc, nc - r, V, W, tuple(kd.decisions), kd.fragile,
+                              tuple(removed))
