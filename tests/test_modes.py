@@ -16,6 +16,7 @@ External references:
 
 import math
 
+import catalog
 import control
 import numpy as np
 import pytest
@@ -23,10 +24,9 @@ from hypothesis import given
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
-import catalog
 import plantcore as pc
-from plantcore.structure.kalman import PART_NAMES
 from plantcore.structure.distance import distance_to_uncontrollability, distance_to_unobservability
+from plantcore.structure.kalman import PART_NAMES
 
 
 def _block(values, rng):
@@ -207,7 +207,7 @@ def test_marginal_modes_count_as_not_stable():
     # an uncontrollable integrator: marginal, so the model is not stabilizable
     A = np.diag([0.0, -1.0])
     modes = pc.classify_modes((A, [[0.0], [1.0]], [[1.0, 1.0]]))
-    integrator = [m for m in modes if m.value == 0][0]
+    integrator = next(m for m in modes if m.value == 0)
     assert integrator.marginal and not integrator.stable and not integrator.controllable
     assert not pc.analyze((A, [[0.0], [1.0]], [[1.0, 1.0]])).stabilizable
     # discrete: a mode at z = -1 is marginal, at 1.2 unstable, at 0.5 stable
@@ -274,8 +274,8 @@ def test_near_pole_zero_cancellation_is_flagged(eps, narrow):
     g = pc.from_transfer_function([1.0, 1.0 + eps], [1.0, 3.0, 2.0])
     modes = pc.classify_modes(g)
     assert all(m.controllable and m.observable for m in modes)
-    at_minus_one = [m for m in modes if abs(m.value + 1) < 1e-6][0]
-    at_minus_two = [m for m in modes if abs(m.value + 2) < 1e-6][0]
+    at_minus_one = next(m for m in modes if abs(m.value + 1) < 1e-6)
+    at_minus_two = next(m for m in modes if abs(m.value + 2) < 1e-6)
     assert at_minus_one.narrow == narrow
     assert not at_minus_two.narrow
     if narrow:
@@ -335,8 +335,8 @@ def test_distance_estimate_against_brute_force_minimum(seed):
     # upper bound (it is attained at its lambda) and must reach the reference minimum.
     import scipy.optimize
 
-    from plantcore.structure.kalman import _prepare
     from plantcore.structure.distance import distance_to_uncontrollability
+    from plantcore.structure.kalman import _prepare
 
     rng = np.random.default_rng(4000 + seed)
     n = 4
@@ -375,3 +375,137 @@ def test_slow_stable_mode_beside_an_integrator_stays_stable():
     by_value = sorted(modes, key=lambda m: m.value.real)
     assert [m.stable for m in by_value] == [True, True, False]
     assert [m.marginal for m in by_value] == [False, False, True]
+
+
+# --- the Schur-form measures agree with a dense SVD ----------------------------------------
+# Reference: the definitions themselves, evaluated with numpy's dense SVD (the method the
+# mode table used before the per-eigenvalue Schur-form measures; sigma_min of the PBH matrix
+# by Hautus 1969, and sigma_min(A - mu I) as the backward error of mu as an eigenvalue,
+# Trefethen and Embree, *Spectra and Pseudospectra*, 2005, ch. 2).
+
+def _spring_chain(states, **options):
+    """The lightly damped spring chain of benchmarks/bench_modes.py (one scenario, one place):
+    every mode lies close to the imaginary axis."""
+    import importlib.util
+    import pathlib
+
+    path = pathlib.Path(__file__).resolve().parents[1] / "benchmarks" / "bench_modes.py"
+    spec = importlib.util.spec_from_file_location("bench_modes", path)
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module.spring_chain(states, **options)
+
+
+def _hidden_integrators(seed, dt=None):
+    """An exact integrator chain of length 3 (continuous) or a rotation block and z = 1
+    (discrete, eigenvalues on the unit circle) beside stable modes, in rotated coordinates."""
+    rng = np.random.default_rng(seed)
+    n = 9
+    A = rng.standard_normal((n, n)) * 0.3
+    if dt is None:
+        A[:3, :] = 0.0
+        A[:3, :3] = np.diag([1.0, 1.0], 1)
+        A[3:, 3:] -= 2.0 * np.eye(n - 3)
+    else:
+        a = 0.7
+        A[:3, :] = 0.0
+        A[:2, :2] = [[math.cos(a), -math.sin(a)], [math.sin(a), math.cos(a)]]
+        A[2, 2] = 1.0
+        A[3:, 3:] *= 0.5
+    Q = catalog.random_orthogonal(n, rng)
+    return pc.StateSpaceModel(Q @ A @ Q.T, Q @ rng.standard_normal((n, 2)),
+                              rng.standard_normal((2, n)) @ Q.T, dt=dt)
+
+
+def _snap_dense(A, values, delta, nA, discrete):
+    """The boundary test with a dense SVD per eigenvalue (the former method, O(n^3) each)."""
+    from plantcore.structure.modes import _SNAP_RADIUS
+
+    out = np.array(values, dtype=complex)
+    for i, v in enumerate(out):
+        r = abs(v)
+        gap, mu = (abs(r - 1.0), v / r) if discrete else (abs(v.real), complex(0.0, v.imag))
+        if gap <= delta or gap > _SNAP_RADIUS * max(nA, 1.0 if discrete else nA):
+            continue
+        others = np.delete(np.asarray(values, dtype=complex), i)
+        if others.size and np.min(np.abs(others - mu)) < 0.1 * abs(v - mu):
+            continue
+        if np.linalg.svd(A - mu * np.eye(A.shape[0]), compute_uv=False)[-1] <= delta:
+            out[i] = mu
+    return out
+
+
+_DENSE_CASES = {
+    "light_chain": lambda: _spring_chain(24, inputs=2, outputs=2, damping=1e-3, seed=1),
+    "undamped_chain": lambda: _spring_chain(20, inputs=3, outputs=2, damping=1e-13, seed=2),
+    "integrator_chain": lambda: _hidden_integrators(3),
+    "unit_circle": lambda: _hidden_integrators(4, dt=0.1),
+}
+
+
+@pytest.mark.parametrize("name", sorted(_DENSE_CASES))
+def test_boundary_decision_and_margins_agree_with_dense_svd(name):
+    from plantcore.structure.kalman import _prepare
+    from plantcore.structure.modes import (
+        _CLUSTER_FACTOR,
+        _boundary_delta,
+        _clustered_eigenvalues,
+        _snap_to_boundary,
+    )
+
+    model = _DENSE_CASES[name]()
+    p = _prepare(model, None)
+    n, discrete = model.n, model.is_discrete
+    nA = float(np.linalg.norm(p.A))
+    delta = _boundary_delta(nA, discrete)
+    values = _clustered_eigenvalues(p.A, _CLUSTER_FACTOR * nA)
+    snapped = _snap_to_boundary(p.A, values, delta, nA, discrete)
+    assert np.array_equal(snapped, _snap_dense(p.A, values, delta, nA, discrete))
+    modes = pc.classify_modes(model)
+    if name == "integrator_chain":
+        assert sum(m.marginal for m in modes) == 3
+    if name == "unit_circle":
+        assert sum(m.marginal for m in modes) == 3
+    if name == "undamped_chain":
+        assert all(m.marginal for m in modes)
+    # every model here is minimal, so each margin is sigma_min on the whole prepared model
+    assert all(m.part == PART_NAMES[0] for m in modes)
+    for m in modes:
+        lam = m.value
+        shifted = p.A - lam * np.eye(n)
+        direct_c = np.linalg.svd(np.hstack([shifted, p.B_dec]), compute_uv=False)[-1] / p.scale
+        direct_o = np.linalg.svd(np.vstack([shifted, p.C_dec]), compute_uv=False)[-1] / p.scale
+        # an attained value, so never below the dense one beyond its rounding (n eps)
+        assert m.controllability_margin >= direct_c - n * 1e-16
+        assert_allclose(m.controllability_margin, direct_c, rtol=1e-8, atol=1e-15)
+        assert_allclose(m.observability_margin, direct_o, rtol=1e-8, atol=1e-15)
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_schur_measures_agree_with_dense_svd_at_random_points(seed):
+    from plantcore.structure.pbh_measures import PBHMeasures
+
+    rng = np.random.default_rng(600 + seed)
+    n, m, p = 30, 1 + seed, 2
+    A = rng.standard_normal((n, n)) / math.sqrt(n)
+    B, C = rng.standard_normal((n, m)), rng.standard_normal((p, n))
+    points = list(rng.standard_normal(4) + 1j * rng.standard_normal(4)) + [0.3, -1.1]
+    points += list(np.linalg.eigvals(A)[:4])
+    measures = PBHMeasures(A)
+    got_c = measures.smallest(B, points, "c")
+    got_o = measures.smallest(C, points, "o")
+    got_a = measures.smallest(np.zeros((n, 0)), points, "c")
+    for lam, gc, go, ga in zip(points, got_c, got_o, got_a):
+        shifted = A - lam * np.eye(n)
+        assert_allclose(gc, np.linalg.svd(np.hstack([shifted, B]), compute_uv=False)[-1],
+                        rtol=1e-9, atol=1e-14)
+        assert_allclose(go, np.linalg.svd(np.vstack([shifted, C]), compute_uv=False)[-1],
+                        rtol=1e-9, atol=1e-14)
+        assert_allclose(ga, np.linalg.svd(shifted, compute_uv=False)[-1], rtol=1e-9, atol=1e-14)
+    # an exactly singular shift: zero pivots are handled, the value is at rounding level
+    assert measures.smallest(np.zeros((n, 0)), [0.0], "c")[0] > -1.0
+    singular = PBHMeasures(np.diag([0.0, 1.0, 2.0]))
+    assert singular.smallest(np.zeros((3, 0)), [0.0], "c")[0] < 1e-15
+    assert singular.smallest(np.array([[0.0], [1.0], [1.0]]), [0.0], "c")[0] < 1e-15
+    assert_allclose(singular.smallest(np.array([[1.0], [0.0], [0.0]]), [0.0], "c")[0], 1.0,
+                    rtol=1e-12)

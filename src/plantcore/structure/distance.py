@@ -12,15 +12,11 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+from threadpoolctl import threadpool_limits
 
 from plantcore.structure.kalman import _prepare
-from plantcore.structure.modes import (
-    _CLUSTER_FACTOR,
-    _EPS,
-    _clustered_eigenvalues,
-    _smin_rows_many,
-    _upper,
-)
+from plantcore.structure.modes import _CLUSTER_FACTOR, _EPS, _clustered_eigenvalues, _upper
+from plantcore.structure.pbh_measures import PBHMeasures
 
 __all__ = ["DistanceEstimate", "distance_to_uncontrollability", "distance_to_unobservability"]
 
@@ -70,6 +66,17 @@ _ZERO_LEVEL = 1e3 * _EPS
 
 _ADJECTIVE = {"uncontrollability": "uncontrollable", "unobservability": "unobservable"}
 
+_FEW_THREADS_SIZE = 300
+
+"""Up to this many states the searches run with one BLAS thread (threadpoolctl): their
+iterations are many small LAPACK calls, which more threads only slow down."""
+
+_BATCH_ELEMENTS = 1 << 21
+
+"""Most complex entries of the stacked ``[A - λI, M]`` in one batched SVD of the searches
+(32 MB): searches on large models are evaluated a few at a time, so the memory stays
+``O(n^2)`` while small models keep one LAPACK batch per iteration."""
+
 
 @dataclass(frozen=True)
 class _Search:
@@ -95,7 +102,7 @@ class _Evaluation:
     ``w_aj = u_j^H (∂G/∂a) u_0``.  Where ``μ_0`` is repeated the Hessian is not finite.
     """
 
-    __slots__ = ("sigma", "rho", "gradient", "hxx", "hxy", "hyy")
+    __slots__ = ("gradient", "hxx", "hxy", "hyy", "rho", "sigma")
 
     def __init__(self, A, M, lam, eye):
         n = A.shape[1]
@@ -161,10 +168,35 @@ class _Evaluation:
         return move, newton, predicted
 
 
+def _evaluate(searches: list[_Search], idx: np.ndarray, lam: np.ndarray) -> _Evaluation:
+    """:class:`_Evaluation` of the searches ``idx`` at the points ``lam``, in batches of at
+    most :data:`_BATCH_ELEMENTS` entries (every ``M`` padded with zero columns to the widest,
+    which leaves the singular values and left singular vectors unchanged)."""
+    n = searches[0].A.shape[0]
+    w = max(s.M.shape[1] for s in searches)
+    eye = np.eye(n)
+    per_batch = max(1, _BATCH_ELEMENTS // (n * (n + w)))
+    parts = []
+    for start in range(0, idx.size, per_batch):
+        chunk = idx[start:start + per_batch]
+        A = np.stack([searches[j].A for j in chunk])
+        M = np.zeros((chunk.size, n, w))
+        for row, j in enumerate(chunk):
+            M[row, :, :searches[j].M.shape[1]] = searches[j].M
+        parts.append(_Evaluation(A, M, lam[start:start + per_batch], eye))
+    if len(parts) == 1:
+        return parts[0]
+    joined = object.__new__(_Evaluation)
+    for name in _Evaluation.__slots__:
+        setattr(joined, name, np.concatenate([getattr(part, name) for part in parts]))
+    return joined
+
+
 def _descend(searches: list[_Search]) -> list[tuple[float, complex]]:
     """Run the local searches side by side; ``(sigma_min, λ)`` at the last accepted point.
 
-    Every iteration evaluates all the active searches in one batched SVD.  A proposed move
+    Every iteration evaluates all the active searches in batched SVDs (see
+    :func:`_evaluate`).  A proposed move
     is accepted when it lowers ``phi``.  A rejected move is replaced by the plain
     majorization move ``λ -> ρ``, which never increases ``phi``: with ``u_0`` fixed,
     ``u_0^H G(μ) u_0 = u_0^H G(λ) u_0 - |λ - ρ|^2 + |μ - ρ|^2`` for every ``μ``, and
@@ -179,16 +211,9 @@ def _descend(searches: list[_Search]) -> list[tuple[float, complex]]:
     point returned.
     """
     k = len(searches)
-    n = searches[0].A.shape[0]
-    w = max(s.M.shape[1] for s in searches)
-    A = np.stack([s.A for s in searches])
-    M = np.zeros((k, n, w))
-    for j, s in enumerate(searches):
-        M[j, :, :s.M.shape[1]] = s.M
-    eye = np.eye(n)
     lam = np.array([s.start for s in searches], dtype=complex)
     radius = np.array([s.radius for s in searches])
-    ev = _Evaluation(A, M, lam, eye)
+    ev = _evaluate(searches, np.arange(k), lam)
     sigma, rho = ev.sigma.copy(), ev.rho.copy()
     expand = np.ones(k)
     move, newton, predicted = ev.step(expand, radius)
@@ -205,7 +230,7 @@ def _descend(searches: list[_Search]) -> list[tuple[float, complex]]:
         cap = newton[idx] & (length > trust[idx])
         move[idx[cap]] *= trust[idx[cap]] / length[cap]
         trial = lam[idx] + move[idx]
-        te = _Evaluation(A[idx], M[idx], trial, eye)
+        te = _evaluate(searches, idx, trial)
         accept = te.sigma < sigma[idx]
         acc = idx[accept]
         active[acc[te.sigma[accept] >= (1.0 - 1e-13) * sigma[acc]]] = False
@@ -234,11 +259,12 @@ def _descend(searches: list[_Search]) -> list[tuple[float, complex]]:
     return [(float(sigma[j]), complex(lam[j])) for j in range(k)]
 
 
-def _scored_starts(A, M, values, known) -> list[tuple[float, complex]]:
-    """``(sigma_min, λ)`` at the distinct eigenvalues (upper half-plane), least first."""
+def _scored_starts(measure, values, known) -> list[tuple[float, complex]]:
+    """``(sigma_min, λ)`` at the distinct eigenvalues (upper half-plane), least first;
+    ``measure`` maps a list of points to ``sigma_min`` at each."""
     if known is None:
         starts = list(dict.fromkeys(_upper(lam) for lam in values))
-        scored = list(zip((float(v) for v in _smin_rows_many(A, M, starts)), starts))
+        scored = list(zip((float(v) for v in measure(starts)), starts))
     else:
         best: dict = {}
         for value, lam in known:
@@ -250,16 +276,19 @@ def _scored_starts(A, M, values, known) -> list[tuple[float, complex]]:
 
 
 def _distances_of(problems) -> list[DistanceEstimate]:
-    """Distance estimates for ``(A, M, scale, values, kind, known)`` problems (internal).
+    """Distance estimates for ``(A, M, scale, values, kind, known, measure)`` problems
+    (internal).
 
-    ``sigma_min([A - λI, M]) / scale`` is evaluated at the distinct eigenvalues (or taken
-    from ``known``, pairs ``(sigma_min, λ)`` already evaluated on the same ``A, M``); the
-    lowest ones are refined by :func:`_descend`, all problems together.
+    ``sigma_min([A - λI, M]) / scale`` is evaluated at the distinct eigenvalues by
+    ``measure`` (a function of a list of points; None: on the Schur form of ``A``, see
+    :mod:`plantcore.structure.pbh_measures`), or taken from ``known``, pairs
+    ``(sigma_min, λ)`` already evaluated on the same ``A, M``; the lowest ones are refined
+    by :func:`_descend`, all problems together.
     """
     results: list = [None] * len(problems)
     searches, owners = [], []
     prepared = []
-    for i, (A, M, scale, values, kind, known) in enumerate(problems):
+    for i, (A, M, scale, values, kind, known, measure) in enumerate(problems):
         n = A.shape[0]
         if n == 0:
             results[i] = DistanceEstimate(
@@ -269,7 +298,12 @@ def _distances_of(problems) -> list[DistanceEstimate]:
         scale = float(scale)
         if known is not None:
             known = [(float(v) * scale, lam) for v, lam in known]
-        scored = _scored_starts(A, M, values, known)
+        if measure is None and known is None:
+            on_A = PBHMeasures(A)
+
+            def measure(points, on_A=on_A, M=M):
+                return on_A.smallest(M, points, "c")
+        scored = _scored_starts(measure, values, known)
         best_value, best_at = scored[0]
         if best_value / scale <= _ZERO_LEVEL:
             method = (f"smallest singular value evaluated at the eigenvalues; it is at the "
@@ -286,7 +320,12 @@ def _distances_of(problems) -> list[DistanceEstimate]:
             owners.append(i)
         prepared.append((scale, kind, len(scored), len(tried), best_value, best_at))
     if searches:
-        found = _descend(searches)
+        # small models: many small batched SVDs per iteration, faster on one BLAS thread
+        if searches[0].A.shape[0] <= _FEW_THREADS_SIZE:
+            with threadpool_limits(1):
+                found = _descend(searches)
+        else:
+            found = _descend(searches)
         for i, (value, at) in zip(owners, found):
             scale, kind, n_scored, n_tried, best_value, best_at = prepared[i]
             if value < best_value:
@@ -313,7 +352,7 @@ def _distance(A, M, scale, values, kind: str, known=None) -> DistanceEstimate:
     table's margins, relative to ``scale``), which then replace the evaluations at the
     eigenvalues.
     """
-    return _distances_of([(A, M, scale, values, kind, known)])[0]
+    return _distances_of([(A, M, scale, values, kind, known, None)])[0]
 
 
 def _short(lam: complex) -> str:
@@ -346,9 +385,14 @@ def _distances(p, modes=None) -> tuple[DistanceEstimate, DistanceEstimate]:
     else:
         nA = float(np.linalg.norm(p.A))
         values = _clustered_eigenvalues(p.A, _CLUSTER_FACTOR * nA)
+    # one Schur form of A serves both sides: [A^T - λI, C^T] is the transpose of
+    # [A - λI; C], with the same singular values
+    on_A = PBHMeasures(p.A)
     return tuple(_distances_of([
-        (p.A, p.B_dec, p.scale, values, "uncontrollability", known_c),
-        (p.A.T, p.C_dec.T, p.scale, values, "unobservability", known_o)]))
+        (p.A, p.B_dec, p.scale, values, "uncontrollability", known_c,
+         lambda points: on_A.smallest(p.B_dec, points, "c")),
+        (p.A.T, p.C_dec.T, p.scale, values, "unobservability", known_o,
+         lambda points: on_A.smallest(p.C_dec, points, "o"))]))
 
 
 def distance_to_uncontrollability(model) -> DistanceEstimate:

@@ -47,8 +47,9 @@ import numpy as np
 import scipy.linalg
 
 from plantcore.structure.kalman import PART_NAMES, _complement, _prepare, kalman_decomposition
+from plantcore.structure.pbh_measures import PBHMeasures
 
-__all__ = ["NARROW_MARGIN", "BOUNDARY_TOLERANCE", "Mode", "classify_modes"]
+__all__ = ["BOUNDARY_TOLERANCE", "NARROW_MARGIN", "Mode", "classify_modes"]
 
 
 NARROW_MARGIN = 1e-4
@@ -195,7 +196,8 @@ _SNAP_RADIUS = 1e-3
 tested for being boundary eigenvalues perturbed by rounding (see _snap_to_boundary)."""
 
 
-def _snap_to_boundary(A, values, delta: float, nA: float, discrete: bool) -> np.ndarray:
+def _snap_to_boundary(A, values, delta: float, nA: float, discrete: bool,
+                      measures: PBHMeasures | None = None) -> np.ndarray:
     """Move eigenvalues that are on the boundary up to a perturbation of size ``delta``.
 
     A defective eigenvalue of multiplicity k on the boundary is computed up to ``eps^(1/k)``
@@ -207,9 +209,18 @@ def _snap_to_boundary(A, values, delta: float, nA: float, discrete: bool) -> np.
     ch. 2); when that is at most ``delta``, the eigenvalue is replaced by ``mu`` and so
     counts as marginal.  Simple, well-separated eigenvalues are never moved: for them
     ``sigma_min(A - mu I)`` is about their distance to the boundary.
+
+    ``sigma_min(A - mu I)`` is the smallest singular value of the shifted triangular Schur
+    factor ``T - mu I`` (``A = Q T Q^H``, ``Q`` unitary), found by Golub-Kahan (Lanczos)
+    bidiagonalization of its inverse (G. H. Golub and W. Kahan, "Calculating the singular
+    values and pseudo-inverse of a matrix", J. SIAM Numer. Anal. Ser. B 2(2), 205-224,
+    1965): ``O(n^2)`` per eigenvalue after one Schur form, computed only when some
+    eigenvalue needs the test (see :mod:`plantcore.structure.pbh_measures`).  ``measures``
+    may hand in the Schur form of a matrix orthogonally similar to ``A``.
     """
     out = np.array(values, dtype=complex)
-    n = A.shape[0]
+    all_values = np.asarray(values, dtype=complex)
+    todo, points = [], []
     for i, v in enumerate(out):
         if discrete:
             r = abs(v)
@@ -222,12 +233,17 @@ def _snap_to_boundary(A, values, delta: float, nA: float, discrete: bool) -> np.
             continue
         # Another eigenvalue much closer to mu (a true boundary eigenvalue beside a slow
         # stable one) explains a small sigma_min(A - mu I) by itself: leave v alone.
-        others = np.delete(np.asarray(values, dtype=complex), i)
+        others = np.delete(all_values, i)
         if others.size and np.min(np.abs(others - mu)) < 0.1 * abs(v - mu):
             continue
-        smin = np.linalg.svd(A - mu * np.eye(n), compute_uv=False)[-1]
-        if smin <= delta:
-            out[i] = mu
+        todo.append(i)
+        points.append(mu)
+    if todo:
+        measures = PBHMeasures(A) if measures is None else measures
+        smin = measures.smallest(np.zeros((A.shape[0], 0)), points, "c")
+        for i, mu, value in zip(todo, points, smin):
+            if value <= delta:
+                out[i] = mu
     return out
 
 
@@ -242,40 +258,30 @@ def _upper(lam) -> complex:
     return lam.conjugate() if lam.imag < 0 else lam
 
 
-def _smin_rows_many(A, M, lams) -> np.ndarray:
-    """Smallest singular value of ``[A - λI, M]`` (n rows) for each ``λ`` in ``lams``.
-
-    One batched LAPACK call (``numpy.linalg.svd`` on a stack, singular values only) for the
-    real values, in real arithmetic (exact there and several times faster), and one for the
-    complex values.
-    """
-    n = A.shape[0]
-    lams = np.asarray(lams, dtype=complex).reshape(-1)
-    out = np.empty(lams.size)
-    if lams.size == 0:
-        return out
-    real = lams.imag == 0.0
-    eye = np.eye(n)
-    for mask, dtype in ((real, float), (~real, complex)):
-        if not mask.any():
-            continue
-        lam = lams[mask].real if dtype is float else lams[mask]
-        X = np.empty((lam.size, n, n + M.shape[1]), dtype=dtype)
-        X[:, :, :n] = A[None] - lam[:, None, None] * eye
-        X[:, :, n:] = M[None]
-        out[mask] = np.linalg.svd(X, compute_uv=False)[:, n - 1]
-    return out
-
-
-def _margins(A, M, values, cache: dict) -> list[float]:
-    """``sigma_min([A - λI, M])`` for each of ``values``, each distinct ``λ`` (up to
-    conjugation) evaluated once, all in one batch; ``cache`` maps ``_upper(λ)`` to the
+def _margins(measures: PBHMeasures, X, side: str, values, cache: dict) -> list[float]:
+    """``sigma_min([A - λI, X])`` (side ``"c"``) or ``sigma_min([A - λI; X])`` (side
+    ``"o"``) for each of ``values``, on the Schur form held by ``measures``; each distinct
+    ``λ`` (up to conjugation) is evaluated once, and ``cache`` maps ``_upper(λ)`` to the
     value and is filled in."""
     keys = [_upper(lam) for lam in values]
     todo = list(dict.fromkeys(k for k in keys if k not in cache))
-    for key, value in zip(todo, _smin_rows_many(A, M, todo)):
+    for key, value in zip(todo, measures.smallest(X, todo, side)):
         cache[key] = float(value)
     return [cache[k] for k in keys]
+
+
+def _orthonormal_pair(T, T_inv) -> bool:
+    """True when ``T`` (n x n) is orthogonal with ``T_inv = T^T`` to ``1e2 n eps``, checked
+    in ``O(n^2)`` (entrywise, and ``T^T T x = x`` for one random unit ``x``).  Then
+    ``T_inv A T`` is an orthogonal similarity of ``A``: every shift ``A - mu I`` keeps its
+    singular values up to that relative level."""
+    n = T.shape[0]
+    level = 1e2 * n * _EPS
+    if T_inv.shape != (n, n) or np.max(np.abs(T_inv - T.T)) > level:
+        return False
+    x = np.random.default_rng(7).standard_normal(n)
+    x /= np.linalg.norm(x)
+    return bool(np.linalg.norm(T.T @ (T @ x) - x) <= level)
 
 
 def _sort_key(value: complex, discrete: bool):
@@ -294,23 +300,26 @@ def _mode_table(kd, p, narrow_margin: float) -> list[Mode]:
     cluster_tol = _CLUSTER_FACTOR * nA
     scale = float(p.scale)
     sizes = tuple(kd.sizes)
-    n1, n2, n3, n4 = sizes
+    n1, n2, n3, _ = sizes
     T_e = kd.T / p.s[:, None]           # bases in equilibrated coordinates
     Ti_e = kd.T_inv * p.s[None, :]
     # Controllable subsystem: orthonormal basis [T1, T2] of the controllable subspace (the
     # model itself when it is controllable: an orthogonal change of basis leaves the
-    # singular values of [A - λI, B] unchanged).
+    # singular values of [A - λI, B] unchanged).  Each matrix whose margins are measured
+    # gets one Schur form, computed on first use (see plantcore.structure.pbh_measures).
+    whole = PBHMeasures(p.A)
     if n1 + n2 == n:
-        A_R, B_R = p.A, p.B_dec
+        on_R, B_R = whole, p.B_dec
     else:
         V_R = T_e[:, :n1 + n2]
-        A_R = V_R.T @ p.A @ V_R
-        B_R = V_R.T @ p.B_dec
+        on_R, B_R = PBHMeasures(V_R.T @ p.A @ V_R), V_R.T @ p.B_dec
     # Observable quotient: orthonormal basis of the complement of N = span[T2, T4].
     N = np.hstack([T_e[:, n1:n1 + n2], T_e[:, n1 + n2 + n3:]])
-    U_O = _complement(N, n) if N.shape[1] else np.eye(n)
-    A_O = U_O.T @ p.A @ U_O
-    C_O = p.C_dec @ U_O
+    if N.shape[1]:
+        U_O = _complement(N, n)
+        on_O, C_O = PBHMeasures(U_O.T @ p.A @ U_O), p.C_dec @ U_O
+    else:
+        on_O, C_O = whole, p.C_dec
     cuts = np.cumsum((0,) + sizes)
     modes: list[Mode] = []
     Az = kd.model.A
@@ -322,21 +331,26 @@ def _mode_table(kd, p, narrow_margin: float) -> list[Mode]:
         sl = slice(cuts[i], cuts[i + 1])
         values = _clustered_eigenvalues(Az[sl, sl], cluster_tol)
         if values.size:
-            # the part's block in equilibrated coordinates, for the boundary test
-            block = (Ti_e[sl, :] @ p.A) @ T_e[:, sl]
-            values = _snap_to_boundary(block, values, delta, nA, discrete)
+            # the part's block in equilibrated coordinates, for the boundary test; a part
+            # that is the whole model in orthonormal coordinates shares the model's Schur form
+            T_part, Ti_part = T_e[:, sl], Ti_e[sl, :]
+            if values.size == n and _orthonormal_pair(T_part, Ti_part):
+                values = _snap_to_boundary(p.A, values, delta, nA, discrete, whole)
+            else:
+                block = (Ti_part @ p.A) @ T_part
+                values = _snap_to_boundary(block, values, delta, nA, discrete)
         controllable = i in (0, 1)
         observable = i in (0, 2)
         # Controllable modes on the controllable subsystem, the others on the whole model
-        # (dually for observability); one batch of SVDs per test and part.
+        # (dually for observability).
         if controllable:
-            cms = _margins(A_R, B_R, values, cache_R)
+            cms = _margins(on_R, B_R, "c", values, cache_R)
         else:
-            cms = _margins(p.A, p.B_dec, values, cache_c)
+            cms = _margins(whole, p.B_dec, "c", values, cache_c)
         if observable:
-            oms = _margins(A_O.T, C_O.T, values, cache_O)
+            oms = _margins(on_O, C_O, "o", values, cache_O)
         else:
-            oms = _margins(p.A.T, p.C_dec.T, values, cache_o)
+            oms = _margins(whole, p.C_dec, "o", values, cache_o)
         part_modes = []
         for lam, cm, om in zip(values, cms, oms):
             lam = complex(lam)
@@ -384,8 +398,12 @@ def classify_modes(model, tol=None, *, narrow_margin: float = NARROW_MARGIN) -> 
     mode's computed eigenvalue (for clusters, the cluster mean), on the equilibrated,
     input-scaled model and relative to its scale (see the module notes).  A conjugate pair
     shares one evaluation (for real data the singular values at ``λ`` and ``conj(λ)``
-    coincide), and the values of each test and part go to LAPACK as one stack
-    (``numpy.linalg.svd`` on a batch, singular values only).
+    coincide).  Each value is measured on one Schur form per matrix (the whole model, the
+    controllable subsystem, the observable quotient): a triangular-pentagonal QR and a
+    Golub-Kahan (Lanczos) iteration on the triangle's inverse, ``O(n^2 m)`` time and
+    ``O(n^2)`` memory per eigenvalue, ``O(n^3)`` in all (see
+    :mod:`plantcore.structure.pbh_measures`; an attained value, equal to the dense SVD's to
+    about ``1e-8`` relative or the rounding level ``~1e-15`` of the scale).
 
     References
     ----------

@@ -1,0 +1,55 @@
+"""Tests of plantcore.structure.distance: the parts of the estimate that scale with n.
+
+(The distance estimates against analytic values and a brute-force minimum are in
+tests/test_modes.py, beside the mode table whose margins they reuse.)
+
+External references:
+- The distance to uncontrollability by its definition (R. Eising, "Between controllable and
+  uncontrollable", Systems & Control Letters 4(5), 263-264, 1984):
+  min over complex lambda of sigma_min([A - lambda I, B]), evaluated here with numpy's dense SVD.
+"""
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+import plantcore as pc
+from plantcore.structure import distance
+from plantcore.structure.kalman import _prepare
+
+
+def _random_model(seed, n=12, m=2, p=2):
+    rng = np.random.default_rng(seed)
+    A = rng.standard_normal((n, n)) / np.sqrt(n) - 0.3 * np.eye(n)
+    return pc.StateSpaceModel(A, rng.standard_normal((n, m)), rng.standard_normal((p, n)))
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_searches_evaluated_in_small_batches_give_the_same_estimates(seed, monkeypatch):
+    model = _random_model(700 + seed)
+    whole = (distance.distance_to_uncontrollability(model),
+             distance.distance_to_unobservability(model))
+    monkeypatch.setattr(distance, "_BATCH_ELEMENTS", 1)     # one search per SVD call
+    one_by_one = (distance.distance_to_uncontrollability(model),
+                  distance.distance_to_unobservability(model))
+    for a, b in zip(whole, one_by_one):
+        assert_allclose(b.value, a.value, rtol=1e-12)
+        assert abs(b.at - a.at) <= 1e-9 * max(1.0, abs(a.at))
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_estimate_is_attained_and_not_above_the_dense_values_at_the_eigenvalues(seed):
+    model = _random_model(710 + seed, n=15, m=1, p=1)
+    p = _prepare(model, None)
+    n = model.n
+    eye = np.eye(n)
+    for estimate, stack in (
+            (distance.distance_to_uncontrollability(model),
+             lambda lam: np.hstack([p.A - lam * eye, p.B_dec])),
+            (distance.distance_to_unobservability(model),
+             lambda lam: np.vstack([p.A - lam * eye, p.C_dec]))):
+        at_eigenvalues = min(np.linalg.svd(stack(lam), compute_uv=False)[-1]
+                             for lam in np.linalg.eigvals(p.A)) / p.scale
+        attained = np.linalg.svd(stack(estimate.at), compute_uv=False)[-1] / p.scale
+        assert_allclose(estimate.value, attained, rtol=1e-8)
+        assert estimate.value <= at_eigenvalues * (1 + 1e-8)
