@@ -348,3 +348,33 @@ def test_whole_model_contradiction_falls_back_to_the_quotient():
     assert any("observability of the whole model" in text for text in labels)
     sizes = tuple(int(k) for k in kd.sizes)
     assert sizes == tuple(km.sizes) or kd.fragile
+
+
+def test_certificate_shared_by_calls_on_the_same_model(monkeypatch):
+    from plantcore.structure import kalman
+    calls = []
+    original = kalman.modal_certificate
+
+    def counting(*args, **kwargs):
+        calls.append(1)
+        return original(*args, **kwargs)
+
+    monkeypatch.setattr(kalman, "modal_certificate", counting)
+    monkeypatch.setattr(kalman, "_RECENT_CERTIFICATES", type(kalman._RECENT_CERTIFICATES)())
+    case = catalog.known_structure((3, 2, 2, 1), inputs=2, outputs=2, seed=7, condition=10.0)
+    model = case.model
+    first = pc.kalman_decomposition(model)
+    again = pc.minimal_realization(model)
+    assert len(calls) == 1                      # the second call reused the certificate
+    assert again.order == first.sizes[0]
+    pc.kalman_decomposition(model, tol=1e-9)    # another tolerance: another certificate
+    assert len(calls) == 2
+    twin = pc.StateSpaceModel(model.A, model.B, model.C, model.D)
+    pc.kalman_decomposition(twin)               # another model object: computed anew
+    assert len(calls) == 3
+    # matrices changed behind the model's back (made writeable again): not reused
+    A = twin.A
+    A.flags.writeable = True
+    A[0, 0] += 1.0
+    pc.kalman_decomposition(twin)
+    assert len(calls) == 4

@@ -171,7 +171,8 @@ class StateSpaceModel:
     True
     """
 
-    __slots__ = ("_A", "_B", "_C", "_D", "_dt", "_states", "_inputs", "_outputs", "_name")
+    __slots__ = ("_A", "_B", "_C", "_D", "_dt", "_states", "_inputs", "_outputs", "_name",
+                 "__weakref__")
 
     def __init__(self, A, B, C, D=None, dt=None, states=None, inputs=None, outputs=None, name=None):
         A, B, C, D = _validated(A, B, C, D)

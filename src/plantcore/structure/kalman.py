@@ -21,8 +21,12 @@ final zero-pattern transformation share one prepared model and read best togethe
 
 from __future__ import annotations
 
+import collections
 import dataclasses
 import math
+import threading
+import weakref
+import zlib
 from dataclasses import dataclass, field
 from typing import NamedTuple
 
@@ -167,8 +171,45 @@ def _start(p: _Prepared, *, keep_A: bool):
     """
     g_in = _input_gains(p.B, p.B_dec)
     g_out = _input_gains(p.C.T, p.C_dec.T)
-    cert = modal_certificate(p.A, p.B_dec, p.C_dec, scale=p.scale, tol=p.tol)
-    return g_in, g_out, cert, _nested(p, keep_A=keep_A)
+    return g_in, g_out, _certificate(p), _nested(p, keep_A=keep_A)
+
+
+_RECENT_CERTIFICATES: collections.OrderedDict = collections.OrderedDict()
+_RECENT_LIMIT = 4
+_RECENT_LOCK = threading.Lock()
+
+
+def _fingerprint(model) -> int:
+    """A checksum of the model's matrices (they are read-only; this guards the cache
+    against a user who makes them writeable again)."""
+    value = 0
+    for X in (model.A, model.B, model.C):
+        value = zlib.crc32(np.ascontiguousarray(X).view(np.uint8).ravel(), value)
+    return value
+
+
+def _certificate(p: _Prepared):
+    """The modal certificate of a prepared model, shared by the calls on the same model.
+
+    ``kalman_decomposition``, ``minimal_realization`` and ``analyze`` on one model ask
+    for the same certificate; the last few are kept (without their Schur form, which only
+    the call that computed it reuses), keyed by the model object, the tolerance and a
+    checksum of the matrices.
+    """
+    key = (id(p.model), float(p.tol), _fingerprint(p.model))
+    with _RECENT_LOCK:
+        hit = _RECENT_CERTIFICATES.get(key)
+        if hit is not None and hit[0]() is p.model:
+            _RECENT_CERTIFICATES.move_to_end(key)
+            return hit[1]
+    cert = modal_certificate(p.A, p.B_dec, p.C_dec, scale=p.scale, tol=p.tol, keep_schur=True)
+    if cert is not None:
+        with _RECENT_LOCK:
+            _RECENT_CERTIFICATES[key] = (weakref.ref(p.model),
+                                         dataclasses.replace(cert, schur=None))
+            while len(_RECENT_CERTIFICATES) > _RECENT_LIMIT:
+                _RECENT_CERTIFICATES.popitem(last=False)
+    return cert
 
 
 @dataclass(frozen=True)
@@ -327,7 +368,7 @@ def _decompose(p: _Prepared) -> KalmanDecomposition:
     except NumericalBreakdown:
         # the staircase's parts are (nearly) dependent; the certificate may still split
         # the model spectrally
-        cert = modal_certificate(p.A, p.B_dec, p.C_dec, scale=p.scale, tol=p.tol)
+        cert = _certificate(p)
         spectral = spectral_decomposition(p.A, p.B, p.C, cert) if cert is not None else None
         if spectral is None:
             raise

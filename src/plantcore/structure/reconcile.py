@@ -218,7 +218,7 @@ def spectral_decomposition(A, B, C, cert) -> SpectralDecomposition | None:
     labels = 1 + uno.astype(int) + 2 * unc.astype(int)
     labels[shared] = 0
     reps = cert.eigenvalues
-    T, Q = scipy.linalg.schur(A, output="real")
+    T, Q = cert.schur if cert.schur is not None else scipy.linalg.schur(A, output="real")
     order = (0, 2, 1, 4, 3)
     for end in range(1, len(order)):
         part = _positions_part(T, reps, labels)

@@ -135,7 +135,8 @@ def _controllability(model, tol, label="controllability"):
     g = _input_gains(B_e, B_s)
     del B_e
     # the modal certificate (controllability side only); reduce_staircase copies A_e
-    cert = modal_certificate(A_e, B_s, np.zeros((0, model.n)), scale=scale, tol=tol)
+    cert = modal_certificate(A_e, B_s, np.zeros((0, model.n)), scale=scale, tol=tol,
+                             keep_schur=True)
     red = reduce_staircase(A_e, B_s, C_e, scale=scale, tol=tol, label=label)
     rank = int(sum(red.blocks))
     check = _certificate_check(cert, rank, label)
@@ -171,7 +172,7 @@ def _spectral_staircase(A, B, C, cert, *, scale, tol, label):
     if np.any((copies > 0) & (copies < cert.multiplicities)):
         return None
     controllable = copies == 0
-    T, Q = scipy.linalg.schur(A, output="real")
+    T, Q = cert.schur if cert.schur is not None else scipy.linalg.schur(A, output="real")
     ev = schur_eigenvalues(T)
     select = controllable[np.argmin(np.abs(ev[:, None] - cert.eigenvalues[None, :]), axis=1)]
     sub = np.nonzero(np.diag(T, -1))[0]
