@@ -255,3 +255,17 @@ def test_complex_eigenvalue_shared_by_three_parts():
     _, cert = certificate_of(A, B, C)
     assert sorted(cert.multiplicities.tolist()) == [3, 3]
     assert cert.sizes() == (2, 0, 2, 2)
+
+
+def test_defective_eigenvalue_of_multiplicity_19_is_one_cluster_counted_by_staircases():
+    # A seeded draw of benchmarks/trust_study.py's repeated family: every eigenvalue 0.5,
+    # defective blocks in all four parts (sizes (6, 3, 3, 7), n = 19), hidden orthogonally.
+    # The computed copies scatter over rings of radii 2e-3 and 3e-2 whose centres agree to
+    # 3e-10; they form one cluster of 19, whose copies a small staircase of its own block
+    # counts at the tolerance as the construction says.
+    from test_reconcile import _load_known_structure
+    km = _load_known_structure().draw("repeated", (20261203, 10))
+    assert tuple(km.sizes) == (6, 3, 3, 7) and km.n == 19
+    _, cert = certificate_of(km.A, km.B, km.C)
+    assert cert.multiplicities.tolist() == [19]
+    assert cert.sizes() == (6, 3, 3, 7)

@@ -50,13 +50,15 @@ stays right for the hard ones:
    ``1e3 eps ||A||``; the scattered copies of a defective eigenvalue of multiplicity ``k``
    (a ring of radius ``eps^(1/k) ||A||``) are ill conditioned in just that proportion, so
    they link up, while a group is never let grow wider than such a ring (see
-   :func:`_clusters`), so distinct ill-conditioned eigenvalues stay apart.  For a cluster of ``k`` copies the
-   number of uncontrollable copies is the algebraic multiplicity of ``lambda`` as an
-   input-decoupling zero: the cluster is moved to the bottom of the real Schur form
-   (``?trsen``; G. H. Golub and C. F. Van Loan, *Matrix Computations*, 4th ed., 2013,
-   section 7.6), and the count is read from the singular values of the ``k``-fold block
-   Toeplitz matrix of the pencil ``[T_22 - lambda I, B_2]`` of that block (its left kernel
-   has dimension ``sum_i min(k, nu_i)``, the partial multiplicities ``nu_i``).
+   :func:`_clusters`), so distinct ill-conditioned eigenvalues stay apart; groups whose
+   centres agree (the rings of one eigenvalue's Jordan blocks of different sizes) are then
+   merged.  For a cluster of ``k`` copies the number of uncontrollable copies is the
+   algebraic multiplicity of ``lambda`` as an input-decoupling zero: the cluster is moved
+   to the bottom of the real Schur form (``?trsen``; G. H. Golub and C. F. Van Loan,
+   *Matrix Computations*, 4th ed., 2013, section 7.6), where its block ``(T_22, B_2)``
+   holds only its own eigenvalues, and the count is ``k`` minus the controllable dimension
+   of that small pair, decided by an orthogonal staircase at each tolerance of the window
+   (P. Van Dooren 1981, see :func:`_staircase_run`).
 
 How it can fail: measures are taken at the computed eigenvalues.  For hypersensitive
 spectra (strongly non-normal chains) the computed eigenvalues can lie far from the
@@ -82,7 +84,7 @@ from scipy.spatial import cKDTree
 
 from plantcore.core.rank import FRAGILITY_FACTOR
 
-__all__ = ["ModalCertificate", "modal_certificate", "schur_eigenvalues", "controllable_basis"]
+__all__ = ["ModalCertificate", "controllable_basis", "modal_certificate", "schur_eigenvalues"]
 
 _EPS = np.finfo(float).eps
 _CLUSTER_FACTOR = _EPS ** (1.0 / 3.0)
@@ -90,8 +92,8 @@ _REPEATED_RADIUS = 1e3 * _EPS    # exactly repeated, well-conditioned eigenvalue
 _ERROR_FACTOR = 1e3              # error disc of a computed eigenvalue: 1e3 kappa eps ||A||
 _EIGENVALUE_ERROR = 10.0         # first-order error of a computed eigenvalue, in kappa eps ||A||
 _INVERSE_STEPS = 4
-_TOEPLITZ_MAX = 24          # larger clusters fall back to a small staircase
-_MAX_CLUSTER = 12           # copies of one eigenvalue grouped at most (see _clusters)
+_CENTRE_AGREEMENT = 1e-3    # centres of one eigenvalue's rings agree to this part of a ring
+_MAX_CLUSTER = 24           # copies of one eigenvalue grouped at most (see _clusters)
 
 
 @dataclass(frozen=True)
@@ -274,17 +276,24 @@ def _merge_concentric(values: np.ndarray, labels: np.ndarray, base: float) -> np
     Jordan blocks of different sizes scatter over rings of different radii
     (``eps^(1/k)``), which the ring rule of :func:`_clusters` keeps apart, but the mean of
     each ring is the eigenvalue to about ``eps ||A||`` (the trace of the block is exact to
-    rounding).  A group of several members is merged with any group or single eigenvalue
-    whose centre lies within ``1e3 n eps ||A||`` of its own."""
+    rounding; for a group that holds only some of the copies, to a small fraction of its
+    ring).  A group of several members is merged with any group or single eigenvalue whose
+    centre lies within ``max(1e3 n eps ||A||, 1e-3 rho)`` of its own, ``rho`` the larger
+    ring radius (distinct eigenvalues that close lie inside each other's rings and cannot
+    be told apart by their computed copies)."""
     k = int(labels.max()) + 1
     size = np.bincount(labels, minlength=k)
     if not np.any(size > 1):
         return labels
     centre = np.array([values[labels == c].mean() for c in range(k)])
-    radius = _ERROR_FACTOR * values.size * _EPS * base
+    ring = np.array([float(np.abs(values[labels == c] - centre[c]).max()) for c in range(k)])
+    floor = _ERROR_FACTOR * values.size * _EPS * base
+    reach = np.maximum(floor, _CENTRE_AGREEMENT * ring)
     pairs = cKDTree(np.column_stack([centre.real, centre.imag])).query_pairs(
-        radius, output_type="ndarray").reshape(-1, 2)
-    pairs = pairs[(size[pairs[:, 0]] > 1) | (size[pairs[:, 1]] > 1)]
+        float(reach.max()), output_type="ndarray").reshape(-1, 2)
+    gap = np.abs(centre[pairs[:, 0]] - centre[pairs[:, 1]])
+    pairs = pairs[((size[pairs[:, 0]] > 1) | (size[pairs[:, 1]] > 1))
+                  & (gap <= np.maximum(reach[pairs[:, 0]], reach[pairs[:, 1]]))]
     if not pairs.size:
         return labels
     graph = scipy.sparse.coo_matrix((np.ones(len(pairs)), (pairs[:, 0], pairs[:, 1])),
@@ -375,53 +384,55 @@ def _smallest_singular_values(top, bottom, k: int, start=None) -> np.ndarray:
     return np.linalg.svd(Y, compute_uv=False)[::-1][:k]
 
 
-def _decoupling_zero_values(A, B, lam, alpha: float) -> np.ndarray:
-    """Singular values (ascending) whose count below a threshold is the algebraic number of
-    uncontrollable copies of ``lam`` in the small pair ``(A, B)`` (k x k, k x m).
+def _staircase_run(A, B, threshold: float) -> tuple[int, float, float]:
+    """One orthogonal controllability staircase of a small pair at an absolute rank
+    threshold (P. Van Dooren, "The generalized eigenstructure problem in linear system
+    theory", IEEE Trans. Automatic Control 26(1), 111-129, 1981).
 
-    The k-fold block bidiagonal Toeplitz matrix with ``[A - lam I, B]`` on the diagonal and
-    ``alpha [-I, 0]`` below it (``alpha`` the model scale, so that both kinds of block have
-    the same size) has a left kernel of dimension ``sum_i min(k, nu_i)``, the
-    algebraic multiplicity of ``lam`` as an input-decoupling zero (the pencil
-    ``[A - s I, B]`` has no left minimal indices); one SVD reads it off.  Clusters larger
-    than :data:`_TOEPLITZ_MAX` use the singular values of an orthogonal staircase instead
-    (P. Van Dooren, "The generalized eigenstructure problem in linear system theory", IEEE
-    Trans. Automatic Control 26(1), 111-129, 1981).
-    """
-    k, m = A.shape[0], B.shape[1]
-    if k > _TOEPLITZ_MAX:
-        return _staircase_values(A - lam * np.eye(k), B)
-    width = k + m
-    P0 = np.hstack([A - lam * np.eye(k), B])
-    E = np.hstack([-alpha * np.eye(k), np.zeros((k, m))])
-    M = np.zeros((k * k, k * width), dtype=np.result_type(P0, complex))
-    for i in range(k):
-        M[i * k:(i + 1) * k, i * width:(i + 1) * width] = P0
-        if i + 1 < k:
-            M[(i + 1) * k:(i + 2) * k, i * width:(i + 1) * width] = E
-    return np.sort(np.linalg.svd(M, compute_uv=False))[:k]
-
-
-def _staircase_values(A, B) -> np.ndarray:
-    """For a large cluster: the singular values the controllability staircase of a small
-    pair leaves out, padded with the steps' smallest kept values (ascending, k entries)."""
-    A = np.array(A, dtype=complex)
+    Returns (copies not reached, i.e. ``k`` minus the controllable dimension; the largest
+    singular value dropped; the smallest kept)."""
+    A = np.array(A, dtype=np.result_type(A, B, float))
+    X = np.array(B, dtype=A.dtype)
     k = A.shape[0]
-    X = np.array(B, dtype=complex)
-    done, values = 0, []
+    done, dropped, kept = 0, 0.0, math.inf
     while done < k and X.size:
-        U, s, _ = np.linalg.svd(X)
-        r = int(np.count_nonzero(s > 1e-6 * (s[0] if s.size else 1.0)))
-        values.extend(s[r:].tolist())
+        U, sv, _ = np.linalg.svd(X)
+        r = int(np.count_nonzero(sv > threshold))
+        if r < sv.size:
+            dropped = max(dropped, float(sv[r]))
         if r == 0:
             break
-        sl = slice(done, k)
-        A[sl, :] = U.conj().T @ A[sl, :]
-        A[:, sl] = A[:, sl] @ U
+        kept = min(kept, float(sv[r - 1]))
+        rest = slice(done, k)
+        A[rest, :] = U.conj().T @ A[rest, :]
+        A[:, rest] = A[:, rest] @ U
         X = A[done + r:, done:done + r]
         done += r
-    values.extend([0.0] * (k - done - len(values)))
-    return np.sort(np.asarray(values[:k] + [math.inf] * max(0, k - len(values))))
+    return k - done, dropped, kept
+
+
+def _copy_values(A, B, thresholds, pairs: bool, copies: int) -> np.ndarray:
+    """Values whose count below each of the three ``thresholds`` (ascending, absolute) is
+    the number of uncontrollable copies of a cluster whose block is the pair ``(A, B)``.
+
+    The block holds only the cluster's eigenvalues (and, when ``pairs``, their conjugates,
+    one copy each in its 2 x 2 blocks), so its uncontrollable dimension is the number of
+    uncontrollable copies, the algebraic count a repeated or defective eigenvalue needs.
+    It is decided by a small staircase at each threshold; the values returned are the
+    singular values that decided it (the largest dropped at the threshold where the count
+    grows, the smallest kept above the last), ``copies`` of them in all.
+    """
+    runs = [_staircase_run(A, B, t) for t in thresholds]
+    counts = np.maximum.accumulate([r[0] for r in runs])
+    if pairs:
+        counts = -(-counts // 2)
+    counts = np.minimum(counts, copies)
+    values = [min(runs[0][1], thresholds[0])] * int(counts[0])
+    for i in (1, 2):
+        values += [min(max(runs[i][1], thresholds[i - 1] * (1 + 1e-12)), thresholds[i])] * \
+            int(counts[i] - counts[i - 1])
+    values += [max(runs[2][2], thresholds[2] * (1 + 1e-12))] * (copies - int(counts[2]))
+    return np.asarray(values, dtype=float)
 
 
 def schur_eigenvalues(T: np.ndarray) -> np.ndarray:
@@ -493,10 +504,10 @@ def _measure(schur: _Schur, X, lam: complex, side: str, k: int, start=None) -> n
     return _smallest_singular_values(top, bottom, k, start=guess)
 
 
-def _cluster_copy_values(schur: _Schur, B, C, members: np.ndarray, lam: complex,
-                         side: str, scale: float) -> np.ndarray:
-    """Singular values that count the uncontrollable (unobservable) copies of a cluster,
-    from its own block of the reordered real Schur form."""
+def _cluster_copy_values(schur: _Schur, B, C, members: np.ndarray, side: str,
+                         thresholds, pairs: bool, copies: int) -> np.ndarray:
+    """Values that count the uncontrollable (unobservable) copies of a cluster, from its
+    own block of the reordered real Schur form (see :func:`_copy_values`)."""
     select = members
     k = int(select.sum())
     T, Q = schur.T, schur.Q
@@ -504,11 +515,11 @@ def _cluster_copy_values(schur: _Schur, B, C, members: np.ndarray, lam: complex,
         Ts, Qs, *_, info = lapack.dtrsen((~select).astype(np.int32), T, Q, job="N")
         if info != 0:
             raise np.linalg.LinAlgError("the cluster could not be reordered")
-        return _decoupling_zero_values(Ts[-k:, -k:], (Qs.T @ B)[-k:], lam, scale)
+        return _copy_values(Ts[-k:, -k:], (Qs.T @ B)[-k:], thresholds, pairs, copies)
     Ts, Qs, *_, info = lapack.dtrsen(select.astype(np.int32), T, Q, job="N")
     if info != 0:
         raise np.linalg.LinAlgError("the cluster could not be reordered")
-    return _decoupling_zero_values(Ts[:k, :k].T, (C @ Qs)[:, :k].T, lam, scale)
+    return _copy_values(Ts[:k, :k].T, (C @ Qs)[:, :k].T, thresholds, pairs, copies)
 
 
 def controllable_basis(A, X, threshold: float) -> np.ndarray:
@@ -714,9 +725,10 @@ def modal_certificate(A, B, C, *, scale: float, tol: float,
                     if partner is not None:
                         members |= pos_label == partner
                     try:
-                        counted = _cluster_copy_values(schur, B, C, members, value, side,
-                                                       scale) / scale
-                        copies[c] = np.sort(counted)[:mult[c]]
+                        counted = _cluster_copy_values(
+                            schur, B, C, members, side, (lo * scale, tol * scale, hi * scale),
+                            partner is not None, int(mult[c])) / scale
+                        copies[c] = np.sort(counted)
                     except np.linalg.LinAlgError:
                         pass      # the geometric count of the measured values stands
                 measured[c] = True

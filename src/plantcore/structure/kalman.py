@@ -25,6 +25,7 @@ import collections
 import dataclasses
 import math
 import threading
+import warnings
 import weakref
 import zlib
 from dataclasses import dataclass, field
@@ -34,20 +35,22 @@ import numpy as np
 import scipy.linalg
 from scipy.linalg import lapack
 
-import warnings
-
+from plantcore.core.equilibration import equilibrate, io_scaled
 from plantcore.core.errors import AccuracyWarning, NumericalBreakdown
 from plantcore.core.model import StateSpaceModel, as_model
-from plantcore.structure.certificate import modal_certificate
-from plantcore.structure.reconcile import (certificate_decisions, certificate_finds_more,
-                                           confirm_window, spectral_decomposition,
-                                           supersede)
-from plantcore.structure.staircase_kernels import reduce_staircase
 from plantcore.core.rank import RankDecision, any_fragile, resolve_tolerance
-from plantcore.core.equilibration import equilibrate, io_scaled
+from plantcore.structure.certificate import modal_certificate
+from plantcore.structure.reconcile import (
+    certificate_decisions,
+    certificate_finds_more,
+    confirm_window,
+    spectral_decomposition,
+    supersede,
+)
 from plantcore.structure.staircase import _input_gains, _scale_of
+from plantcore.structure.staircase_kernels import reduce_staircase
 
-__all__ = ["PartSizes", "KalmanDecomposition", "kalman_decomposition", "PART_NAMES"]
+__all__ = ["PART_NAMES", "KalmanDecomposition", "PartSizes", "kalman_decomposition"]
 
 # T with a condition number (in equilibrated coordinates) above the limit is refused: T_inv
 # would have fewer than about four correct digits.  Above the warning level the measured
