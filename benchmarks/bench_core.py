@@ -6,9 +6,11 @@ the calls interleaved and the median of several runs:
 * ``plantcore.controllability_staircase``, ``plantcore.kalman_decomposition`` and
   ``plantcore.minimal_realization``;
 * slycot's controllability-staircase routine ``ab01nd`` (asked for the transformation too,
-  as ours returns it) and minimal-realization routine ``tb01pd``, on the same matrices, with
-  an absolute rank tolerance of ``1e-10 * max(||A||, ||B||, ||C||)`` -- the same relative
-  size as ours (their default, about ``n^2 eps ||.||``, is too tight for rounded data);
+  as ours returns it) and minimal-realization routine ``tb01pd``, on the same matrices:
+  ``ab01nd`` with the absolute rank tolerance ``1e-10 * max(||A||, ||B||, ||C||)`` and
+  ``tb01pd`` with ``1e-10`` as is (its tolerance is a lower bound for a reciprocal condition
+  number, already relative) -- the same relative size as ours (their defaults, about
+  ``n^2 eps``, are too tight for rounded data);
 * ``scipy.linalg.hessenberg(A)`` (no transformation), the floor: an orthogonal reduction of
   ``A`` to a Hessenberg form is the least any staircase reduction has to do.
 
