@@ -51,3 +51,41 @@ def test_contents_are_rendered_as_they_are(tmp_path, monkeypatch):
     for response in contents.responses:
         assert response.singular_values.shape == (response.frequencies.size, 1)
         assert np.all(np.isfinite(response.singular_values))
+
+
+def _rigid_body_with_flexible_mode(discrete=False):
+    # A rigid body (double integrator) and one flexible mode at 3 rad/s, 2 % damping,
+    # one force and one position sensor, rotated by an orthogonal matrix so that the two
+    # zero eigenvalues are computed at rounding level (about 1e-17), not exactly 0.
+    A = np.zeros((4, 4))
+    A[0, 1] = 1.0
+    A[2:, 2:] = [[0.0, 1.0], [-9.0, -0.12]]
+    B = np.array([[0.0], [1.0], [0.0], [1.0]])
+    C = np.array([[1.0, 0.0, 1.0, 0.0]])
+    Q, _ = np.linalg.qr(np.random.default_rng(5).standard_normal((4, 4)))
+    A, B, C = Q.T @ A @ Q, Q.T @ B, C @ Q
+    if discrete:
+        import scipy.linalg
+        dt = 0.05
+        M = scipy.linalg.expm(np.block([[A, B], [np.zeros((1, 5))]]) * dt)
+        return pc.StateSpaceModel(M[:4, :4], M[:4, 4:], C, dt=dt)
+    return pc.StateSpaceModel(A, B, C)
+
+
+@pytest.mark.parametrize("discrete", [False, True], ids=["continuous", "sampled"])
+def test_grid_ignores_integrators_at_rounding_level(discrete):
+    model = _rigid_body_with_flexible_mode(discrete)
+    analysis = pc.analyze(model)
+    w = report_contents._frequency_grid(model, analysis.modes, 50)
+    # the flexible mode (3 rad/s) with a decade of margin: not 1e-18 .. 1e2
+    assert 0.1 <= w[0] <= 0.3 + 1e-12
+    assert w[-1] >= 3.0
+    # the plotted original and minimal curves coincide where the certificate says so
+    contents = report_contents.collect_report(model, progress=False)
+    assert contents.certificate.equivalent
+    original, minimal = contents.responses[:2]
+    at = np.interp(np.log(original.frequencies), np.log(minimal.frequencies),
+                   minimal.singular_values[:, 0])
+    ok = np.isfinite(at) & np.isfinite(original.singular_values[:, 0])
+    assert ok.sum() > 30
+    assert np.max(np.abs(np.log(at[ok] / original.singular_values[ok, 0]))) < 0.05

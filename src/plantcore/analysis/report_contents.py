@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from plantcore.analysis.analyze import analyze
+from plantcore.core.rank import DEFAULT_RELATIVE_TOLERANCE
 from plantcore.core.progress import Progress
 from plantcore.reduction.balanced import balanced_truncation
 from plantcore.reduction.equivalence import check_equivalence
@@ -32,19 +33,27 @@ DEFAULT_RELATIVE_ERROR = 0.1
 
 
 def _frequency_grid(model, modes, points: int) -> np.ndarray:
-    """A logarithmic frequency grid around the model's eigenvalues (rad per time unit)."""
+    """A logarithmic frequency grid around the model's physical modes (rad per time unit).
+
+    Eigenvalues within the default rank tolerance of zero (of ``z = 1`` in discrete time),
+    relative to ``||A||_F``, are integrators whose computed value is rounding: they set no
+    frequency (a rigid-body pair computed as ``2.7e-17`` would otherwise stretch the grid
+    down to ``1e-18``).  The grid spans the other modes with a decade of margin on each side.
+    """
     values = np.array([complex(m.value) for m in modes], dtype=complex)
+    norm_A = float(np.linalg.norm(model.A))
+    rounding = DEFAULT_RELATIVE_TOLERANCE * max(norm_A, np.finfo(float).tiny)
     if model.is_discrete:
         dt = model.dt
         nyquist = np.pi / dt
-        nz = values[np.abs(values) > 0]
-        w = np.abs(np.log(nz)) / dt if nz.size else np.array([])
+        physical = values[(np.abs(values) > 0) & (np.abs(values - 1.0) > rounding)]
+        w = np.abs(np.log(physical)) / dt if physical.size else np.array([])
         w = w[w > 0]
         low = 0.1 * w.min() if w.size else 1e-3 * nyquist
         low = min(low, 1e-2 * nyquist)
         return np.geomspace(low, nyquist, points)
     w = np.abs(values)
-    w = w[w > 0]
+    w = w[w > rounding]
     if not w.size:
         return np.geomspace(1e-2, 1e2, points)
     return np.geomspace(0.1 * w.min(), 10.0 * w.max(), points)
