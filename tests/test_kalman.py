@@ -378,3 +378,16 @@ def test_certificate_shared_by_calls_on_the_same_model(monkeypatch):
     A[0, 0] += 1.0
     pc.kalman_decomposition(twin)
     assert len(calls) == 4
+
+
+def test_a_decomposition_that_does_not_reproduce_the_model_is_fragile():
+    # The same scaled draw: the returned decomposition reproduces the model only to a
+    # backward error of about 1 (measured); it is warned about and marked fragile, with
+    # the figure in the decision record.
+    import test_reconcile
+    km = test_reconcile._load_known_structure().draw("scaled", (20261203, 204))
+    with pytest.warns(pc.AccuracyWarning, match="marked fragile"):
+        kd = pc.kalman_decomposition(km.model())
+    assert kd.residual > 1e-8 and kd.fragile
+    record = [d for d in kd.decisions if d.label == "accuracy of the decomposition"]
+    assert len(record) == 1 and record[0].fragile and "backward error" in record[0].window_outcome

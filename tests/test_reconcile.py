@@ -348,3 +348,20 @@ def test_to_dict_carries_the_new_fields():
     assert d["window_outcome"] == "" and d["superseded"] is False and d["fragile"] is False
     d = decision(2.0, superseded=True).to_dict()
     assert d["superseded"] is True and d["window_outcome"] is None and d["fragile"] is False
+
+
+def test_strongly_rescaled_model_keeps_a_dropped_value_in_the_window_fragile():
+    # A seeded draw of the scaled family (n = 13, parts (1, 4, 0, 8), states scaled by up
+    # to 2^30, equilibrated with a spread of 2^55) whose controllability staircase drops
+    # 6.3e-13, inside the window, and so loses 4 controllable modes; the certificate,
+    # measured in the same rescaled coordinates, agrees with it.  A dropped value is not
+    # confirmed by the window when the equilibration rescaled the states by more than
+    # MILD_SCALING_ORDERS binary orders, so the wrong answers are flagged.
+    from plantcore.structure.reconcile import MILD_SCALING_ORDERS
+    assert MILD_SCALING_ORDERS == 10
+    km = _load_known_structure().draw("scaled", (20261203, 204))
+    assert tuple(km.sizes) == (1, 4, 0, 8)
+    for quantity, got in _answers(km).items():
+        assert got is not None
+        value, fragile = got
+        assert km.accepts(quantity, value, fragile) or fragile, quantity

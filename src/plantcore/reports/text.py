@@ -142,12 +142,19 @@ def _fragile_lines(a) -> list[str]:
     fragile = [d for d in a.decisions if d.fragile]
     if not fragile:
         return []
-    labels = ", ".join(d.label for d in fragile)
-    verb = "lies" if len(fragile) == 1 else "lie"
-    return [f"WARNING: {_plural(len(fragile), 'rank decision')} ({labels}) {verb} within a "
-            "factor 100 of the tolerance, so the part sizes depend on the tolerance. Compare "
-            "with runs at a tolerance ten times larger and ten times smaller before relying on "
-            "them."]
+    near = [d for d in fragile if not d.window_outcome]
+    out = []
+    if near:
+        labels = ", ".join(d.label for d in near)
+        verb = "lies" if len(near) == 1 else "lie"
+        out.append(f"WARNING: {_plural(len(near), 'rank decision')} ({labels}) {verb} within "
+                   "a factor 100 of the tolerance, so the part sizes depend on the tolerance. "
+                   "Compare with runs at a tolerance ten times larger and ten times smaller "
+                   "before relying on them.")
+    for d in fragile:
+        if d.window_outcome:
+            out.append(f"WARNING: {d.label}: {d.window_outcome}.")
+    return out
 
 
 def _narrow_lines(a) -> list[str]:

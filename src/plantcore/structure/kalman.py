@@ -532,7 +532,7 @@ def _decomposition(p: _Prepared) -> KalmanDecomposition:
     T_inv /= s[None, :]
     del T_e, Ti_e
     sizes = PartSizes(n1, n2, n3c, n4)
-    decisions = confirm_window(decisions, cert, sizes)
+    decisions = confirm_window(decisions, cert, sizes, state_scaling=p.s)
     if cert is not None and certificate_finds_more(cert.sizes(), sizes):
         spectral = spectral_decomposition(p.A, p.B, p.C, cert)
         if spectral is not None:
@@ -556,13 +556,20 @@ def _finish(model, new, T, T_inv, sizes, decisions, condition_equilibrated, tol)
     """
     residual = backward_error(model, new, T, T_inv)
     condition = condition_number(T, T_inv)
-    if residual > max(_ACCURACY_WARNING, 10.0 * tol):
+    limit = max(_ACCURACY_WARNING, 10.0 * tol)
+    if residual > limit:
+        # a decomposition that does not reproduce the model cannot vouch for its parts
+        text = (f"the returned decomposition reproduces the model only to a relative "
+                f"backward error of {residual:.2g} (measured; limit {limit:.2g})")
+        decisions = tuple(decisions) + (RankDecision(
+            "accuracy of the decomposition", 0, 0, math.inf, 0.0, tol, conflict=True,
+            check_only=True, window_outcome=text),)
         why = (" the parts are nearly dependent or the states' units very different, and"
                if condition > _CONDITION_WARNING else "")
         warnings.warn(
             f"the Kalman decomposition reproduces the model to a relative backward error of "
             f"{residual:.2g} (measured), and its transformation T has condition number "
-            f"{condition:.3g}:{why} the answer may depend on the tolerance.",
+            f"{condition:.3g}:{why} the answer may depend on the tolerance (marked fragile).",
             AccuracyWarning, stacklevel=3)
     return KalmanDecomposition(new, T, T_inv, condition, sizes, decisions,
                                any_fragile(decisions), residual, condition_equilibrated)

@@ -133,7 +133,7 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
                 pass
         if disagree:
             staircase_like = (r, nc - r, n - nc, 0)   # the conflict is recorded below
-        decisions = confirm_window(decisions, cert, staircase_like)
+        decisions = confirm_window(decisions, cert, staircase_like, state_scaling=p.s)
         decisions = decisions + certificate_decisions(cert, staircase_like)
     # The minimal model is the leading block of the second staircase, in the coordinates
     # W1 = U1 diag(Z, I) (or Z alone when everything is controllable); only the r kept

@@ -152,7 +152,8 @@ def _controllability(model, tol, label="controllability"):
     U = red.form_U()
     red.transforms.clear()
     B_t = red.B / g[None, :]  # back to the user's input units (exact: powers of two)
-    decisions = confirm_window(tuple(red.decisions), cert, None, rank=rank) + check
+    decisions = confirm_window(tuple(red.decisions), cert, None, rank=rank,
+                               state_scaling=eq.state_scaling) + check
     return model, eq, red.A, B_t, red.C, U, red.blocks, decisions
 
 
