@@ -92,6 +92,7 @@ _REPEATED_RADIUS = 1e3 * _EPS    # exactly repeated, well-conditioned eigenvalue
 _ERROR_FACTOR = 1e3              # error disc of a computed eigenvalue: 1e3 kappa eps ||A||
 _EIGENVALUE_ERROR = 10.0         # first-order error of a computed eigenvalue, in kappa eps ||A||
 _INVERSE_STEPS = 4
+_INDEPENDENT_STEPS = 4      # longest local staircase that counts as a second method
 _CENTRE_AGREEMENT = 1e-3    # centres of one eigenvalue's rings agree to this part of a ring
 _MAX_CLUSTER = 24           # copies of one eigenvalue grouped at most (see _clusters)
 
@@ -134,6 +135,7 @@ class ModalCertificate:
     _copies_c: tuple = field(repr=False, default=())
     _copies_o: tuple = field(repr=False, default=())
     _local_both: dict = field(repr=False, default_factory=dict)
+    _uncounted: frozenset = field(repr=False, default=frozenset())
     schur: tuple | None = field(repr=False, default=None, compare=False)
 
     @property
@@ -154,11 +156,13 @@ class ModalCertificate:
 
     def undecided(self, t: float | None = None) -> int:
         """Clusters (on either side) whose measure lies above ``t`` but whose lower figure
-        does not: the answer at ``t`` is not certified there (see the module notes on
-        ill-conditioned eigenvalues)."""
+        does not, and clusters whose copies could not be counted independently of the
+        staircase (see :func:`_copy_values`): the answer at ``t`` is not certified there
+        (see the module notes on ill-conditioned eigenvalues)."""
         t = self.tolerance if t is None else t
         c = (self.controllability_lower <= t) & (self.controllability > t)
         o = (self.observability_lower <= t) & (self.observability > t)
+        c[list(self._uncounted)] = True       # copies no short staircase could count
         return int(np.count_nonzero(c | o))
 
     def uncontrollable_copies(self, t: float | None = None) -> np.ndarray:
@@ -384,18 +388,19 @@ def _smallest_singular_values(top, bottom, k: int, start=None) -> np.ndarray:
     return np.linalg.svd(Y, compute_uv=False)[::-1][:k]
 
 
-def _staircase_run(A, B, threshold: float) -> tuple[int, float, float]:
+def _staircase_run(A, B, threshold: float) -> tuple[int, float, float, int]:
     """One orthogonal controllability staircase of a small pair at an absolute rank
     threshold (P. Van Dooren, "The generalized eigenstructure problem in linear system
     theory", IEEE Trans. Automatic Control 26(1), 111-129, 1981).
 
     Returns (copies not reached, i.e. ``k`` minus the controllable dimension; the largest
-    singular value dropped; the smallest kept)."""
+    singular value dropped; the smallest kept; the number of steps taken)."""
     A = np.array(A, dtype=np.result_type(A, B, float))
     X = np.array(B, dtype=A.dtype)
     k = A.shape[0]
-    done, dropped, kept = 0, 0.0, math.inf
+    done, dropped, kept, steps = 0, 0.0, math.inf, 0
     while done < k and X.size:
+        steps += 1
         U, sv, _ = np.linalg.svd(X)
         r = int(np.count_nonzero(sv > threshold))
         if r < sv.size:
@@ -408,7 +413,7 @@ def _staircase_run(A, B, threshold: float) -> tuple[int, float, float]:
         A[:, rest] = A[:, rest] @ U
         X = A[done + r:, done:done + r]
         done += r
-    return k - done, dropped, kept
+    return k - done, dropped, kept, steps
 
 
 def _copy_values(A, B, thresholds, pairs: bool, copies: int) -> np.ndarray:
@@ -421,8 +426,15 @@ def _copy_values(A, B, thresholds, pairs: bool, copies: int) -> np.ndarray:
     It is decided by a small staircase at each threshold; the values returned are the
     singular values that decided it (the largest dropped at the threshold where the count
     grows, the smallest kept above the last), ``copies`` of them in all.
+
+    A staircase of more than :data:`_INDEPENDENT_STEPS` steps is the same long chain of
+    rank decisions that the staircase being checked makes (a defective eigenvalue whose
+    Jordan chains run through most of the model): it is no second method, and None is
+    returned (the cluster is then undecided).
     """
     runs = [_staircase_run(A, B, t) for t in thresholds]
+    if max(r[3] for r in runs) > _INDEPENDENT_STEPS:
+        return None
     counts = np.maximum.accumulate([r[0] for r in runs])
     if pairs:
         counts = -(-counts // 2)
@@ -688,6 +700,7 @@ def modal_certificate(A, B, C, *, scale: float, tol: float,
     copies_c, copies_o = [None] * k, [None] * k
     measured_c, measured_o = np.zeros(k, dtype=bool), np.zeros(k, dtype=bool)
     local_both = {}
+    uncounted = set()
     schur = None
     if np.any(need_c) or np.any(need_o):
         schur = _Schur(A)
@@ -727,8 +740,13 @@ def modal_certificate(A, B, C, *, scale: float, tol: float,
                     try:
                         counted = _cluster_copy_values(
                             schur, B, C, members, side, (lo * scale, tol * scale, hi * scale),
-                            partner is not None, int(mult[c])) / scale
-                        copies[c] = np.sort(counted)
+                            partner is not None, int(mult[c]))
+                        if counted is None:
+                            uncounted.add(c)
+                            if partner is not None:
+                                uncounted.add(partner)
+                        else:
+                            copies[c] = np.sort(counted / scale)
                     except np.linalg.LinAlgError:
                         pass      # the geometric count of the measured values stands
                 measured[c] = True
@@ -767,5 +785,5 @@ def modal_certificate(A, B, C, *, scale: float, tol: float,
     low_o = np.maximum(0.0, np.minimum(low_o, up_o - radius))
     return ModalCertificate(reps, mult, up_c, up_o, low_c, low_o, measured_c, measured_o,
                             float(tol), float(scale), tuple(copies_c), tuple(copies_o),
-                            local_both,
+                            local_both, frozenset(uncounted),
                             (schur.T, schur.Q) if keep_schur and schur is not None else None)

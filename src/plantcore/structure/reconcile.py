@@ -102,14 +102,21 @@ def _with_undecided(outcome: str, cert) -> str:
     count = max(cert.undecided(x) for x in (t / FRAGILITY_FACTOR, t, t * FRAGILITY_FACTOR))
     if not count:
         return outcome
-    text = (f"{count} eigenvalue cluster(s) cannot be decided: their PBH measure exceeds "
-            "the tolerance by less than the computed eigenvalue's own error")
+    text = undecided_text(count)
     return f"{outcome}; {text}" if outcome else text
 
 
 #: Binary orders of state scaling up to which the equilibrated coordinates count as the
 #: user's own for confirming a dropped value (see :func:`confirm_window`).
 MILD_SCALING_ORDERS = 10
+
+
+def undecided_text(count: int) -> str:
+    """Why ``count`` clusters are left undecided by the certificate (one wording)."""
+    return (f"the certificate cannot decide {count} eigenvalue cluster(s): the PBH measure "
+            "exceeds the tolerance by less than the computed eigenvalue's own error, or the "
+            "copies of a defective eigenvalue lie on Jordan chains too long to count apart "
+            "from the staircase")
 
 
 def confirm_window(decisions, cert, sizes, *, rank: int | None = None,

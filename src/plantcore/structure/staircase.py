@@ -25,7 +25,7 @@ from plantcore.core.equilibration import Equilibration, equilibrate, io_scaled
 from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.core.rank import FRAGILITY_FACTOR, RankDecision, any_fragile, resolve_tolerance
 from plantcore.structure.certificate import modal_certificate, schur_eigenvalues
-from plantcore.structure.reconcile import confirm_window, supersede
+from plantcore.structure.reconcile import confirm_window, supersede, undecided_text
 from plantcore.structure.staircase_kernels import reduce_staircase
 
 __all__ = ["StaircaseForm", "controllability_staircase", "observability_staircase"]
@@ -221,9 +221,7 @@ def _certificate_check(cert, rank: int, label: str, *, decided: bool = False) ->
             f"{r} at {x:.2g}" for x, r in counts.items())
     undecided = max(cert.undecided(x) for x in counts)
     if undecided:
-        outcome = (f"{outcome}; " if outcome else "") + (
-            f"{undecided} eigenvalue cluster(s) cannot be decided: their PBH measure exceeds "
-            "the tolerance by less than the computed eigenvalue's own error")
+        outcome = (f"{outcome}; " if outcome else "") + undecided_text(undecided)
     conflict = counts[t] != rank and not decided
     if conflict:
         outcome = (f"the staircase gives rank {rank}, the PBH measures {counts[t]}"
