@@ -9,7 +9,7 @@ README): ``core`` -> ``structure`` -> ``reduction`` -> ``analysis``; ``files``,
 from plantcore.analysis import Analysis, analyze
 from plantcore.core import (AccuracyWarning, ModelFileError, NumericalBreakdown, RankDecision,
                             StateSpaceModel, as_model, from_transfer_function)
-from plantcore.core.errors import HiddenModeWarning
+from plantcore.core.errors import HiddenModeWarning, SamplingWarning
 from plantcore.core.version import __version__
 from plantcore.demo import run_demo
 from plantcore.estimation import (ConstrainedJacobians, NonlinearObservability,
@@ -21,6 +21,12 @@ from plantcore.files import load_model, save_model
 from plantcore.reduction import (EquivalenceCertificate, PeakGain, ReducedModel,
                                  balanced_truncation, check_equivalence, h2_norm,
                                  hankel_singular_values, peak_gain)
+from plantcore.reduction.discretization import (ContinuousFromSampled, SampledModel,
+                                                SamplingComparison, compare_sampling,
+                                                continuous_from_sampled, discretize)
+from plantcore.reduction.gramian_matrices import (Gramian, controllability_gramian,
+                                                  observability_gramian)
+from plantcore.reduction.steady_state_gain import SteadyStateGain, dc_gain
 from plantcore.reports import write_html_report
 from plantcore.structure import (ExactPartSizes, KalmanDecomposition, MinimalRealization, Mode,
                                  PartSizes, StaircaseForm, classify_modes,
@@ -28,6 +34,7 @@ from plantcore.structure import (ExactPartSizes, KalmanDecomposition, MinimalRea
                                  exact_part_sizes, exact_transfer_matrix, kalman_decomposition,
                                  minimal_realization, observability_staircase)
 from plantcore.structure.removed_modes import RemovedMode
+from plantcore.structure.zeros import TransmissionZeros, transmission_zeros
 from plantcore.sweeps import SweepResult, SweepSpec, grid, load_sweep_spec, random_points, sweep
 
 __all__ = [
@@ -84,4 +91,18 @@ __all__ = [
     "load_example",
     "write_html_report",
     "run_demo",
+    "transmission_zeros",
+    "TransmissionZeros",
+    "dc_gain",
+    "SteadyStateGain",
+    "controllability_gramian",
+    "observability_gramian",
+    "Gramian",
+    "discretize",
+    "SampledModel",
+    "continuous_from_sampled",
+    "ContinuousFromSampled",
+    "compare_sampling",
+    "SamplingComparison",
+    "SamplingWarning",
 ]

@@ -9,7 +9,8 @@ stable.
 
 from __future__ import annotations
 
-__all__ = ["NumericalBreakdown", "AccuracyWarning", "HiddenModeWarning", "ModelFileError"]
+__all__ = ["NumericalBreakdown", "AccuracyWarning", "HiddenModeWarning", "ModelFileError",
+           "SamplingWarning"]
 
 
 class NumericalBreakdown(ArithmeticError):
@@ -42,6 +43,18 @@ class HiddenModeWarning(UserWarning):
     boundary.  The message names the eigenvalues and the part each was in; the result
     carries them in its ``removed_unstable_modes`` field
     (:class:`plantcore.structure.removed_modes.RemovedMode`).
+    """
+
+
+class SamplingWarning(UserWarning):
+    """Sampling at this period may lose controllability or observability.
+
+    Two eigenvalues of the continuous model with equal real parts and imaginary parts
+    that differ by a nonzero multiple of ``2 pi / T`` map to the same eigenvalue of the
+    sampled model (R. E. Kalman, Y. C. Ho and K. S. Narendra, "Controllability of linear
+    dynamical systems", Contributions to Differential Equations 1, 1963); the message names
+    the pairs, and :func:`plantcore.reduction.discretization.compare_sampling` says what
+    was lost.
     """
 
 
