@@ -544,7 +544,7 @@ def test_audit_from_file_refuses_pickles_and_non_archives(tmp_path, demo):
     text.write_text("not an archive")
     with pytest.raises(ModelFileError, match="not an .npz archive"):
         audit_from_file(text)
-    with pytest.raises(ModelFileError, match="file not found"):
+    with pytest.raises(ModelFileError, match="missing.npz: file: not found"):
         audit_from_file(tmp_path / "missing.npz")
 
 

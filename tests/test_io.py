@@ -14,6 +14,7 @@ import json
 import math
 import os
 import sys
+import unicodedata
 
 import numpy as np
 import pytest
@@ -202,17 +203,18 @@ def test_save_refuses_model_without_outputs(tmp_path):
 
 
 def test_save_refuses_names_with_line_breaks(tmp_path):
-    model = pc.StateSpaceModel([[-1.0]], [[1.0]], [[1.0]], states=["a\nb"])
-    with pytest.raises(pc.ModelFileError, match=r"states: entry 1 contains a control character"):
-        pc.save_model(model, tmp_path / "m.json")
+    # The model object refuses such names itself now (plantcore.core.names), so a model file
+    # can never be asked to hold one.
+    with pytest.raises(ValueError, match=r"states: the name 'a\\nb' contains a control character"):
+        pc.StateSpaceModel([[-1.0]], [[1.0]], [[1.0]], states=["a\nb"])
     assert os.listdir(tmp_path) == []
 
 
 # --- property-based round trip ---------------------------------------------------------------
 
 _finite = st.floats(allow_nan=False, allow_infinity=False, width=64)
-_name_text = st.text(
-    alphabet=st.characters(blacklist_categories=("Cc", "Cs", "Zl", "Zp")), min_size=1, max_size=12)
+_NAME_ALPHABET = st.characters(blacklist_categories=("Cc", "Cf", "Cs", "Zl", "Zp"))
+_name_text = st.text(alphabet=_NAME_ALPHABET, min_size=1, max_size=12)
 
 
 @st.composite
@@ -226,11 +228,12 @@ def _models(draw):
                         dtype=float).reshape(r, c)
 
     def names(k):
-        return draw(st.none() | st.lists(_name_text, min_size=k, max_size=k, unique=True))
+        # unique as written and after NFKC normalization (plantcore.core.names refuses the rest)
+        return draw(st.none() | st.lists(_name_text, min_size=k, max_size=k,
+                                         unique_by=lambda text: unicodedata.normalize("NFKC", text)))
 
     dt = draw(st.none() | st.floats(min_value=1e-300, max_value=1e300))
-    name = draw(st.none() | st.text(alphabet=st.characters(blacklist_categories=("Cc", "Cs", "Zl", "Zp")),
-                                    max_size=20))
+    name = draw(st.none() | st.text(alphabet=_NAME_ALPHABET, max_size=20))
     return pc.StateSpaceModel(mat(n, n), mat(n, m), mat(p, n), mat(p, m), dt=dt, states=names(n),
                               inputs=names(m), outputs=names(p), name=name)
 

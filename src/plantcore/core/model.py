@@ -21,6 +21,8 @@ from typing import Any
 
 import numpy as np
 
+from plantcore.core.names import list_problem, name_problem
+
 __all__ = ["StateSpaceModel", "as_model", "from_transfer_function"]
 
 
@@ -45,6 +47,9 @@ def _name_list(names, count: int, prefix: str, what: str) -> tuple[str, ...]:
                 break
             seen.add(item)
         raise ValueError(f"{what} holds the name {dup!r} twice; names must be unique.")
+    problem = list_problem(names)
+    if problem:
+        raise ValueError(f"{what}: {problem}.")
     return names
 
 
@@ -152,7 +157,10 @@ class StateSpaceModel:
     dt : float or None, optional
         ``None`` for continuous time, a positive sample time for discrete time.
     states, inputs, outputs : sequence of str, optional
-        Names; defaults ``x1..xn``, ``u1..um``, ``y1..yp``.
+        Names; defaults ``x1..xn``, ``u1..um``, ``y1..yp``.  Unique within each list, compared
+        as written; control, zero-width and bidirectional characters are refused, and so are
+        two names that Unicode normalization (NFKC) makes equal (see
+        :mod:`plantcore.core.names`).
     name : str, optional
         A label for reports.
 
@@ -189,6 +197,9 @@ class StateSpaceModel:
         object.__setattr__(self, "_outputs", _name_list(outputs, p, "y", "outputs"))
         if name is not None and not isinstance(name, str):
             raise ValueError(f"name must be a string, got {type(name).__name__}.")
+        if name is not None and name_problem(name, allow_empty=True):
+            raise ValueError(f"name {name!r} {name_problem(name, allow_empty=True)}; a model name "
+                             "must be printable text on one line.")
         object.__setattr__(self, "_name", name)
 
     def __setattr__(self, key, value):

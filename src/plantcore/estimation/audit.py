@@ -38,6 +38,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.linalg
 
+from plantcore.core.names import list_problem
 from plantcore.core.rank import any_fragile, decide_rank, resolve_tolerance
 from plantcore.core.rendering import render
 from plantcore.estimation.validation import (
@@ -290,6 +291,9 @@ def audit_linearized_observability(transition_jacobians, measurement_jacobians,
         names = tuple(str(x) for x in state_names)
         if len(names) != n:
             raise ValueError(f"state_names has {len(names)} names but there are {n} states.")
+        problem = list_problem(names)
+        if problem:
+            raise ValueError(f"state_names: {problem}.")
     if s is not None:  # working coordinates x~ = x / s
         F = F * s[None, None, :] / s[None, :, None]
         H = H * s[None, None, :]

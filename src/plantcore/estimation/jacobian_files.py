@@ -1,10 +1,17 @@
 """Reading the Jacobian sequences of an estimator from an ``.npz`` file, safely.
 
-:func:`audit_from_file` reads the keys of :data:`AUDIT_FILE_KEYS` member by member with
-``allow_pickle=False`` (a member whose header declares an object dtype is refused before
-its data are read) and runs :func:`~plantcore.estimation.audit.audit_linearized_observability`
-on them.  Every problem raises :class:`~plantcore.core.errors.ModelFileError` naming the
-file, the key and the problem.
+:func:`audit_from_file` reads the keys of :data:`AUDIT_FILE_KEYS` member by member through
+:mod:`plantcore.files.safe_read` (a member whose header declares an object dtype or more
+data than the cap is refused before its data are read; encrypted members and unknown
+compression methods are refused from the archive's directory) and runs
+:func:`~plantcore.estimation.audit.audit_linearized_observability` on them.
+
+Limits: only regular files are read (a named pipe, device or socket is refused without
+blocking); an audit archive may unpack to at most :data:`MAX_AUDIT_FILE_BYTES` (256 MiB) and
+an expected-basis ``.npy`` file may hold at most :data:`MAX_ARRAY_FILE_BYTES` (256 MiB).
+State names follow :mod:`plantcore.core.names` (no control, zero-width or bidirectional
+characters; no two names equal after NFKC normalization).  Every problem raises
+:class:`~plantcore.core.errors.ModelFileError` naming the file, the key and the problem.
 """
 
 from __future__ import annotations
@@ -15,10 +22,12 @@ import zipfile
 import numpy as np
 
 from plantcore.core.errors import ModelFileError
+from plantcore.core.names import list_problem
 from plantcore.estimation.audit import ObservabilityAudit, audit_linearized_observability
 from plantcore.estimation.validation import _validate_basis, _validate_sequences
+from plantcore.files.safe_read import open_input, open_npz, read_npy, read_npz_member
 
-__all__ = ["AUDIT_FILE_KEYS", "audit_from_file"]
+__all__ = ["AUDIT_FILE_KEYS", "MAX_ARRAY_FILE_BYTES", "MAX_AUDIT_FILE_BYTES", "audit_from_file"]
 
 
 #: Keys an audit ``.npz`` file may hold (the first two are required).
@@ -31,26 +40,40 @@ AUDIT_FILE_KEYS = (
     "state_names",
 )
 
-_MAX_AUDIT_FILE_BYTES = 256 * 1024 * 1024
+#: Largest audit archive accepted: the members together may unpack to at most this many
+#: bytes (256 MiB), checked from the archive's directory and each member's header before any
+#: data are read.
+MAX_AUDIT_FILE_BYTES = 256 * 1024 * 1024
+
+#: Largest ``.npy`` file accepted for an expected unobservable basis (``--expected``), in bytes
+#: of the file and of the data its header declares (256 MiB).
+MAX_ARRAY_FILE_BYTES = 256 * 1024 * 1024
 
 
 def _load_npy_safely(path, display, key_label):
-    if os.path.isfile(path) and zipfile.is_zipfile(path):
-        raise ModelFileError(display, key_label, "is an .npz archive; give a single .npy array "
-                                                 "saved with numpy.save.")
-    try:
-        with open(path, "rb") as fp:
-            try:
-                return np.lib.format.read_array(fp, allow_pickle=False)
-            except ValueError as exc:
-                raise ModelFileError(display, key_label, "could not be read as a numeric .npy "
-                                     f"array ({' '.join(str(exc).split())}).") from None
-    except FileNotFoundError:
-        raise ModelFileError(display, None, "file not found.") from None
-    except IsADirectoryError:
-        raise ModelFileError(display, None, "is a folder, not a .npy file.") from None
-    except PermissionError:
-        raise ModelFileError(display, None, "cannot be read (permission denied).") from None
+    """A single ``.npy`` array: a regular file, its header checked before anything is allocated."""
+    handle = open_input(path, display, "a .npy array", limit=MAX_ARRAY_FILE_BYTES,
+                        limit_name="plantcore.estimation.jacobian_files.MAX_ARRAY_FILE_BYTES")
+    with handle:
+        if zipfile.is_zipfile(handle):
+            raise ModelFileError(display, key_label, "is an .npz archive; give a single .npy array "
+                                                     "saved with numpy.save.")
+        handle.seek(0)
+        try:
+            return read_npy(handle, display, key_label, limit=MAX_ARRAY_FILE_BYTES,
+                            limit_name="plantcore.estimation.jacobian_files.MAX_ARRAY_FILE_BYTES")
+        except OSError as exc:
+            raise ModelFileError(display, key_label, "cannot be read "
+                                                     f"({exc.strerror or exc}).") from None
+
+
+def _check_state_names(names: list, display, key: str) -> list:
+    problem = list_problem(names)
+    if problem:
+        raise ModelFileError(display, key, problem + ".")
+    if len(set(names)) != len(names):
+        raise ModelFileError(display, key, "holds a name twice; names must be unique.")
+    return names
 
 
 def _check_member_dtype(array: np.ndarray, display, key: str, *, text: bool = False):
@@ -58,7 +81,7 @@ def _check_member_dtype(array: np.ndarray, display, key: str, *, text: bool = Fa
     if text:
         if array.ndim != 1 or (array.size and kind != "U"):
             raise ModelFileError(display, key, "must be a 1-D array of text (one name per state).")
-        return [str(x) for x in array.tolist()]
+        return _check_state_names([str(x) for x in array.tolist()], display, key)
     if kind not in "iuf":
         what = {"b": "booleans", "c": "complex numbers", "U": "text", "S": "bytes",
                 "O": "Python objects", "V": "a structured record", "M": "dates",
@@ -71,33 +94,6 @@ def _check_member_dtype(array: np.ndarray, display, key: str, *, text: bool = Fa
         raise ModelFileError(display, key, f"has the non-finite entry {out[tuple(bad[0])]!r} at "
                                            f"index [{where}]; every entry must be finite.")
     return out
-
-
-def _check_member_header(zf: zipfile.ZipFile, info: zipfile.ZipInfo, display, key: str) -> None:
-    """Read only the .npy header of an archive member and refuse objects and huge shapes.
-
-    This happens before any data is read, so a member that declares an enormous shape (or
-    an object dtype, which would need unpickling) never allocates memory or runs code.
-    """
-    fmt = np.lib.format
-    with zf.open(info) as fp:
-        try:
-            version = fmt.read_magic(fp)
-            if version == (1, 0):
-                shape, _, dtype = fmt.read_array_header_1_0(fp)
-            elif version == (2, 0):
-                shape, _, dtype = fmt.read_array_header_2_0(fp)
-            else:
-                raise ValueError(f"unsupported .npy format version {version}")
-        except ValueError as exc:
-            raise ModelFileError(display, key, "is not a readable .npy array "
-                                               f"({' '.join(str(exc).split())}).") from None
-    if dtype.hasobject:
-        raise ModelFileError(display, key, "holds Python objects (a pickled object array); "
-                                           "plantcore never unpickles, save numeric arrays.")
-    if int(np.prod(shape, dtype=object)) * dtype.itemsize > _MAX_AUDIT_FILE_BYTES:
-        raise ModelFileError(display, key, f"declares shape {tuple(shape)}, larger than the limit "
-                                           f"of {_MAX_AUDIT_FILE_BYTES} bytes.")
 
 
 def audit_from_file(path, *, expected_unobservable=None, tol=None) -> ObservabilityAudit:
@@ -148,36 +144,21 @@ def audit_from_file(path, *, expected_unobservable=None, tol=None) -> Observabil
     if not isinstance(path, (str, os.PathLike)):
         raise TypeError(f"path must be a file name, got {type(path).__name__}.")
     display = os.fsdecode(os.fspath(path))
-    if not os.path.exists(display):
-        raise ModelFileError(display, None, "file not found.")
-    if os.path.isdir(display):
-        raise ModelFileError(display, None, "is a folder, not an .npz file.")
-    if not zipfile.is_zipfile(display):
-        raise ModelFileError(display, None, "is not an .npz archive (a zip of .npy arrays); save "
-                                            "the Jacobians with numpy.savez.")
+    limit_name = "plantcore.estimation.jacobian_files.MAX_AUDIT_FILE_BYTES"
     arrays = {}
-    try:
-        with zipfile.ZipFile(display) as zf:
-            total = sum(info.file_size for info in zf.infolist())
-            if total > _MAX_AUDIT_FILE_BYTES:
-                raise ModelFileError(display, None, f"unpacks to {total} bytes, more than the "
-                                                    f"limit of {_MAX_AUDIT_FILE_BYTES} bytes.")
-            for info in zf.infolist():
-                key = info.filename[:-4] if info.filename.endswith(".npy") else info.filename
+    with open_input(display, display, "an .npz archive of Jacobians",
+                    limit=MAX_AUDIT_FILE_BYTES, limit_name=limit_name) as handle:
+        archive, members = open_npz(handle, display, limit=MAX_AUDIT_FILE_BYTES,
+                                    limit_name=limit_name)
+        with archive:
+            for key, info in members.items():
                 if key not in AUDIT_FILE_KEYS:
-                    raise ModelFileError(display, key, "unknown key; an audit file holds "
-                                                       f"{', '.join(AUDIT_FILE_KEYS)}.")
-                if key in arrays:
-                    raise ModelFileError(display, key, "appears twice in the archive.")
-                _check_member_header(zf, info, display, key)
-                with zf.open(info) as fp:
-                    try:
-                        arrays[key] = np.lib.format.read_array(fp, allow_pickle=False)
-                    except ValueError as exc:
-                        raise ModelFileError(display, key, "could not be read as a numeric array "
-                                             f"({' '.join(str(exc).split())}).") from None
-    except zipfile.BadZipFile as exc:
-        raise ModelFileError(display, None, f"is a damaged .npz archive ({exc}).") from None
+                    shown = key if key.isprintable() and len(key) <= 40 else repr(key[:40])
+                    raise ModelFileError(display, shown, "unknown key; an audit file holds "
+                                                         f"{', '.join(AUDIT_FILE_KEYS)}.")
+            for key, info in members.items():
+                arrays[key] = read_npz_member(archive, info, display, key,
+                                              limit=MAX_AUDIT_FILE_BYTES, limit_name=limit_name)
     for key in ("transition_jacobians", "measurement_jacobians"):
         if key not in arrays:
             raise ModelFileError(display, key, "missing; the file must hold "

@@ -15,13 +15,13 @@ import json
 import math
 import os
 import re
-import unicodedata
 from typing import Any, Iterable
 
 import numpy as np
 
 from plantcore.core.errors import ModelFileError
 from plantcore.core.model import StateSpaceModel
+from plantcore.core.names import collision_problem, name_problem
 
 __all__ = ["MAX_MODEL_FILE_BYTES", "MODEL_FILE_KEYS", "MODEL_FILE_SUFFIXES"]
 
@@ -44,10 +44,6 @@ _NAME_KEYS = ("states", "inputs", "outputs")
 
 _ALLOWED_TEXT = ", ".join(MODEL_FILE_KEYS)
 
-# Unicode categories refused in names: control characters, unpaired surrogates (not UTF-8),
-# and line / paragraph separators (they would break one-line messages and reports).
-_BAD_NAME_CATEGORIES = {"Cc": "a control character", "Cs": "an unpaired surrogate",
-                        "Zl": "a line separator", "Zp": "a paragraph separator"}
 
 
 class _NonFiniteLiteral:
@@ -139,16 +135,15 @@ def _describe(value: Any) -> str:
 
 
 def _check_name_text(text: str, path, field: str, where: str, *, allow_empty: bool) -> None:
-    """Refuse names that would be unreadable, not UTF-8, or break a one-line message."""
-    if not text and not allow_empty:
-        raise ModelFileError(path, field, f"{where} is an empty string; give every name some text.")
-    for ch in text:
-        kind = unicodedata.category(ch)
-        if kind in _BAD_NAME_CATEGORIES:
-            raise ModelFileError(
-                path, field,
-                f"{where} contains {_BAD_NAME_CATEGORIES[kind]} (U+{ord(ch):04X}); names must be "
-                "printable text on one line.")
+    """Refuse names that would be unreadable, not UTF-8, or break a one-line message.
+
+    The rule is :func:`plantcore.core.names.name_problem`, shared with the model object and
+    the sweep and audit files.
+    """
+    problem = name_problem(text, allow_empty=allow_empty)
+    if problem:
+        raise ModelFileError(path, field, f"{where} {problem}; names must be printable text on "
+                                          "one line.")
 
 
 def _real_entry(value: Any, path, field: str, where: str) -> float:
@@ -352,6 +347,9 @@ def _model_from_fields(fields: dict, path) -> StateSpaceModel:
                 raise ModelFileError(path, key, f"holds the name {_short(item)} twice; names must be "
                                                 "unique.")
             seen.add(item)
+        clash = collision_problem(items)
+        if clash:
+            raise ModelFileError(path, key, clash + ".")
         names[key] = items
     if "name" in fields:
         _check_name_text(fields["name"], path, "name", "the name", allow_empty=True)

@@ -37,8 +37,12 @@ Rules that every reader applies
   gain) writes ``A = []``, ``B = []``, ``C = []`` and must give ``D``.
 * ``sample_time`` is a positive finite number (omit it for continuous time; ``0`` and
   ``null`` are refused rather than guessed).
-* Names are non-empty strings without control or line-break characters, unique within
-  ``states``, ``inputs`` and ``outputs``, one per state / input / output.
+* Only regular files are read: a folder, a named pipe, a device or a socket is refused before
+  anything is read (see :mod:`plantcore.files.safe_read`).
+* Names are non-empty strings without control, format (zero-width, bidirectional) or
+  line-break characters, unique within ``states``, ``inputs`` and ``outputs`` as written and
+  after Unicode NFKC normalization (so ``µ`` and ``μ`` cannot both appear), one per state /
+  input / output (see :mod:`plantcore.core.names`).
 
 Every problem raises :class:`plantcore.ModelFileError` (a ``ValueError``) whose one-line
 message names the file, the field and the problem, for example
@@ -57,7 +61,6 @@ file as one of the given inputs is refused.
 from __future__ import annotations
 
 import os
-import stat
 from pathlib import Path
 
 from plantcore.core.errors import ModelFileError
@@ -74,6 +77,7 @@ from plantcore.files.layout import (
     _model_from_fields,
 )
 from plantcore.files.npz_format import _fields_from_npz, _npz_writer
+from plantcore.files.safe_read import open_input, read_capped
 from plantcore.files.safe_write import atomic_write, atomic_write_text
 from plantcore.files.toml_format import _parse_toml, _toml_document
 
@@ -134,55 +138,36 @@ def load_model(path) -> StateSpaceModel:
         raise TypeError(f"path must be a file name (str or os.PathLike), got {type(path).__name__}.")
     display = _display_path(path)
     real_path = os.fsdecode(os.fspath(path))
-    try:
-        info = os.stat(real_path)
-    except FileNotFoundError:
-        raise ModelFileError(display, "file", "not found.") from None
-    except NotADirectoryError:
-        raise ModelFileError(display, "file", "not found (a part of the path is not a "
-                                              "folder).") from None
-    except OSError as exc:
-        raise ModelFileError(display, "file", f"cannot be read ({exc.strerror or exc}).") from None
-    if stat.S_ISDIR(info.st_mode):
-        raise ModelFileError(display, "file", "is a folder, not a model file.")
-    if not stat.S_ISREG(info.st_mode):
-        raise ModelFileError(display, "file", "is not a regular file (a device, pipe or socket); give a "
-                                            "model file.")
     suffix = _suffix(real_path)
-    if suffix not in MODEL_FILE_SUFFIXES:
-        shown = f"{suffix!r}" if suffix else "no suffix"
-        raise ModelFileError(display, "file", f"unknown file type ({shown}); model files end in "
-                                              ".toml, .json or .npz.")
-    if info.st_size > layout.MAX_MODEL_FILE_BYTES:
-        raise ModelFileError(display, "file", f"has {info.st_size} bytes, more than the limit "
-                                            f"of {layout.MAX_MODEL_FILE_BYTES} bytes for model files "
-                                            "(plantcore.files.MAX_MODEL_FILE_BYTES).")
-    try:
-        if suffix == ".npz":
-            fields = _fields_from_npz(real_path, display)
-        else:
-            with open(real_path, "rb") as f:
-                data = f.read(layout.MAX_MODEL_FILE_BYTES + 1)
-            if len(data) > layout.MAX_MODEL_FILE_BYTES:
-                raise ModelFileError(display, "file", f"has more than {layout.MAX_MODEL_FILE_BYTES} "
-                                                    "bytes, the limit for model files.")
-            text = _decode_text(data, display)
-            doc = _parse_toml(text, display) if suffix == ".toml" else _parse_json(text, display)
-            fields = _fields_from_document(doc, display)
-    except ModelFileError:
-        raise
-    except OSError as exc:
-        raise ModelFileError(display, "file", f"cannot be read ({exc.strerror or exc}).") from None
-    except MemoryError:
-        raise ModelFileError(display, "file", "needs more memory than is available.") from None
-    except Exception as exc:
-        # A reader at a trust boundary: zipfile, zlib and numpy raise a zoo of exception types
-        # on damaged archives (BadZipFile, zlib.error, EOFError, NotImplementedError for an
-        # unknown compression, RuntimeError for encryption, ...).  All of them mean "this file
-        # is damaged", which the user must hear as one clear line, never a traceback.
-        raise ModelFileError(display, "file", f"is damaged or not a {suffix} model file "
-                                            f"({type(exc).__name__}: {' '.join(str(exc).split())})."
-                             ) from None
+    limit = layout.MAX_MODEL_FILE_BYTES
+    handle = open_input(real_path, display, "a model file", limit=limit,
+                        limit_name="plantcore.files.MAX_MODEL_FILE_BYTES")
+    with handle:
+        if suffix not in MODEL_FILE_SUFFIXES:
+            shown = f"{suffix!r}" if suffix else "no suffix"
+            raise ModelFileError(display, "file", f"unknown file type ({shown}); model files end "
+                                                  "in .toml, .json or .npz.")
+        try:
+            if suffix == ".npz":
+                fields = _fields_from_npz(handle, display)
+            else:
+                data = read_capped(handle, display, "model files", limit=limit)
+                text = _decode_text(data, display)
+                doc = _parse_toml(text, display) if suffix == ".toml" else _parse_json(text, display)
+                fields = _fields_from_document(doc, display)
+        except ModelFileError:
+            raise
+        except OSError as exc:
+            raise ModelFileError(display, "file", f"cannot be read ({exc.strerror or exc}).") from None
+        except MemoryError:
+            raise ModelFileError(display, "file", "needs more memory than is available.") from None
+        except Exception as exc:
+            # A reader at a trust boundary: zipfile, zlib and numpy raise a zoo of exception
+            # types on damaged archives.  All of them mean "this file is damaged", which the
+            # user must hear as one clear line, never a traceback.
+            raise ModelFileError(display, "file", f"is damaged or not a {suffix} model file "
+                                                  f"({type(exc).__name__}: "
+                                                  f"{' '.join(str(exc).split())}).") from None
     return _model_from_fields(fields, display)
 
 
@@ -200,7 +185,7 @@ def _check_savable(model: StateSpaceModel, path) -> None:
         _check_name_text(model.name, path, "name", "the name", allow_empty=True)
 
 
-def save_model(model, path, *, inputs=()) -> Path:
+def save_model(model, path, *, inputs=(), overwrite: bool = True) -> Path:
     """Write a model file (``.toml``, ``.json`` or ``.npz``) safely.
 
     Parameters
@@ -210,6 +195,8 @@ def save_model(model, path, *, inputs=()) -> Path:
         Output file; its suffix selects the format.
     inputs : iterable of paths, optional
         Files the output must not overwrite (the files the model was read from).
+    overwrite : bool, default True
+        When False an existing file at ``path`` is refused (see :func:`atomic_write`).
 
     Returns
     -------
@@ -254,6 +241,6 @@ def save_model(model, path, *, inputs=()) -> Path:
                                               ".toml, .json or .npz.")
     _check_savable(model, display)
     if suffix == ".npz":
-        return atomic_write(path, _npz_writer(model), inputs=inputs)
+        return atomic_write(path, _npz_writer(model), inputs=inputs, overwrite=overwrite)
     text = _toml_document(model) if suffix == ".toml" else _json_document(model)
-    return atomic_write_text(path, text, inputs=inputs)
+    return atomic_write_text(path, text, inputs=inputs, overwrite=overwrite)

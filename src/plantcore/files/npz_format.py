@@ -1,8 +1,9 @@
 """``.npz`` model files: reading member by member without unpickling, and writing.
 
-Each member is read with :func:`numpy.lib.format.read_array` and ``allow_pickle=False``; a
-member whose header declares an object dtype is refused before any of its data is read, so
-nothing in a model file is ever unpickled or evaluated as code.
+Each member is read with :func:`plantcore.files.safe_read.read_npy`: a member whose header
+declares an object dtype or more data than the cap is refused before any of its data is
+read, so nothing in a model file is ever unpickled or evaluated as code.  Encrypted members
+and unknown compression methods are refused from the archive's directory.
 """
 
 from __future__ import annotations
@@ -21,33 +22,11 @@ from plantcore.files.layout import (
     _NAME_KEYS,
     MODEL_FILE_KEYS,
     _check_keys,
-    _key_text,
 )
-
-
-def _npz_member_header(zf: zipfile.ZipFile, info: zipfile.ZipInfo, path, key: str):
-    """Read only the .npy header of one member: (shape, dtype).  No data, no unpickling."""
-    fmt = np.lib.format
-    with zf.open(info) as fp:
-        try:
-            version = fmt.read_magic(fp)
-        except ValueError:
-            raise ModelFileError(path, key, "is not a .npy array inside the archive.") from None
-        if version == (1, 0):
-            shape, _, dtype = fmt.read_array_header_1_0(fp)
-        elif version == (2, 0):
-            shape, _, dtype = fmt.read_array_header_2_0(fp)
-        else:
-            raise ModelFileError(path, key, f"uses .npy format version {version[0]}.{version[1]}, "
-                                            "which plantcore does not read; save plain numeric "
-                                            "arrays with numpy.savez.")
-    return tuple(shape), dtype
+from plantcore.files.safe_read import open_npz, read_npz_member
 
 
 def _npz_kind_problem(dtype: np.dtype) -> str | None:
-    if dtype.hasobject:
-        return ("holds Python objects (a pickled object array); plantcore never unpickles model "
-                "files, save plain numeric arrays instead.")
     kind = dtype.kind
     if kind == "b":
         return "holds booleans; give real numbers (use 0 and 1)."
@@ -63,23 +42,17 @@ def _npz_kind_problem(dtype: np.dtype) -> str | None:
 
 
 def _npz_read_member(zf: zipfile.ZipFile, info: zipfile.ZipInfo, display, key: str) -> np.ndarray:
-    """Check one member's header (dtype, size) and only then read its data."""
-    shape, dtype = _npz_member_header(zf, info, display, key)
+    """One member, its header checked (objects, size) before its data are read."""
+    array = read_npz_member(zf, info, display, key, limit=layout.MAX_MODEL_FILE_BYTES,
+                            limit_name="plantcore.files.MAX_MODEL_FILE_BYTES")
     is_text = key in _NAME_KEYS or key == "name"
-    empty = int(np.prod(shape, dtype=object)) == 0
-    if dtype.hasobject:
-        raise ModelFileError(display, key, _npz_kind_problem(dtype))
-    if is_text and dtype.kind != "U" and not (key in _NAME_KEYS and empty):
+    if is_text and array.dtype.kind != "U" and not (key in _NAME_KEYS and array.size == 0):
         raise ModelFileError(display, key, f"must hold text (unicode strings), got dtype "
-                                           f"{dtype}.")
-    if not is_text and dtype.kind not in "iuf":
-        raise ModelFileError(display, key, _npz_kind_problem(dtype)
-                             or f"has dtype {dtype}, not real numbers.")
-    if int(np.prod(shape, dtype=object)) * dtype.itemsize > layout.MAX_MODEL_FILE_BYTES:
-        raise ModelFileError(display, key, f"declares shape {shape}, larger than the "
-                                           "file size limit.")
-    with zf.open(info) as fp:
-        return np.lib.format.read_array(fp, allow_pickle=False)
+                                           f"{array.dtype}.")
+    if not is_text and array.dtype.kind not in "iuf":
+        raise ModelFileError(display, key, _npz_kind_problem(array.dtype)
+                             or f"has dtype {array.dtype}, not real numbers.")
+    return array
 
 
 def _npz_array_matrix(array: np.ndarray, path, key: str) -> np.ndarray:
@@ -111,36 +84,17 @@ def _npz_array_names(array: np.ndarray, path, key: str) -> list[str]:
     return [str(x) for x in array.tolist()]
 
 
-def _fields_from_npz(path, display) -> dict:
-    """Read the members of an .npz archive safely and return the normalized fields."""
-    if not zipfile.is_zipfile(path):
-        raise ModelFileError(display, "file", "is not an .npz archive (a zip of .npy arrays); save "
-                                            "the model with numpy.savez or plantcore.save_model.")
+def _fields_from_npz(handle, display) -> dict:
+    """Read the members of an open .npz archive safely and return the normalized fields."""
     fields: dict[str, Any] = {}
-    with zipfile.ZipFile(path) as zf:
-        infos = zf.infolist()
-        total = sum(info.file_size for info in infos)
-        if total > layout.MAX_MODEL_FILE_BYTES:
-            raise ModelFileError(display, "file",
-                                 f"the archive unpacks to {total} bytes, more than the limit of "
-                                 f"{layout.MAX_MODEL_FILE_BYTES} bytes (plantcore.files.MAX_MODEL_FILE_BYTES).")
-        members: dict[str, zipfile.ZipInfo] = {}
-        for info in infos:
-            key = info.filename[:-4] if info.filename.endswith(".npy") else info.filename
-            if key in members:
-                raise ModelFileError(display, _key_text(key), "appears twice in the archive.")
-            members[key] = info
+    zf, members = open_npz(handle, display, limit=layout.MAX_MODEL_FILE_BYTES,
+                           limit_name="plantcore.files.MAX_MODEL_FILE_BYTES")
+    with zf:
         _check_keys(members.keys(), display)
         for key in MODEL_FILE_KEYS:
             if key not in members:
                 continue
-            try:
-                array = _npz_read_member(zf, members[key], display, key)
-            except (ModelFileError, MemoryError):
-                raise
-            except Exception as exc:  # damaged member: CRC, zlib, EOF, unsupported compression...
-                raise ModelFileError(display, key, f"is damaged ({type(exc).__name__}: "
-                                                   f"{' '.join(str(exc).split())}).") from None
+            array = _npz_read_member(zf, members[key], display, key)
             if key in _MATRIX_KEYS:
                 fields[key] = _npz_array_matrix(array, display, key)
             elif key in _NAME_KEYS:

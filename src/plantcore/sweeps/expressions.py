@@ -12,16 +12,13 @@ model per operating point from such entries.
 from __future__ import annotations
 
 import ast
+import functools
 import math
-import sys
 from numbers import Real
 
 import numpy as np
 
-if sys.version_info >= (3, 11):
-    pass
-else:  # pragma: no cover
-    pass
+from plantcore.core.names import lookalike_note, spelled_out
 
 __all__ = ["FUNCTIONS", "NAMED_CONSTANTS", "ExpressionError", "parse_expression", "ModelFromExpressions"]
 
@@ -145,15 +142,17 @@ class _Checker:
                 return
             if name in self.names or name in NAMED_CONSTANTS:
                 raise ExpressionError(f"{name!r} is a value, not a function.")
-            raise ExpressionError(f"unknown function {name!r}; the functions allowed are "
+            raise ExpressionError(f"unknown function {spelled_out(name)}"
+                                  f"{lookalike_note(name, FUNCTIONS)}; the functions allowed are "
                                   + " ".join(FUNCTIONS) + ".")
         if name in self.names or name in NAMED_CONSTANTS:
             return
         if name in FUNCTIONS:
             raise ExpressionError(f"the function {name!r} must be called, e.g. {name}(x).")
         known = ", ".join(sorted(self.names)) or "none"
-        raise ExpressionError(f"unknown name {name!r}; the declared parameters and constants "
-                              f"are: {known}.")
+        note = lookalike_note(name, [*self.names, *NAMED_CONSTANTS, *FUNCTIONS])
+        raise ExpressionError(f"unknown name {spelled_out(name)}{note}; the declared parameters "
+                              f"and constants are: {known}.")
 
 
 def _sympy_namespace() -> dict:
@@ -226,6 +225,12 @@ def parse_expression(text: str, names):
     except (ValueError, RecursionError, MemoryError):
         raise ExpressionError(f"{text.strip()[:40]!r} is not a valid arithmetic expression.") from None
     names = list(names)
+    # Python reads identifiers in NFKC form (a fullwidth "ｐｉ" becomes "pi"); names are
+    # compared as written, so every name is put back as it appears in the text.
+    source = text.strip()
+    for node in ast.walk(tree):
+        if isinstance(node, ast.Name):
+            node.id = ast.get_source_segment(source, node) or node.id
     _Checker(names).check(tree)
     # Rename every parameter to an internal name that cannot collide with the names sympy's
     # own transformations emit (a parameter called ``Mul`` or ``Symbol`` would otherwise
@@ -237,13 +242,42 @@ def parse_expression(text: str, names):
     canonical = ast.unparse(tree)
     local = {internal[name]: sympy.Symbol(name) for name in names}
     try:
-        return parse_expr(canonical, local_dict=local, global_dict=_sympy_namespace(),
-                          transformations=standard_transformations, evaluate=False)
+        expression = parse_expr(canonical, local_dict=local, global_dict=_sympy_namespace(),
+                                transformations=standard_transformations, evaluate=False)
     except Exception as exc:  # anything sympy refuses, in one sentence
         raise ExpressionError(f"sympy could not read {text.strip()!r} "
                               f"({type(exc).__name__}: {' '.join(str(exc).split())}).") from None
+    _check_printable(expression, source)
+    return expression
 
 
+_NOT_FINITE_ATOMS = ("ComplexInfinity", "Infinity", "NegativeInfinity", "NaN")
+
+
+def _check_printable(expression, source: str) -> None:
+    """Refuse an expression that cannot become numpy code (e.g. ``k/0``, infinite everywhere)."""
+    import sympy
+
+    try:
+        # Rebuilding the tree with fresh symbols (as sympy.lambdify does) evaluates the
+        # constant parts: 1/0 becomes complex infinity here, not at every point later.
+        rebuilt = expression.xreplace({symbol: sympy.Dummy() for symbol in expression.free_symbols})
+        if rebuilt.has(sympy.zoo, sympy.nan, sympy.oo, -sympy.oo):
+            raise KeyError("ComplexInfinity")
+        _float_printer()().doprint(rebuilt)
+    except KeyError as exc:
+        if exc.args and exc.args[0] in _NOT_FINITE_ATOMS:
+            raise ExpressionError(f"{source!r} divides by zero or holds another part that is "
+                                  "infinite or undefined for every value of the parameters."
+                                  ) from None
+        raise ExpressionError(f"{source!r} cannot be turned into arithmetic (KeyError: "
+                              f"{exc}).") from None
+    except Exception as exc:
+        raise ExpressionError(f"{source!r} cannot be turned into arithmetic "
+                              f"({type(exc).__name__}: {' '.join(str(exc).split())}).") from None
+
+
+@functools.lru_cache(maxsize=1)
 def _float_printer():
     from sympy.printing.numpy import NumPyPrinter
 
@@ -372,7 +406,7 @@ class ModelFromExpressions:
         for (key, i, j, text), value in zip(self._entries, values):
             if np.iscomplexobj(value) or not np.isfinite(value):
                 raise ValueError(f"{key}[{i + 1}][{j + 1}] = {text!r} evaluates to {value} at "
-                                 "this point.")
+                                 f"the point {self._point_text(args)}.")
             arrays[key][i, j] = float(value)
         return StateSpaceModel(arrays["A"], arrays["B"], arrays["C"], arrays.get("D"), self.dt,
                                states=self.states, inputs=self.inputs, outputs=self.outputs,
@@ -389,6 +423,15 @@ class ModelFromExpressions:
             try:
                 single(*args)
             except (ArithmeticError, ValueError, TypeError) as exc:
-                raise ValueError(f"{key}[{i + 1}][{j + 1}] = {text!r} cannot be evaluated at this "
-                                 f"point ({type(exc).__name__}: {exc}).") from None
-        raise ValueError(f"the expressions cannot be evaluated at this point ({first_exc}).")
+                raise ValueError(f"{key}[{i + 1}][{j + 1}] = {text!r} cannot be evaluated at the "
+                                 f"point {self._point_text(args)} ({type(exc).__name__}: "
+                                 f"{exc}).") from None
+        raise ValueError(f"the expressions cannot be evaluated at the point "
+                         f"{self._point_text(args)} ({first_exc}).")
+
+    def _point_text(self, args) -> str:
+        """The swept parameters of a point, ``name=value`` (the first six), for messages."""
+        items = [f"{name}={float(value)!r}" for name, value in zip(self.parameters, args)]
+        if len(items) > 6:
+            items = items[:6] + [f"and {len(items) - 6} more"]
+        return ", ".join(items) if items else "(no parameters)"

@@ -111,11 +111,20 @@ def _draw(rng, name: str, description, count: int) -> list:
     if kind == "uniform":
         if not a < b:
             raise ValueError(f"uniform distribution of {name!r} needs low < high, got {a!r}, {b!r}.")
+        if not math.isfinite(b - a):
+            raise ValueError(f"uniform distribution of {name!r}: the range high - low "
+                             f"({b!r} - {a!r}) is beyond the floating-point range (about "
+                             "1.8e308); narrow it.")
         return rng.uniform(a, b, size=count).tolist()
     if kind == "normal":
         if b < 0:
             raise ValueError(f"normal distribution of {name!r} needs standard_deviation >= 0, "
                              f"got {b!r}.")
+        # A draw is mean + standard_deviation * z with |z| below about 10: keep it finite.
+        if not math.isfinite(abs(a) + 10.0 * b):
+            raise ValueError(f"normal distribution of {name!r}: mean {a!r} and "
+                             f"standard_deviation {b!r} give draws beyond the floating-point "
+                             "range (about 1.8e308); use smaller values.")
         return rng.normal(a, b, size=count).tolist()
     # log_uniform
     if not 0 < a < b:

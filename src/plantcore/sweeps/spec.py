@@ -54,10 +54,30 @@ compiled once with :func:`sympy.lambdify` to numpy, with every number printed as
 (so that no integer arithmetic of unbounded size can run).  Nothing is ever passed to
 Python's ``eval`` before it has passed the whitelist.
 
+Names
+-----
+Parameter and constant names are compared as written.  Python reads identifiers in their
+Unicode NFKC form, so a name that NFKC turns into another declared name, a built-in function
+or constant (a fullwidth ``ｐｉ`` would become ``pi``), a Python keyword or a result column
+is refused with both names and their code points; so is a name in an expression that differs
+as written from every declared name (the micro sign ``µ`` is not the Greek ``μ``).  Control,
+zero-width and bidirectional characters are refused in every name, including ``states``,
+``inputs``, ``outputs`` and ``name`` (:mod:`plantcore.core.names`).
+
+Limits
+------
+Only a regular file is read (a named pipe or device is refused without blocking), of at
+most :data:`MAX_SPEC_FILE_BYTES` (16 MiB), describing at most :data:`MAX_POINTS` points; numbers
+must be finite doubles (an integer of 400 digits is refused, not overflowed), and a grid span
+``stop - start`` or a ``uniform`` / ``log_uniform`` range must stay within the floating-point
+range.
+
 Errors in the file are reported as :class:`plantcore.ModelFileError`, one line
 ``file: field: problem``, with matrix entries named ``A[row][column]`` counting from 1 as one
-reads the file.  An expression that cannot be evaluated at one point (a division by zero, the
-square root of a negative number) only fails that point of the sweep.
+reads the file.  An expression that is infinite or undefined for every value (``k/0``) is
+refused when the file is read; one that cannot be evaluated at one point (a division by zero
+there, the square root of a negative number) only fails that point of the sweep, with a
+message naming the entry, the expression and the point's parameter values.
 """
 
 from __future__ import annotations
@@ -65,19 +85,15 @@ from __future__ import annotations
 import keyword
 import math
 import os
-import sys
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from plantcore.core.errors import ModelFileError
-from plantcore.sweeps.point_analysis import RESULT_COLUMNS
-from plantcore.sweeps.points import DISTRIBUTIONS, grid, random_points
-
-if sys.version_info >= (3, 11):
-    import tomllib
-else:  # pragma: no cover
-    import tomli as tomllib
+from plantcore.core.names import collision_problem, list_problem, name_problem
+from plantcore.files.layout import _decode_text
+from plantcore.files.safe_read import open_input, read_capped
+from plantcore.files.toml_format import _parse_toml
 from plantcore.sweeps.expressions import (
     FUNCTIONS,
     NAMED_CONSTANTS,
@@ -85,12 +101,18 @@ from plantcore.sweeps.expressions import (
     ModelFromExpressions,
     parse_expression,
 )
+from plantcore.sweeps.point_analysis import RESULT_COLUMNS
+from plantcore.sweeps.points import DISTRIBUTIONS, grid, random_points
 
-__all__ = ["MAX_POINTS", "SweepSpec", "load_sweep_spec"]
+__all__ = ["MAX_POINTS", "MAX_SPEC_FILE_BYTES", "SweepSpec", "load_sweep_spec"]
 
 
 #: Largest number of points a specification may describe.
 MAX_POINTS = 1_000_000
+
+#: Largest sweep specification file accepted, in bytes (16 MiB: a grid of a million listed
+#: values fits); a longer file, or one that keeps growing while it is read, is refused.
+MAX_SPEC_FILE_BYTES = 16 * 1024 * 1024
 
 _TOP_KEYS = ("name", "sample_time", "states", "inputs", "outputs", "A", "B", "C", "D",
              "constants", "parameter_grid", "random_draws", "analysis")
@@ -140,6 +162,24 @@ def _is_number(value) -> bool:
     return not isinstance(value, bool) and isinstance(value, (int, float))
 
 
+def _is_finite_number(value) -> bool:
+    """A number that is a finite double (an integer of 400 digits is not: it overflows)."""
+    if not _is_number(value):
+        return False
+    try:
+        return math.isfinite(float(value))
+    except OverflowError:
+        return False
+
+
+def _shown(value) -> str:
+    """A value from the file for a message: repr(), cut short (a 400-digit integer)."""
+    text = repr(value)
+    if isinstance(value, int) and not isinstance(value, bool) and len(text) > 24:
+        return f"an integer of {len(text.lstrip('-'))} digits (beyond the floating-point range)"
+    return text if len(text) <= 60 else text[:57] + "..."
+
+
 class _Reader:
     """Validates the parsed TOML document, raising ModelFileError with the field's name."""
 
@@ -160,15 +200,17 @@ class _Reader:
         return value
 
     def number(self, value, where, *, positive=False):
-        if not _is_number(value) or not math.isfinite(float(value)):
-            self.fail(where, f"must be a finite number, got {value!r}.")
+        if not _is_finite_number(value):
+            self.fail(where, f"must be a finite number, got {_shown(value)}.")
         if positive and value <= 0:
             self.fail(where, f"must be positive, got {value!r}.")
         return float(value)
 
-    def whole(self, value, where, *, minimum=0):
+    def whole(self, value, where, *, minimum=0, maximum=None):
         if isinstance(value, bool) or not isinstance(value, int) or value < minimum:
-            self.fail(where, f"must be a whole number >= {minimum}, got {value!r}.")
+            self.fail(where, f"must be a whole number >= {minimum}, got {_shown(value)}.")
+        if maximum is not None and value > maximum:
+            self.fail(where, f"is larger than {maximum}.")
         return int(value)
 
     def names(self, value, where):
@@ -176,11 +218,24 @@ class _Reader:
             return None
         if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
             self.fail(where, "must be a list of strings.")
+        problem = list_problem(value)
+        if problem:
+            self.fail(where, problem + ".")
         if len(set(value)) != len(value):
             self.fail(where, "holds a name twice; names must be unique.")
         return tuple(value)
 
     def identifier(self, name, where):
+        problem = name_problem(name)
+        if problem:
+            self.fail(where, f"the name {name!r} {problem}.")
+        clash = (collision_problem([name], FUNCTIONS, reserved_label="a built-in function")
+                 or collision_problem([name], NAMED_CONSTANTS, reserved_label="a built-in constant")
+                 or collision_problem([name], keyword.kwlist, reserved_label="a Python keyword")
+                 or collision_problem([name], RESULT_COLUMNS,
+                                      reserved_label="a column of the result table"))
+        if clash:
+            self.fail(where, clash + ".")
         if not name.isidentifier() or keyword.iskeyword(name):
             self.fail(where, f"{name!r} is not a valid name (letters, digits and '_', not "
                              "starting with a digit).")
@@ -207,8 +262,9 @@ class _Reader:
                         parse_expression(entry, names)
                     except ExpressionError as exc:
                         self.fail(where, str(exc))
-                elif not _is_number(entry) or not math.isfinite(float(entry)):
-                    self.fail(where, f"must be a number or an expression string, got {entry!r}.")
+                elif not _is_finite_number(entry):
+                    self.fail(where, "must be a finite number or an expression string, got "
+                                     f"{_shown(entry)}.")
         return value
 
 
@@ -232,24 +288,21 @@ def load_sweep_spec(path) -> SweepSpec:
     plantcore.ModelFileError
         With a one-line message ``file: field: problem`` for anything wrong in the file.
     """
-    reader = _Reader(path)
+    if not isinstance(path, (str, os.PathLike)):
+        raise TypeError(f"path must be a file name (str or os.PathLike), got {type(path).__name__}.")
     path = os.fspath(path)
-    try:
-        with open(path, "rb") as handle:
-            document = tomllib.load(handle)
-    except FileNotFoundError:
-        reader.fail(None, "no such file.")
-    except IsADirectoryError:
-        reader.fail(None, "is a folder, not a sweep specification file.")
-    except tomllib.TOMLDecodeError as exc:
-        reader.fail(None, f"not valid TOML ({' '.join(str(exc).split())}).")
-    except UnicodeDecodeError:
-        reader.fail(None, "not valid TOML (not UTF-8 text).")
+    reader = _Reader(path)
+    with open_input(path, reader.path, "a sweep specification", limit=MAX_SPEC_FILE_BYTES,
+                    limit_name="plantcore.sweeps.spec.MAX_SPEC_FILE_BYTES") as handle:
+        data = read_capped(handle, reader.path, "sweep specifications", limit=MAX_SPEC_FILE_BYTES)
+    document = _parse_toml(_decode_text(data, reader.path), reader.path)
     reader.table(document, "", _TOP_KEYS)
 
     name = document.get("name")
     if name is not None and not isinstance(name, str):
-        reader.fail("name", f"must be a string, got {name!r}.")
+        reader.fail("name", f"must be a string, got {_shown(name)}.")
+    if name is not None and name_problem(name, allow_empty=True):
+        reader.fail("name", f"{name!r} {name_problem(name, allow_empty=True)}.")
     dt = None
     if "sample_time" in document:
         dt = reader.number(document["sample_time"], "sample_time", positive=True)
@@ -275,6 +328,12 @@ def load_sweep_spec(path) -> SweepSpec:
     for p in parameters:
         if p in constants:
             reader.fail(f"constants.{p}", f"{p!r} is also a swept parameter; use one or the other.")
+    clash = collision_problem(parameters)
+    if clash:
+        reader.fail("parameter_grid" if has_grid else "random_draws.parameters", clash + ".")
+    clash = collision_problem(parameters + tuple(constants))
+    if clash:
+        reader.fail("constants", clash + ".")
 
     names = parameters + tuple(constants)
     matrices = {}
@@ -348,12 +407,13 @@ def _grid_points(reader, table):
                     reader.fail(where, f"missing {key!r}; give start, stop and count, or values.")
             start = reader.number(axis["start"], f"{where}.start")
             stop = reader.number(axis["stop"], f"{where}.stop")
-            n = reader.whole(axis["count"], f"{where}.count", minimum=1)
+            n = reader.whole(axis["count"], f"{where}.count", minimum=1, maximum=MAX_POINTS)
             if n == 1 and start != stop:
                 reader.fail(f"{where}.count", "is 1 but start and stop differ; use values = [x] "
                                               "for a single value.")
-            if n > MAX_POINTS:
-                reader.fail(f"{where}.count", f"is larger than {MAX_POINTS}.")
+            if not math.isfinite(stop - start):
+                reader.fail(where, f"the span stop - start ({stop!r} - {start!r}) is beyond the "
+                                   "floating-point range (about 1.8e308); narrow it.")
             axes[name] = np.linspace(start, stop, n).tolist()
         count *= len(axes[name])
         if count > MAX_POINTS:
@@ -368,9 +428,7 @@ def _random_points(reader, table):
             reader.fail("random_draws", f"missing {key!r}; random draws need seed, count and a "
                                         "[random_draws.parameters] table.")
     seed = reader.whole(table["seed"], "random_draws.seed")
-    count = reader.whole(table["count"], "random_draws.count", minimum=1)
-    if count > MAX_POINTS:
-        reader.fail("random_draws.count", f"is larger than {MAX_POINTS}.")
+    count = reader.whole(table["count"], "random_draws.count", minimum=1, maximum=MAX_POINTS)
     parameters = table["parameters"]
     reader.table(parameters, "random_draws.parameters")
     if not parameters:
