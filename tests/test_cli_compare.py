@@ -89,3 +89,54 @@ def test_reduce_prints_the_certificate(files, tmp_path, capsys):
     assert SAFETY_CAUTION in out
     reduced = pc.load_model(out_file)
     assert np.allclose(reduced.transfer_at(2j), pc.load_model(files["original"]).transfer_at(2j))
+
+
+def _undecided_pair():
+    """A stiff model (poles over 12 decades) against a similarity transform of itself with a
+    badly conditioned T, drawn by the certificate study: the copy's rounding makes a
+    difference above the tolerance and the first-order rounding bound, but within the margin."""
+    import importlib.util
+    import pathlib
+    import warnings
+
+    path = pathlib.Path(__file__).resolve().parents[1] / "benchmarks" / "certificate_study.py"
+    spec = importlib.util.spec_from_file_location("certificate_study", path)
+    study = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(study)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", pc.AccuracyWarning)
+        kind, _, a, b = study.pairs(0, 12, False)[1]
+    assert kind == "similarity"
+    return a, b
+
+
+def test_undecided_exits_4_and_is_never_called_not_equivalent(tmp_path, capsys):
+    a, b = _undecided_pair()
+    pa, pb = tmp_path / "stiff.toml", tmp_path / "stiff_copy.toml"
+    pc.save_model(a, pa)
+    pc.save_model(b, pb)
+    code = main(["compare", str(pa), str(pb)])
+    out = capsys.readouterr().out
+    assert code == 4
+    assert "Verdict:               UNDECIDED" in out and "NOT EQUIVALENT" not in out
+    assert "Attainable accuracy:" in out
+    assert out.rstrip().endswith(SAFETY_CAUTION)
+
+
+def test_help_documents_the_compare_exit_codes(capsys):
+    with pytest.raises(SystemExit):
+        main(["compare", "--help"])
+    text = " ".join(capsys.readouterr().out.split())
+    assert "4 UNDECIDED" in text and "0 EQUIVALENT" in text and "1 NOT EQUIVALENT" in text
+
+
+def test_stiff_model_compared_with_itself_exits_0(tmp_path, capsys):
+    # Issue 20: eigenvalues -1e-4 .. -1e4, orthogonally hidden, compared with itself.
+    rng = np.random.default_rng(1)
+    Q, _ = np.linalg.qr(rng.standard_normal((5, 5)))
+    model = pc.StateSpaceModel(Q @ np.diag(-np.geomspace(1e-4, 1e4, 5)) @ Q.T,
+                               rng.standard_normal((5, 1)), rng.standard_normal((1, 5)))
+    path = tmp_path / "stiff.toml"
+    pc.save_model(model, path)
+    assert main(["compare", str(path), str(path)]) == 0
+    assert "Verdict:               EQUIVALENT" in capsys.readouterr().out

@@ -20,6 +20,7 @@ EXIT_NOT_EQUIVALENT = 1
 EXIT_HIDDEN_UNSTABLE = 1   # reduce: a removed mode is not stable and was not acknowledged
 EXIT_BAD_INPUT = 2
 EXIT_INTERNAL = 3
+EXIT_UNDECIDED = 4         # compare, reduce: undecided at the attainable accuracy
 
 _ACKNOWLEDGE = "--accept-hidden-unstable"
 
@@ -27,8 +28,17 @@ _REDUCE_EXIT_CODES = (
     "exit codes: 0 the reduced model was written; 1 the minimal realization removed a mode "
     f"that is unstable or on the stability boundary (a WARNING line on stderr names it) and "
     f"{_ACKNOWLEDGE} was not given, so nothing was written; 2 bad input; 3 numerical "
-    f"breakdown. With {_ACKNOWLEDGE} the model is written, the WARNING is still printed and "
-    "the exit code is 0.")
+    f"breakdown; 4 the model was written but the certificate of the minimal realization is "
+    f"UNDECIDED (a difference above the tolerance that rounding may explain). With "
+    f"{_ACKNOWLEDGE} the model is written, the WARNING is still printed and the exit code is "
+    "0 (or 4).")
+
+_COMPARE_EXIT_CODES = (
+    "exit codes: 0 EQUIVALENT (within the tolerance, or to the attainable accuracy that "
+    "floating point can reach for the two models); 1 NOT EQUIVALENT (a difference above the "
+    "tolerance and clearly above rounding, or models that cannot be compared); 2 bad input; "
+    "3 numerical breakdown; 4 UNDECIDED (a difference above the tolerance and the attainable "
+    "accuracy, but not clearly above rounding).")
 
 
 class _UsageError(Exception):
@@ -112,7 +122,11 @@ def _cmd_reduce(args) -> int:
         print("The certificate below compares the truncated model with the original; a "
               "truncation removes real dynamics, so 'not equivalent' is expected and the "
               "peak error is what to judge against the bound.")
-    print(check_equivalence(model, reduced).to_text(labels=(args.model, args.output)))
+    certificate = check_equivalence(model, reduced)
+    print(certificate.to_text(labels=(args.model, args.output)))
+    truncated = args.order is not None or args.max_error is not None
+    if certificate.verdict == "undecided" and not truncated:
+        return EXIT_UNDECIDED
     return EXIT_OK
 
 
@@ -125,6 +139,8 @@ def _cmd_compare(args) -> int:
     second = load_model(args.model_b)
     certificate = check_equivalence(first, second, tol=args.tol, exact=args.exact)
     print(certificate.to_text(labels=(args.model_a, args.model_b)))
+    if certificate.verdict == "undecided":
+        return EXIT_UNDECIDED
     return EXIT_OK if certificate.equivalent else EXIT_NOT_EQUIVALENT
 
 
@@ -250,7 +266,10 @@ def _build_parser() -> argparse.ArgumentParser:
 
     # --- compare ---
     p = sub.add_parser("compare", help="certify that two models have the same transfer matrix "
-                                       "(exit 0 equivalent, 1 not, 2 bad input)")
+                                       "(exit 0 equivalent, 1 not, 2 bad input, 4 undecided)",
+                       description="Certify that two models have the same transfer matrix, "
+                                   "to the tolerance or to the attainable accuracy.",
+                       epilog=_COMPARE_EXIT_CODES)
     p.add_argument("model_a", metavar="MODEL_A", help="reference model file (.toml, .json or .npz)")
     p.add_argument("model_b", metavar="MODEL_B", help="model file to check against it")
     p.add_argument("--tol", type=float, default=1e-9,

@@ -133,7 +133,7 @@ def _summary(c, example: str, folder: Path, written: dict) -> str:
     mr = a.minimal
     cert = c.certificate
     verdict = ("not checked" if cert is None else
-               ("EQUIVALENT" if cert.equivalent else "NOT EQUIVALENT")
+               cert.verdict.upper()
                + f" (relative peak error {cert.relative_error:.2g})")
     lines.append(f"  minimal     {m.n} -> {mr.order} states ({mr.removed_uncontrollable} "
                  f"uncontrollable, {mr.removed_unobservable} unobservable removed); "

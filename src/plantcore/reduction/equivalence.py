@@ -17,12 +17,24 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from plantcore.core.model import StateSpaceModel, as_model
+from plantcore.core.rank import any_fragile
 from plantcore.core.rendering import render
 from plantcore.core.wording import counted, frequency_phrase, short_number
-from plantcore.reduction.norms import PeakGain, _peak_gain, peak_gain
-from plantcore.core.rank import any_fragile
+from plantcore.reduction.equivalence_resolution import (
+    ATTAINABLE_LIMIT,
+    RESOLUTION_MARGIN,
+    FrequencyCheck,
+    compare_responses,
+    defective_poles,
+    examined_frequencies,
+    resolution_verdict,
+)
+from plantcore.reduction.norms import PeakGain, _equilibrated, _peak_gain, peak_gain
 
-__all__ = ["EquivalenceCertificate", "check_equivalence"]
+__all__ = ["EquivalenceCertificate", "FrequencyCheck", "check_equivalence"]
+
+#: The three verdicts of a certificate.
+VERDICTS = ("equivalent", "not equivalent", "undecided")
 
 
 @dataclass(frozen=True)
@@ -32,16 +44,50 @@ class EquivalenceCertificate:
     Attributes
     ----------
     equivalent : bool
-        The verdict: ``relative_error <= tolerance`` (or, with ``exact=True``, the transfer
-        matrices are identical in exact rational arithmetic).  False for models that cannot
-        be compared (different numbers of inputs or outputs, or time domains).
+        True when :attr:`verdict` is ``"equivalent"``: at every frequency examined the
+        measured difference is within the tolerance or within the attainable accuracy (or,
+        with ``exact=True``, the transfer matrices are identical in exact rational
+        arithmetic).  False for ``"not equivalent"`` and ``"undecided"``, and for models
+        that cannot be compared (different numbers of inputs or outputs, or time domains).
+    verdict : str
+        ``"equivalent"``, ``"not equivalent"`` or ``"undecided"`` (the difference exceeds
+        the tolerance and the attainable accuracy, but not by the margin
+        ``RESOLUTION_MARGIN`` that would tell it from rounding; see
+        :func:`check_equivalence`, Notes).  Never ``"not equivalent"`` on a difference that
+        rounding can explain.
+    verdict_basis : str
+        What the verdict rests on: ``"tolerance"``, ``"attainable accuracy"``,
+        ``"resolved"``, ``"unresolved"``, ``"boundary pole"``, ``"no frequency"``,
+        ``"exact rational arithmetic"`` or ``"not comparable"``.
+    attainable_accuracy : float
+        The accuracy floating point can reach for these two models, relative to
+        :attr:`reference_gain`, at :attr:`decision_frequency`: a first-order bound on the
+        rounding in the measured difference there (evaluation and storage of both models;
+        :func:`plantcore.reduction.equivalence_resolution.response_with_rounding_bound`).
+        ``nan`` when no frequency was examined or the models cannot be compared.
+    decision_frequency : float
+        The frequency that decided the verdict (rad/s, ``inf`` allowed, or rad/sample):
+        the resolved difference, the unresolved one, the largest attainable accuracy
+        needed for "equivalent to the attainable accuracy", or the largest difference.
+    frequency_checks : tuple of FrequencyCheck
+        Every frequency examined, with the measured difference and its attainable accuracy
+        (absolute).
     difference_order : int or None
         Order of a minimal realization of ``a - b``; 0 when the transfer functions agree up
-        to the feedthrough.  None when the models cannot be compared.
+        to the feedthrough; never more than ``n_a + n_b``.  None when the models cannot be
+        compared.  States that carry only a difference below the attainable accuracy are
+        counted: on stiff models the rank decisions may not see the cancellation that the
+        frequency responses show.
+    difference_order_method : str
+        How :attr:`difference_order` was found.
     peak_error : float
-        Peak gain of ``a - b`` (its L-infinity norm over the imaginary axis or unit circle);
-        ``inf`` when the difference has a pole on that boundary or the models cannot be
+        The largest difference ``sigma_max(G_a - G_b)`` measured over the frequencies
+        examined, which include the peak frequency of the difference found by the
+        peak-gain iteration; 0 only when measured as 0, or proven 0 by the exact path.
+        ``inf`` when the difference has a pole on the boundary or the models cannot be
         compared.
+    peak_error_method : str
+        How :attr:`peak_error` was found.
     relative_error : float
         ``peak_error`` divided by :attr:`reference_gain` (the peak gain of ``a``); 0 when
         both are zero, ``inf`` when only ``a`` is zero.
@@ -85,8 +131,8 @@ class EquivalenceCertificate:
         True when one of those decisions lies within a factor 100 of its tolerance, so that
         :attr:`difference_order` depends on the rank tolerance.
     difference_peak : PeakGain or None
-        The full peak-gain result of the difference (None when its order is 0 or the models
-        cannot be compared).
+        The full peak-gain result of the minimal difference (None when its order is 0 or
+        the models cannot be compared); it locates the peak, which is then measured.
     """
 
     equivalent: bool
@@ -109,6 +155,22 @@ class EquivalenceCertificate:
     decisions: tuple = field(default=(), repr=False)
     fragile: bool = False
     difference_peak: PeakGain | None = field(default=None, repr=False)
+    verdict: str = ""
+    verdict_basis: str = ""
+    attainable_accuracy: float = math.nan
+    decision_frequency: float = math.nan
+    difference_order_method: str = ""
+    peak_error_method: str = ""
+    frequency_checks: tuple = field(default=(), repr=False)
+
+    def __post_init__(self):
+        if not self.verdict:   # a certificate built by hand with the bool only
+            object.__setattr__(self, "verdict",
+                               "equivalent" if self.equivalent else "not equivalent")
+        if self.verdict not in VERDICTS:
+            raise ValueError(f"verdict must be one of {VERDICTS}, got {self.verdict!r}.")
+        if (self.verdict == "equivalent") != bool(self.equivalent):
+            raise ValueError("equivalent must be True exactly when verdict is 'equivalent'.")
 
     def to_dict(self) -> dict:
         """A JSON-safe dictionary (non-finite numbers become None or strings)."""
@@ -124,10 +186,16 @@ class EquivalenceCertificate:
 
         return {
             "equivalent": bool(self.equivalent),
+            "verdict": self.verdict,
+            "verdict_basis": self.verdict_basis,
+            "attainable_accuracy": num(self.attainable_accuracy),
+            "decision_frequency": num(self.decision_frequency),
             "criterion": self.criterion,
             "tolerance": num(self.tolerance),
             "difference_order": self.difference_order,
+            "difference_order_method": self.difference_order_method,
             "peak_error": num(self.peak_error),
+            "peak_error_method": self.peak_error_method,
             "relative_error": num(self.relative_error),
             "reference_gain": num(self.reference_gain),
             "peak_frequency": num(self.peak_frequency),
@@ -143,6 +211,9 @@ class EquivalenceCertificate:
             "fragile": bool(self.fragile),
             "decisions": [d.to_dict() for d in self.decisions],
             "reasons": list(self.reasons),
+            "frequency_checks": [
+                {"frequency": num(c.frequency), "difference": num(c.difference),
+                 "attainable": num(c.attainable)} for c in self.frequency_checks],
         }
 
     def to_text(self, *, caution: bool = True, labels=None) -> str:
@@ -182,7 +253,9 @@ def _float_model(obj, exact: bool, which: str) -> StateSpaceModel:
     except ValueError:
         if not exact or not isinstance(obj, (tuple, list)):
             raise
-    from plantcore.structure.exact import _exact_model   # the one validated converter for exact entries
+    from plantcore.structure.exact import (
+        _exact_model,  # the one validated converter for exact entries
+    )
 
     em = _exact_model(obj)
     if em.parameters:
@@ -314,7 +387,10 @@ def _incomparable(a, b, tol, reasons) -> EquivalenceCertificate:
         reasons=tuple(reasons) + ("Not equivalent: the models cannot be compared.",),
         tolerance=tol, criterion="not comparable", reference_gain=math.nan,
         d_error=math.inf, compared_markov_parameters=0, exact_equal=None, is_discrete=None,
-        sample_time=None, orders=(a.n, b.n), names=(a.name, b.name))
+        sample_time=None, orders=(a.n, b.n), names=(a.name, b.name),
+        verdict="not equivalent", verdict_basis="not comparable",
+        difference_order_method="not formed: the models cannot be compared",
+        peak_error_method="not measured: the models cannot be compared")
 
 
 # --- public function --------------------------------------------------------------------------
@@ -358,44 +434,71 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
 
     Notes
     -----
-    1. *Difference system.*  ``a - b`` is the parallel connection with the output of ``b``
-       negated: ``A = diag(A_a, A_b)``, ``B = [B_a; B_b]``, ``C = [C_a, -C_b]``,
-       ``D = D_a - D_b``.  Its minimal realization (:func:`plantcore.minimal_realization`,
-       orthogonal staircase forms, default rank tolerance, decisions recorded) has order 0
-       exactly when the transfer functions agree up to the feedthrough; the difference is
-       then the constant ``D_a - D_b`` and the peak error is its spectral norm, exactly.
-       Differences below the rank tolerance (about ``5e-11`` of the difference system's
-       scale) count as zero at this step; the peak error measures everything else.
-       Conversely, for large models (about a hundred states and more) the staircase may
-       keep states whose contribution is only rounding, so a nonzero order alone does not
-       mean the models differ: the verdict rests on the peak error.
-    2. *Peak error.*  The peak gain of the minimal difference (:func:`plantcore.peak_gain`,
-       relative accuracy ``1e-10``): its L-infinity norm, defined for unstable models too as
-       long as no pole of the difference lies on the imaginary axis (unit circle).  Working
-       on the minimal difference removes poles that ``a`` and ``b`` share and that cancel,
-       integrators included.  The relative error divides by the peak gain of ``a``; when
-       that is infinite (``a`` has a pole on the boundary), by the gain of ``a`` at the
-       frequency where the difference peaks.
-    3. *Markov parameters* (impulse-response coefficients) ``D, CB, CAB, ...``: the first
+    1. *Measured difference.*  Both transfer matrices are evaluated, each in its own
+       (exactly power-of-two equilibrated) coordinates, at a set of frequencies: zero,
+       infinity, a logarithmic grid spanning the pole magnitudes of both models, the pole
+       frequencies, the peak frequency of ``a`` and the peak frequency of the difference
+       (below).  At each, ``sigma_max(G_a - G_b)`` is the measured difference: the
+       difference in block form, ``A = diag(A_a, A_b)``, ``B = [B_a; B_b]``,
+       ``C = [C_a, -C_b]``, evaluated without forming any realization of it.
+       :attr:`~EquivalenceCertificate.peak_error` is the largest of them.
+    2. *Attainable accuracy.*  At the same frequency, a first-order bound on the rounding
+       in that difference, computed from the LU factorization of ``s I - A`` of each model:
+       the backward error of the solve, ``|dM| <= gamma_3n P |L| |U|`` (Higham [3]_,
+       Theorem 9.4), propagated as ``|C (sI - A)^{-1}| |dM| |(sI - A)^{-1} B|``; the rounding
+       of ``C X + D`` (Higham [3]_, section 3.5); and the effect of a relative rounding
+       ``u`` of every stored entry of ``A, B, C, D`` (the componentwise condition of the
+       transfer matrix).  The two models' bounds are added.  On stiff models the first term
+       dominates at low frequency and grows like ``u ||C M^{-1}|| ||M|| ||M^{-1} B||``:
+       with eigenvalues from ``-1e-4`` to ``-1e4`` it is about ``1e-8`` of the gain, more
+       than the default tolerance.
+    3. *Verdict* (``tau = tol * reference_gain``).  *Not equivalent* when at some frequency
+       the difference exceeds both ``tau`` and ``RESOLUTION_MARGIN`` (100) times the
+       attainable accuracy there: it is resolved, rounding cannot explain it.
+       *Equivalent* when at every frequency the difference is at most ``tau`` ("within the
+       tolerance") or at most the attainable accuracy ("equivalent to the attainable
+       accuracy X", X the largest relative attainable accuracy needed).  *Undecided*
+       otherwise: somewhere the difference exceeds the tolerance and the first-order
+       rounding bound, but not by the margin; rounding the bound does not see (how one
+       model was computed from the other) cannot be ruled out, and neither can a true
+       difference.  A difference with a pole on the boundary (infinite peak error, found
+       by the minimal realization below) is not equivalent.  With ``exact=True`` exact
+       equality decides.
+    4. *Order of the difference.*  The minimal realization of the block difference
+       (:func:`plantcore.minimal_realization`, orthogonal staircase forms, default rank
+       tolerance, decisions recorded); it has order 0 when the transfer functions agree up
+       to the feedthrough, and never more than ``n_a + n_b``.  On stiff or large models the
+       staircase may keep states whose contribution is only rounding, so a nonzero order
+       alone does not mean the models differ.  Its peak gain (:func:`plantcore.peak_gain`,
+       the Hamiltonian level-set method) locates where the difference is largest, and the
+       difference is then measured there as in 1.  The relative error divides by the peak
+       gain of ``a``; when that is infinite (``a`` has a pole on the boundary), by the gain
+       of ``a`` at the frequency where the measured difference peaks.
+    5. *Markov parameters* (impulse-response coefficients) ``D, CB, CAB, ...``: the first
        ``2 max(n_a, n_b) + 1`` of them, enough to determine the difference (its order is
        at most ``n_a + n_b``).  To avoid overflow and underflow they are those of the
        frequency-scaled models ``G(rho v)``, ``rho`` the larger spectral radius of the two
        state matrices: ``C (A/rho)^k B / rho``, which have the units of ``G``.  The
        error is the largest difference relative to the largest scaled parameter of ``a``.
-       This check is independent of the rank decisions, but not of the coordinates' scaling:
-       for strongly non-normal ``A`` it may report a rounding-level difference above ``tol``
-       while the transfer functions agree; it does not decide the verdict.
-    4. *Verdict*: ``relative_error <= tol`` (with ``exact=True``: exact equality).
+       For strongly non-normal or stiff ``A`` it may report a rounding-level difference
+       above ``tol`` while the transfer functions agree; it does not decide the verdict.
+
+    What the frequency set cannot do: a difference confined to a band narrower than the
+    grid spacing away from every pole frequency and from the peak frequency of the
+    minimal difference would be missed; the peak-gain iteration on the minimal difference
+    is what finds such a band.
 
     The difference-system approach is the standard way of comparing realizations
     (Kailath [1]_, section 6.2; Zhou, Doyle and Glover [2]_, section 3.11 for the parallel
-    connection and section 4 for the norms).
+    connection and section 4 for the norms); the rounding bounds are Higham's [3]_.
 
     References
     ----------
     .. [1] T. Kailath, *Linear Systems*, Prentice Hall, 1980.
     .. [2] K. Zhou, J. C. Doyle and K. Glover, *Robust and Optimal Control*, Prentice Hall,
        1996.
+    .. [3] N. J. Higham, *Accuracy and Stability of Numerical Algorithms*, 2nd ed., SIAM,
+       2002 (Lemma 3.5, section 3.5, section 7.2, Theorem 9.4).
 
     Examples
     --------
@@ -410,6 +513,8 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
     False
     >>> pc.check_equivalence(g, g.replace(dt=0.1)).equivalent          # domains differ
     False
+    >>> pc.check_equivalence(g, other).verdict
+    'not equivalent'
     """
     tol = _validate_tol(tol)
     exact = bool(exact)
@@ -422,6 +527,7 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
     from plantcore.structure.minimal import minimal_realization
 
     discrete, dt = ma.is_discrete, ma.dt
+    where = "unit circle" if discrete else "imaginary axis"
     reasons = []
     kind = "discrete-time" if discrete else "continuous-time"
     reasons.append(
@@ -430,64 +536,86 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
 
     d_diff = np.asarray(ma.D - mb.D, dtype=float)
     d_error = float(np.linalg.norm(d_diff, 2)) if d_diff.size else 0.0
+    total = ma.n + mb.n
     if ma.n_inputs == 0 or ma.n_outputs == 0:
         mr = None
         order, decisions = 0, ()
+        order_method = "no inputs or no outputs: the transfer matrices are empty"
     else:
         mr = minimal_realization(_difference(ma, mb))
-        order, decisions = mr.order, tuple(mr.decisions)
+        order, decisions = min(mr.order, total), tuple(mr.decisions)
+        order_method = (f"minimal realization of the {total}-state difference A - B in block "
+                        "form (orthogonal staircase rank decisions, default tolerance)")
+        if mr.order > total:
+            order_method += f"; it reported {mr.order}, capped at the {total} states there are"
     fragile = any_fragile(decisions)
 
     difference_peak = None
-    if order == 0:
-        peak_error = d_error
-        peak_frequency = 0.0 if peak_error > 0 else math.nan
-        if peak_error > 0:
-            reasons.append(
-                "A minimal realization of the difference A - B has order 0: the dynamics "
-                f"agree, and the difference is the constant D_A - D_B of norm {short_number(d_error)} "
-                "at every frequency.")
-        else:
-            reasons.append(
-                "A minimal realization of the difference A - B has order 0 and the "
-                "feedthrough matrices are identical: the transfer functions agree.")
-    else:
+    if order > 0:
         # Judge "pole on the boundary" against the scale of the two models, not of the
         # small minimal difference (whose shared-integrator remnant may be 1e-26).
         scale = max(float(np.linalg.norm(m.A)) for m in (ma, mb))
         difference_peak = _peak_gain(mr.model, 1e-10, scale)
-        peak_error = difference_peak.value
-        peak_frequency = difference_peak.frequency
-        reasons.append(f"A minimal realization of the difference A - B has order {order}.")
-
-    # Reference gain: the peak gain of a (its L-infinity norm).
     ref_peak = peak_gain(ma) if reference_peak_gain is None else reference_peak_gain
+
+    first, second = _equilibrated(ma), _equilibrated(mb)
+    poles = np.concatenate([_eigenvalues(first[0]), _eigenvalues(second[0])])
+    extra = [ref_peak.frequency] + ([difference_peak.frequency] if difference_peak else [])
+    state_scale = max(float(np.linalg.norm(m[0])) if m[0].size else 0.0 for m in (first, second))
+    defective = np.concatenate([defective_poles(first[0]), defective_poles(second[0])])
+    frequencies = examined_frequencies(poles, discrete, extra, scale=state_scale,
+                                       defective=defective)
+    checks = compare_responses(first, second, frequencies, discrete)
+    peak_method = (f"measured at {len(checks)} frequencies (both responses "
+                   "evaluated; the grid includes the pole frequencies and the peak of the "
+                   "minimal difference)")
+
+    threshold = tol * ref_peak.value if math.isfinite(ref_peak.value) else math.inf
+    judged = resolution_verdict(checks, threshold, limit=_limit(ref_peak.value, checks))
+    # A boundary pole of the minimal difference rests on its rank decisions and the pole
+    # tolerance; it counts only when a measured difference is resolved from rounding somewhere.
+    boundary_pole = (difference_peak is not None and math.isinf(difference_peak.value)
+                     and resolution_verdict(checks, 0.0).verdict == "not equivalent")
+    unconfirmed_pole = (difference_peak is not None and math.isinf(difference_peak.value)
+                        and not boundary_pole)
+    if boundary_pole:
+        peak_error, peak_frequency = math.inf, difference_peak.frequency
+        peak_method = "the minimal difference has a pole on the " + where
+    elif checks:
+        largest = max(checks, key=lambda c: c.difference)
+        peak_error = largest.difference
+        peak_frequency = largest.frequency if peak_error > 0 else math.nan
+        if order == 0 and d_error > 0:
+            peak_frequency = 0.0          # the difference is the constant D_A - D_B
+    else:
+        peak_error, peak_frequency = math.nan, math.nan
+
     reference = ref_peak.value
     if math.isinf(reference) and math.isfinite(peak_error) and peak_error > 0:
         reference = _gain_near(ma, peak_frequency)
-        where = "unit circle" if discrete else "imaginary axis"
         reasons.append(
             f"Model A has a pole on the {where} (at "
             f"{frequency_phrase(ref_peak.frequency, discrete, dt)}), so its peak gain is "
             "infinite; the error is measured against the gain of model A at the frequency "
             "where the difference is largest.")
-    if peak_error == 0:
-        relative_error = 0.0
-    elif math.isinf(peak_error) or not (0 < reference < math.inf):
-        relative_error = math.inf
-    else:
-        relative_error = peak_error / reference
+    relative_error = _relative(peak_error, reference)
 
-    if math.isinf(peak_error):
+    if order == 0:
+        reasons.append("A minimal realization of the difference A - B has order 0: the "
+                       "dynamics agree" + (f", and the feedthrough matrices differ by "
+                                           f"{short_number(d_error)}." if d_error > 0 else "."))
+    else:
+        reasons.append(f"A minimal realization of the difference A - B has order {order}.")
+    if boundary_pole:
         reasons.append(
-            f"The difference has a pole on the {'unit circle' if discrete else 'imaginary axis'}"
-            f" at {frequency_phrase(peak_frequency, discrete, dt)}: the models differ without "
+            f"The difference has a pole on the {where} at "
+            f"{frequency_phrase(peak_frequency, discrete, dt)}: the models differ without "
             "bound there.")
     elif peak_error > 0 and order > 0:
         reasons.append(
             f"The transfer functions differ most at "
-            f"{frequency_phrase(peak_frequency, discrete, dt)}, where the peak gain of the "
-            f"difference is {short_number(relative_error)} of the original's.")
+            f"{frequency_phrase(peak_frequency, discrete, dt)}, where the measured difference "
+            f"is {short_number(relative_error)} of the original's peak gain.")
     if reference == 0 and peak_error > 0:
         reasons.append("Model A has zero gain at every frequency while model B does not, so "
                        "the relative error is infinite.")
@@ -502,7 +630,28 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
     if d_error > 0 and order > 0:
         reasons.append(f"The feedthrough matrices D differ by {short_number(d_error)} (spectral norm).")
 
+    if unconfirmed_pole:
+        reasons.append(
+            f"The minimal realization of the difference has a pole within the boundary "
+            f"tolerance of the {where}, but no measured difference is resolved from rounding: "
+            "the pole is not taken as a difference.")
+
+    # The verdict from the measured differences against the tolerance and the attainable accuracy.
+    if boundary_pole:
+        verdict, basis, decided_at = "not equivalent", "boundary pole", None
+    else:
+        if reference != ref_peak.value:      # a pole of a on the boundary: the gain near the peak
+            threshold = tol * reference if math.isfinite(reference) else math.inf
+            judged = resolution_verdict(checks, threshold, limit=_limit(ref_peak.value, checks))
+        verdict, basis, decided_at = judged.verdict, judged.basis, judged.check
+    attainable = _relative(decided_at.attainable, reference) if decided_at else math.nan
+    decision_frequency = decided_at.frequency if decided_at else (
+        peak_frequency if boundary_pole else math.nan)
+    reasons += _verdict_reasons(verdict, basis, decided_at, reference, tol, attainable,
+                                relative_error, order, markov_error, discrete, dt)
+
     exact_equal = None
+    criterion = "relative peak error"
     if exact:
         exact_equal, differing = _exact_comparison(a, b, ma, mb)
         if exact_equal:
@@ -513,43 +662,106 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
                 f"In exact rational arithmetic the transfer matrices differ in {len(differing)} "
                 f"of {ma.n_outputs * ma.n_inputs} entries, first from input "
                 f"{ma.inputs[j]!r} to output {ma.outputs[i]!r}.")
-        equivalent = bool(exact_equal)
-        criterion = "exact rational arithmetic"
-        numeric = relative_error <= tol
-        if numeric != equivalent:
+        numeric = verdict
+        verdict = "equivalent" if exact_equal else "not equivalent"
+        basis = criterion = "exact rational arithmetic"
+        if numeric != verdict:
             reasons.append(
                 f"The floating-point comparison (relative peak error {short_number(relative_error)}) "
-                f"would have {'passed' if numeric else 'failed'} the tolerance {short_number(tol)}; "
-                "the exact comparison decides.")
-        reasons.append(("Equivalent" if equivalent else "Not equivalent")
+                f"would have said {numeric}; the exact comparison decides.")
+        if exact_equal:
+            peak_error, relative_error, peak_frequency = 0.0, 0.0, math.nan
+            peak_method = "proven 0 by exact rational arithmetic"
+        reasons.append(("Equivalent" if exact_equal else "Not equivalent")
                        + ": decided by exact rational arithmetic.")
-    else:
-        equivalent = bool(relative_error <= tol)
-        criterion = "relative peak error"
-        if equivalent:
-            reasons.append(f"Equivalent: the relative peak error {short_number(relative_error)} is within "
-                           f"the tolerance {short_number(tol)}.")
-            if order > 0:
-                reasons.append(
-                    f"The {order} state(s) left in the difference carry only a difference "
-                    "below the tolerance.")
-            if markov_error > tol:
-                reasons.append(
-                    "The Markov parameters differ by more than the tolerance although the "
-                    "peak error does not; this points to rounding in strongly non-normal "
-                    "coordinates or fast modes, and deserves a look.")
-        else:
-            reasons.append(f"Not equivalent: the relative peak error {short_number(relative_error)} "
-                           f"exceeds the tolerance {short_number(tol)}.")
     if fragile:
         reasons.append("A rank decision of the difference's minimal realization lies within "
                        "a factor 100 of its tolerance: its order depends on the tolerance.")
 
     return EquivalenceCertificate(
-        equivalent=equivalent, difference_order=int(order), peak_error=float(peak_error),
-        relative_error=float(relative_error), peak_frequency=float(peak_frequency),
-        markov_error=float(markov_error), reasons=tuple(reasons), tolerance=tol,
-        criterion=criterion, reference_gain=float(reference), d_error=d_error,
+        equivalent=verdict == "equivalent", difference_order=int(order),
+        peak_error=float(peak_error), relative_error=float(relative_error),
+        peak_frequency=float(peak_frequency), markov_error=float(markov_error),
+        reasons=tuple(reasons), tolerance=tol, criterion=criterion,
+        reference_gain=float(reference), d_error=d_error,
         compared_markov_parameters=markov_count, exact_equal=exact_equal,
         is_discrete=discrete, sample_time=dt, orders=(ma.n, mb.n), names=(ma.name, mb.name),
-        decisions=decisions, fragile=fragile, difference_peak=difference_peak)
+        decisions=decisions, fragile=fragile, difference_peak=difference_peak,
+        verdict=verdict, verdict_basis=basis, attainable_accuracy=float(attainable),
+        decision_frequency=float(decision_frequency), difference_order_method=order_method,
+        peak_error_method=peak_method, frequency_checks=checks)
+
+
+def _eigenvalues(A) -> np.ndarray:
+    if A.shape[0] == 0:
+        return np.zeros(0, dtype=complex)
+    with np.errstate(all="ignore"):
+        return np.linalg.eigvals(A)
+
+
+def _limit(reference: float, checks) -> float:
+    """The largest absolute attainable accuracy under which "equivalent" may be said:
+    ``ATTAINABLE_LIMIT`` times the reference gain, or no limit when the gain of ``a`` is
+    nowhere above the attainable accuracy (``a`` is zero up to rounding, and only absolute
+    comparisons mean anything)."""
+    if not any(c.gain > c.attainable for c in checks):
+        return math.inf
+    return ATTAINABLE_LIMIT * reference
+
+
+def _relative(value: float, reference: float) -> float:
+    """``value / reference``: 0 for a zero value, ``inf`` when it cannot be formed."""
+    if value == 0:
+        return 0.0
+    if math.isnan(value):
+        return math.nan
+    if math.isinf(value) or not (0 < reference < math.inf):
+        return math.inf
+    return value / reference
+
+
+def _verdict_reasons(verdict, basis, check, reference, tol, attainable, relative_error,
+                     order, markov_error, discrete, dt) -> list:
+    """The sentences that say why the floating-point verdict is what it is."""
+    if basis == "boundary pole":
+        return ["Not equivalent: the difference has a pole on the boundary."]
+    if basis == "no frequency":
+        return ["Undecided: at no frequency examined were both transfer matrices defined."]
+    at = frequency_phrase(check.frequency, discrete, dt)
+    measured = _relative(check.difference, reference)
+    if basis == "tolerance":
+        out = [f"Equivalent: the relative peak error {short_number(relative_error)} is within "
+               f"the tolerance {short_number(tol)} (the attainable accuracy at the peak is "
+               f"{short_number(attainable)})."]
+        if order > 0:
+            out.append(f"The {order} state(s) left in the difference carry only a difference "
+                       "below the tolerance.")
+        if markov_error > tol:
+            out.append("The Markov parameters differ by more than the tolerance although the "
+                       "peak error does not; this points to rounding in strongly non-normal "
+                       "coordinates or fast modes, and deserves a look.")
+        return out
+    if basis == "attainable accuracy":
+        out = [f"Equivalent to the attainable accuracy {short_number(attainable)}: the relative "
+               f"peak error {short_number(relative_error)} exceeds the tolerance "
+               f"{short_number(tol)}, but at every frequency the difference is within what "
+               "floating point can resolve for these two models (first-order rounding bound "
+               f"of evaluating and storing them; largest needed at {at})."]
+        if order > 0:
+            out.append(f"The {order} state(s) left in the difference carry only a difference "
+                       "below the attainable accuracy.")
+        return out
+    if basis == "resolved":
+        ratio = (short_number(check.difference / check.attainable) if check.attainable > 0
+                 else "infinitely many")
+        return [f"Not equivalent: at {at} the difference {short_number(measured)} (relative) "
+                f"exceeds the tolerance {short_number(tol)} and is "
+                f"{ratio}"
+                f" times the attainable accuracy {short_number(attainable)} there (the margin "
+                f"is {RESOLUTION_MARGIN:g}): rounding cannot explain it."]
+    return [f"Undecided: at {at} the difference {short_number(measured)} (relative) exceeds "
+            f"the tolerance {short_number(tol)} and the attainable accuracy "
+            f"{short_number(attainable)} there, but by less than the margin "
+            f"{RESOLUTION_MARGIN:g} that would tell it from rounding; neither equivalence nor "
+            "a difference is proven. Compare with exact=True, or in better-conditioned "
+            "coordinates (a balanced or modal realization)."]

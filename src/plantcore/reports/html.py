@@ -282,10 +282,18 @@ def _verdict_section(c: ReportContents) -> str:
                        not a.fragile))
     cert = c.certificate
     if cert is not None:
-        tiles.append(_tile("Minimal model certified", _yes_no(cert.equivalent),
-                           "same transfer function as the original" if cert.equivalent
-                           else "the comparison found a difference; see section 9",
-                           bool(cert.equivalent)))
+        if cert.verdict == "undecided":
+            answer, why = ("undecided", "a difference above the tolerance that rounding may "
+                           "explain; see section 9")
+        elif cert.equivalent:
+            answer = "yes"
+            why = ("same transfer function as the original"
+                   if cert.verdict_basis != "attainable accuracy" else
+                   f"same transfer function to the attainable accuracy "
+                   f"{_num(cert.attainable_accuracy)}")
+        else:
+            answer, why = "no", "the comparison found a difference; see section 9"
+        tiles.append(_tile("Minimal model certified", answer, why, bool(cert.equivalent)))
     else:
         tiles.append(_tile("Minimal model certified", "not checked", _e(c.certificate_problem), False))
     red = c.reduction
@@ -441,7 +449,9 @@ def _certificate_section(c: ReportContents) -> str:
         parts.append(f"<p>{_e(c.certificate_problem)}</p>")
     else:
         verdict = ('<span class="ok">equivalent</span>' if cert.equivalent
-                   else '<span class="flag">not equivalent</span>')
+                   else f'<span class="flag">{_e(cert.verdict)}</span>')
+        if cert.verdict_basis == "attainable accuracy":
+            verdict += f" to the attainable accuracy {_num(cert.attainable_accuracy)}"
         parts.append(f"<p>Original ({c.model.n} states) against the minimal realization "
                      f"({c.analysis.minimal_order} states): {verdict}.</p>")
         parts.append(f"<pre>{_e(cert.to_text(caution=False))}</pre>")
@@ -449,9 +459,10 @@ def _certificate_section(c: ReportContents) -> str:
     if rc is not None:
         parts.append("<details open><summary>Original against the reduced model</summary>"
                      f"<pre>{_e(rc.to_text(caution=False))}</pre></details>")
-    lead = ("The certificate compares transfer functions, not matrices: two models are "
-            "equivalent when a minimal realization of their difference has no states and their "
-            "direct feedthrough agrees.")
+    lead = ("The certificate compares transfer functions, not matrices: at every frequency "
+            "examined the difference of the two responses is measured and held to the "
+            "tolerance and to the accuracy floating point can reach for these models there; "
+            "a difference that rounding can explain is never called a difference.")
     return _section("certificate", "\n".join(parts), lead)
 
 

@@ -347,6 +347,36 @@ def analysis_markdown(a) -> str:
     return "\n".join(out) + "\n"
 
 
+def _certificate_verdict(cert) -> tuple:
+    """The verdict word and what decided it, from the certificate's fields."""
+    tol = short_number(cert.tolerance)
+    if cert.criterion == "not comparable":
+        return "NOT EQUIVALENT", "the models cannot be compared"
+    if cert.criterion == "exact rational arithmetic":
+        return (("EQUIVALENT" if cert.equivalent else "NOT EQUIVALENT"),
+                "decided by exact rational arithmetic")
+    basis = cert.verdict_basis
+    relative = short_number(cert.relative_error)
+    attainable = short_number(cert.attainable_accuracy)
+    if basis == "attainable accuracy":
+        return (f"EQUIVALENT to the attainable accuracy {attainable}",
+                f"relative peak error {relative} > tolerance {tol}, within what floating "
+                "point can resolve at every frequency")
+    if basis == "unresolved":
+        return ("UNDECIDED", f"a difference above the tolerance {tol} and the attainable "
+                f"accuracy {attainable}, but not clearly above rounding")
+    if basis == "no frequency":
+        return "UNDECIDED", "no frequency could be examined"
+    if basis == "boundary pole":
+        return "NOT EQUIVALENT", "the difference has a pole on the boundary"
+    if basis == "resolved":
+        return ("NOT EQUIVALENT", f"relative peak error {relative} > tolerance {tol}, and "
+                f"far above the attainable accuracy {attainable}")
+    sign = "<=" if cert.relative_error <= cert.tolerance else ">"
+    return ("EQUIVALENT" if cert.equivalent else "NOT EQUIVALENT",
+            f"relative peak error {relative} {sign} tolerance {tol}")
+
+
 def certificate_text(cert, *, caution: bool = True, labels=None) -> str:
     """A plain, readable report of an equivalence certificate.
 
@@ -366,15 +396,7 @@ def certificate_text(cert, *, caution: bool = True, labels=None) -> str:
         name = cert.names[k]
         return f"{who} {name!r}" if name else who
 
-    verdict = "EQUIVALENT" if cert.equivalent else "NOT EQUIVALENT"
-    if cert.criterion == "not comparable":
-        decided = "the models cannot be compared"
-    elif cert.criterion == "exact rational arithmetic":
-        decided = "decided by exact rational arithmetic"
-    else:
-        sign = "<=" if cert.relative_error <= cert.tolerance else ">"
-        decided = (f"relative peak error {short_number(cert.relative_error)} {sign} tolerance "
-                   f"{short_number(cert.tolerance)}")
+    verdict, decided = _certificate_verdict(cert)
     lines = ["Transfer-matrix equivalence certificate", "",
              f"  Verdict:               {verdict} ({decided})"]
     lines.append(f"  Compared:              {label(0)}, {counted(cert.orders[0], 'state')}, "
@@ -383,15 +405,21 @@ def certificate_text(cert, *, caution: bool = True, labels=None) -> str:
         domain = ("discrete time, sample time " + f"{cert.sample_time:g}"
                   if cert.is_discrete else "continuous time")
         lines.append(f"  Time domain:           {domain}")
+        if math.isfinite(cert.attainable_accuracy):
+            at = frequency_phrase(cert.decision_frequency, cert.is_discrete, cert.sample_time)
+            lines.append(f"  Attainable accuracy:   {short_number(cert.attainable_accuracy)} "
+                         f"relative, at {at} (first-order rounding bound of evaluating and "
+                         "storing both models; Higham 2002)")
         lines.append(f"  Order of difference:   {cert.difference_order} "
-                     "(minimal realization of A - B)")
-        if cert.peak_error > 0 and cert.difference_order == 0:
+                     f"({cert.difference_order_method or 'minimal realization of A - B'})")
+        if cert.peak_error > 0 and cert.difference_order == 0 and cert.d_error > 0:
             where = " (a constant: the same at every frequency)"
         elif cert.peak_error > 0:
             where = f" at {frequency_phrase(cert.peak_frequency, cert.is_discrete, cert.sample_time)}"
         else:
             where = ""
-        lines.append(f"  Peak error:            {short_number(cert.peak_error)}{where}")
+        method = f"; {cert.peak_error_method}" if cert.peak_error_method else ""
+        lines.append(f"  Peak error:            {short_number(cert.peak_error)}{where}{method}")
         lines.append(f"  Relative error:        {short_number(cert.relative_error)} "
                      f"(of the reference gain {short_number(cert.reference_gain)})")
         lines.append(f"  Markov parameters:     {cert.compared_markov_parameters} compared, "

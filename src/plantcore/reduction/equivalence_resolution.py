@@ -1,0 +1,358 @@
+"""What floating point can resolve when two transfer matrices are compared, frequency by frequency.
+
+The equivalence certificate (:mod:`plantcore.reduction.equivalence`) compares two models by
+the difference of their frequency responses.  A difference is only meaningful when it is
+larger than the rounding that computing it, and storing the two models, can cause.  This
+module evaluates both transfer matrices at a set of frequencies, measures
+``sigma_max(G_a - G_b)`` there (the difference in block form: each model evaluated in its
+own coordinates, no realization of ``a - b`` formed) and computes, at the same frequency, a
+first-order bound on the rounding in that difference: the *attainable accuracy*.
+
+The bound (see :func:`response_with_rounding_bound`) is computed from the very LU
+factorization used to evaluate the response, so it is measured for these two models, not
+guessed from a fixed tolerance.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.linalg
+
+__all__ = ["FrequencyCheck", "ResolutionVerdict", "compare_responses", "examined_frequencies",
+           "resolution_verdict", "response_with_rounding_bound"]
+
+_UNIT_ROUNDOFF = np.finfo(float).eps / 2
+
+#: Complex arithmetic rounds a little more than real arithmetic (a complex product is within
+#: ``sqrt(2) gamma_2`` of the exact one, a quotient within ``sqrt(2) gamma_4``; Higham 2002,
+#: Lemma 3.5): the real-arithmetic constants ``gamma_k`` are taken as ``gamma_(4k)``.
+COMPLEX_FACTOR = 4
+
+#: Frequencies on the logarithmic (continuous) or uniform plus logarithmic (discrete) grid,
+#: before the pole frequencies and the caller's frequencies are added.
+GRID_POINTS = 96
+
+#: Largest number of pole frequencies added to the grid (the largest and smallest first).
+MAX_POLE_FREQUENCIES = 64
+
+
+def _gamma(k: int) -> float:
+    """``gamma_k = k u / (1 - k u)`` for complex arithmetic (Higham 2002, section 3.1)."""
+    ku = COMPLEX_FACTOR * k * _UNIT_ROUNDOFF
+    return ku / (1.0 - ku) if ku < 0.5 else math.inf
+
+
+@dataclass(frozen=True)
+class FrequencyCheck:
+    """The measured difference of two transfer matrices at one frequency.
+
+    Attributes
+    ----------
+    frequency : float
+        rad/s (``inf`` for infinite frequency), or rad/sample in ``[0, pi]``.
+    difference : float
+        ``sigma_max(G_a - G_b)`` as computed, both responses evaluated at this frequency.
+    attainable : float
+        First-order bound on the rounding in :attr:`difference` (absolute, same units):
+        the sum of the bounds of :func:`response_with_rounding_bound` for the two models.
+        A difference at or below it cannot be told from rounding.
+    gain : float
+        ``sigma_max(G_a)`` at this frequency, as computed (the first model's gain).
+    """
+
+    frequency: float
+    difference: float
+    attainable: float
+    gain: float = math.inf
+
+
+def response_with_rounding_bound(A, B, C, D, point):
+    """``G = C (point I - A)^{-1} B + D`` and a componentwise first-order bound on its rounding.
+
+    Parameters
+    ----------
+    A : (n, n) ndarray
+    B : (n, m) ndarray
+    C : (p, n) ndarray
+    D : (p, m) ndarray
+        Real matrices (equilibrated by an exact power-of-two state scaling, say).
+    point : complex
+        ``s = j w`` in continuous time, ``z = exp(j theta)`` in discrete time.
+
+    Returns
+    -------
+    (G, E) : ((p, m) complex ndarray, (p, m) ndarray) or None
+        The computed response and a nonnegative matrix with ``|G_computed - G_exact| <= E``
+        entrywise to first order, so that ``sigma_max`` of the error is at most
+        ``||E||_2``.  None when ``point I - A`` is singular in floating point (a pole) or the
+        result is not finite.
+
+    Notes
+    -----
+    With ``M = point I - A = P L U`` (LU with partial pivoting), ``X = M^{-1} B`` and
+    ``Y = C M^{-1}``, the bound adds three first-order terms:
+
+    1. *The solve.*  The computed ``X`` satisfies ``(M + dM) X = B`` with
+       ``|dM| <= gamma_3n P |L| |U|`` (Higham [1]_, Theorem 9.4), so the error of
+       ``C X`` is ``C M^{-1} dM X`` and is at most ``gamma_3n |Y P| |L| |U| |X|``.
+    2. *The product.*  ``|fl(C X + D) - (C X + D)| <= gamma_(n+1) (|C| |X| + |D|)``
+       (Higham [1]_, section 3.5).
+    3. *The data.*  The stored entries of ``A, B, C, D`` are themselves rounded, by a relative
+       ``u`` each; the first-order change of ``G`` is
+       ``Y dA X + dC X + Y dB + dD`` (the derivative of ``C (sI - A)^{-1} B + D``), at most
+       ``u (|Y| |A| |X| + |C| |X| + |Y| |B| + |D|)``: the componentwise condition of the
+       transfer matrix at ``point`` (in the spirit of Skeel's condition number, Higham [1]_,
+       section 7.2).
+
+    Term 1 is the dominant one near poles and for stiff models: ``|Y| |L| |U| |X|`` grows
+    like ``||C M^{-1}|| ||M|| ||M^{-1} B||``, the condition of the evaluation.  The constants
+    ``gamma_k`` are those of complex arithmetic (:data:`COMPLEX_FACTOR`).  Second-order terms
+    are neglected; they matter only when the bound approaches ``|G|`` itself.
+
+    References
+    ----------
+    .. [1] N. J. Higham, *Accuracy and Stability of Numerical Algorithms*, 2nd ed., SIAM,
+       2002 (Lemma 3.5, section 3.5, section 7.2, Theorem 9.4).
+    """
+    evaluated = _evaluate(A, B, C, D, point)
+    return None if evaluated is None else evaluated[:2]
+
+
+def _evaluate(A, B, C, D, point):
+    """:func:`response_with_rounding_bound` and the size ``|C| |X| + |D|`` of what it computed."""
+    n = A.shape[0]
+    Dc = np.asarray(D, dtype=float)
+    if n == 0:
+        return Dc.astype(complex), _UNIT_ROUNDOFF * np.abs(Dc), np.abs(Dc)
+    M = complex(point) * np.eye(n) - A
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")
+        lu, piv = scipy.linalg.lu_factor(M, check_finite=False)
+        if not np.all(np.isfinite(lu)) or np.any(np.diag(lu) == 0):
+            return None
+        X = scipy.linalg.lu_solve((lu, piv), B.astype(complex), check_finite=False)
+        Y = scipy.linalg.lu_solve((lu, piv), C.T.astype(complex), trans=1, check_finite=False).T
+        G = C @ X + Dc
+        if not (np.all(np.isfinite(G)) and np.all(np.isfinite(Y))):
+            return None
+        perm = np.arange(n)
+        for i, k in enumerate(piv):          # M[perm] = L U
+            perm[i], perm[k] = perm[k], perm[i]
+        absL = np.abs(np.tril(lu, -1)) + np.eye(n)
+        absU = np.abs(np.triu(lu))
+        absX, absY = np.abs(X), np.abs(Y)
+        absC, absD = np.abs(C), np.abs(Dc)
+        solve = absY[:, perm] @ (absL @ (absU @ absX))
+        product = absC @ absX + absD
+        data = absY @ (np.abs(A) @ absX) + absC @ absX + absY @ np.abs(B) + absD
+        E = _gamma(3 * n) * solve + _gamma(n + 1) * product + _UNIT_ROUNDOFF * data
+        if not np.all(np.isfinite(E)):
+            return None
+    return G, E, product
+
+
+def _norm2(E) -> float:
+    if E.size == 0:
+        return 0.0
+    with np.errstate(all="ignore"):
+        return float(np.linalg.norm(E, 2))
+
+
+def compare_responses(first, second, frequencies, discrete: bool) -> tuple:
+    """One :class:`FrequencyCheck` per frequency where both responses are defined.
+
+    ``first`` and ``second`` are ``(A, B, C, D)`` tuples of real arrays with the same
+    numbers of inputs and outputs.  A frequency at which either model has a pole (in
+    floating point) is left out.  At infinite frequency (continuous time) the responses are
+    the feedthrough matrices.
+    """
+    checks = []
+    for w in frequencies:
+        w = float(w)
+        if math.isinf(w):
+            Ga, Ea = first[3].astype(complex), _UNIT_ROUNDOFF * np.abs(first[3])
+            Gb, Eb = second[3].astype(complex), _UNIT_ROUNDOFF * np.abs(second[3])
+
+        else:
+            point = np.exp(1j * w) if discrete else 1j * w
+            ra = _evaluate(*first, point)
+            rb = _evaluate(*second, point) if ra is not None else None
+            if rb is None:
+                continue
+            (Ga, Ea, _), (Gb, Eb, _) = ra, rb
+        with np.errstate(all="ignore"):
+            diff = Ga - Gb
+            value = float(np.linalg.norm(diff, 2)) if diff.size else 0.0
+            gain = float(np.linalg.norm(Ga, 2)) if Ga.size else 0.0
+        # the two bounds, and the subtraction's own rounding
+        bound = _norm2(Ea) + _norm2(Eb) + _UNIT_ROUNDOFF * value
+        if math.isfinite(value) and math.isfinite(bound):
+            checks.append(FrequencyCheck(w, value, bound, gain))
+    return tuple(checks)
+
+
+def _pole_frequencies(poles, discrete: bool) -> np.ndarray:
+    """Natural frequencies and damped frequencies of the poles, nonzero and finite."""
+    if poles.size == 0:
+        return np.zeros(0)
+    with np.errstate(all="ignore"):
+        if discrete:
+            nonzero = poles[poles != 0]
+            logs = np.log(nonzero.astype(complex))
+            values = np.concatenate([np.abs(logs.imag), np.abs(logs)])
+        else:
+            values = np.concatenate([np.abs(poles.imag), np.abs(poles)])
+    values = values[np.isfinite(values) & (values > 0)]
+    return np.unique(values)
+
+
+def examined_frequencies(poles, discrete: bool, extra=(), scale: float = 0.0,
+                         defective=()) -> np.ndarray:
+    """The frequencies at which a certificate compares two responses.
+
+    Continuous time: zero, infinity, a logarithmic grid of :data:`GRID_POINTS` points from a
+    hundredth of the smallest to a hundred times the largest pole magnitude, the damped and
+    natural frequencies of the poles, and ``extra`` (the peak frequencies found by the
+    caller).  Discrete time: a uniform grid on ``[0, pi]``, a logarithmic grid towards 0
+    (slow poles near ``z = 1``), the pole angles and ``|log z|``, and ``extra``.
+
+    Near a numerically defective pole (``defective``: eigenvalue condition number above
+    :data:`DEFECTIVE_CONDITION`, a double integrator in rotated coordinates, say, whose
+    computed eigenvalues split by about ``sqrt(eps) scale``) the computed responses are
+    dominated, to second order, by that split, which the first-order rounding bound does
+    not cover: frequencies whose point lies within ``1000 sqrt(eps) scale`` of such a pole
+    are left out (``scale`` the norm of the state matrices).
+    """
+    poles = np.asarray(poles, dtype=complex).ravel()
+    defective = np.asarray(defective, dtype=complex).ravel()
+    pole_freqs = _pole_frequencies(poles, discrete)
+    if discrete:
+        pole_freqs = pole_freqs[pole_freqs <= math.pi]
+    if pole_freqs.size > MAX_POLE_FREQUENCIES:
+        index = np.unique(np.linspace(0, pole_freqs.size - 1, MAX_POLE_FREQUENCIES).astype(int))
+        pole_freqs = pole_freqs[index]
+    if discrete:
+        low = max(float(pole_freqs.min()) / 100.0, 1e-12) if pole_freqs.size else 1e-6
+        low = min(low, 1e-2)
+        grid = np.concatenate([np.linspace(0.0, math.pi, GRID_POINTS // 2),
+                               np.geomspace(low, math.pi, GRID_POINTS // 2)])
+    else:
+        if pole_freqs.size:
+            low, high = float(pole_freqs.min()) / 100.0, float(pole_freqs.max()) * 100.0
+        else:
+            low, high = 1e-3, 1e3
+        low, high = max(low, 1e-300), min(high, 1e300)
+        grid = np.concatenate([[0.0, math.inf], np.geomspace(low, high, GRID_POINTS)])
+    extra = np.asarray([w for w in extra if w is not None and not math.isnan(w)], dtype=float)
+    if discrete:
+        extra = np.clip(extra, 0.0, math.pi)
+    values = np.concatenate([grid, pole_freqs, extra])
+    values = np.unique(values[~np.isnan(values)])
+    if defective.size:
+        radius = 1e3 * math.sqrt(np.finfo(float).eps) * max(scale, 1.0 if discrete else 0.0)
+        with np.errstate(all="ignore"):
+            points = np.exp(1j * values) if discrete else 1j * values
+            points = np.where(np.isinf(values), np.inf, points)
+            near = np.min(np.abs(points[:, None] - defective[None, :]), axis=1) <= radius
+        values = values[~near]
+    return values
+
+
+#: An eigenvalue whose condition number ``||x|| ||y|| / |y^H x|`` (right and left
+#: eigenvectors) exceeds this counts as numerically defective for
+#: :func:`examined_frequencies`.
+DEFECTIVE_CONDITION = 1e6
+
+
+def defective_poles(A) -> np.ndarray:
+    """The eigenvalues of ``A`` whose condition number exceeds :data:`DEFECTIVE_CONDITION`
+    (J. H. Wilkinson, *The Algebraic Eigenvalue Problem*, 1965, chapter 2: the first-order
+    sensitivity of a simple eigenvalue); all of them when the eigenvector matrix is
+    singular."""
+    if A.shape[0] == 0:
+        return np.zeros(0, dtype=complex)
+    with np.errstate(all="ignore"), warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        values, vectors = np.linalg.eig(A)
+        try:
+            left = np.linalg.inv(vectors)
+        except np.linalg.LinAlgError:
+            return values
+        condition = np.linalg.norm(left, axis=1) * np.linalg.norm(vectors, axis=0)
+    return values[~(condition <= DEFECTIVE_CONDITION)]
+
+
+#: A difference counts as *resolved* (told apart from rounding) at a frequency when it
+#: exceeds the attainable accuracy there by this factor.  The bound is a first-order worst
+#: case; the margin covers its neglected second-order terms and rounding in the way one of
+#: the models was made from the other that the bound does not see (a similarity transform
+#: computed in floating point, say).
+RESOLUTION_MARGIN = 100.0
+
+
+@dataclass(frozen=True)
+class ResolutionVerdict:
+    """How the measured differences compare with the tolerance and the attainable accuracy.
+
+    Attributes
+    ----------
+    verdict : str
+        ``"equivalent"``, ``"not equivalent"`` or ``"undecided"``.
+    basis : str
+        ``"tolerance"`` (every difference within the tolerance), ``"attainable accuracy"``
+        (some above the tolerance, none above the attainable accuracy), ``"resolved"`` (a
+        difference above both the tolerance and ``RESOLUTION_MARGIN`` times the attainable
+        accuracy) or ``"unresolved"`` (above the tolerance and the attainable accuracy, but
+        within the margin), or ``"no frequency"`` when no frequency could be examined.
+    check : FrequencyCheck or None
+        The frequency that decided: the resolved difference largest against its threshold,
+        the unresolved one largest against its attainable accuracy, or, for an equivalent
+        verdict, the largest attainable accuracy among the differences above the tolerance
+        (``"attainable accuracy"``) or the largest difference (``"tolerance"``).
+    """
+
+    verdict: str
+    basis: str
+    check: FrequencyCheck | None
+
+
+#: "Equivalent to the attainable accuracy X" is said only for X at most this, relative to
+#: the reference gain (unless the gain of ``a`` is nowhere above its attainable accuracy:
+#: ``a`` is zero up to rounding and only absolute comparisons mean anything).  Beyond it
+#: the responses are not known to two digits and the neglected second-order terms of the
+#: bound are no longer small: undecided.
+ATTAINABLE_LIMIT = 1e-2
+
+
+def resolution_verdict(checks, threshold: float, margin: float = RESOLUTION_MARGIN,
+                       limit: float = math.inf):
+    """Decide from :class:`FrequencyCheck` records against an absolute tolerance ``threshold``.
+
+    Not equivalent only where a difference is *resolved*: above ``threshold`` and above
+    ``margin`` times the attainable accuracy at the same frequency.  Equivalent when every
+    difference is at most ``threshold``, or at most the attainable accuracy where that is
+    at most ``limit`` (absolute; the caller passes ``ATTAINABLE_LIMIT`` times the reference
+    gain).  Otherwise undecided.
+    """
+    if not checks:
+        return ResolutionVerdict("undecided", "no frequency", None)
+    resolved = [c for c in checks
+                if c.difference > threshold and c.difference > margin * c.attainable]
+    if resolved:
+        worst = max(resolved,
+                    key=lambda c: c.difference / max(threshold, margin * c.attainable, 1e-300))
+        return ResolutionVerdict("not equivalent", "resolved", worst)
+    unresolved = [c for c in checks if c.difference > threshold
+                  and (c.difference > c.attainable or c.attainable > limit)]
+    if unresolved:
+        worst = max(unresolved, key=lambda c: c.difference / max(c.attainable, 1e-300))
+        return ResolutionVerdict("undecided", "unresolved", worst)
+    above = [c for c in checks if c.difference > threshold]
+    if above:
+        return ResolutionVerdict("equivalent", "attainable accuracy",
+                                 max(above, key=lambda c: c.attainable))
+    return ResolutionVerdict("equivalent", "tolerance", max(checks, key=lambda c: c.difference))
