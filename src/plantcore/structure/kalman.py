@@ -698,14 +698,14 @@ def _part4_after_contradiction(p: _Prepared, A_w, Cq_t, n1: int, nc: int, exc):
     superseded, and the modal certificate checks the result as always.  Re-raises ``exc``
     when the quotient cannot decide either.
     """
+    nN = exc.context.get("nN")
+    if nN is None:          # another contradiction (the subspaces do not meet as they must)
+        raise exc
     found = _part4_from_quotient(p, A_w, Cq_t, n1, nc, accept_fragile=True)
     if found is None:
         raise exc
     n = A_w.shape[0]
     n2 = nc - n1
-    nN = exc.context.get("nN")
-    if nN is None:          # another contradiction (the subspaces do not meet as they must)
-        raise exc
     record = RankDecision(
         f"observability of the whole model: {nN} unobservable directions, fewer "
         f"than the {n2} of the controllable part (superseded by the quotient by R ∩ N)",
