@@ -44,7 +44,8 @@ def test_input_arrays_are_copied():
     (dict(A=[[True]], B=[[1.0]], C=[[1.0]]), "A holds booleans"),
     (dict(A=[["a"]], B=[[1.0]], C=[[1.0]]), "A holds entries that are not real numbers"),
     (dict(A=[[1.0], [1.0, 2.0]], B=[[1.0]], C=[[1.0]]), "A is not a rectangular matrix"),
-    (dict(A=[[1.0]], B=[1.0], C=[[1.0]]), "B is a flat list"),
+    (dict(A=[[1.0]], B=[[1.0]], C=[[1.0]], D=[1.0]), "D is a flat list"),
+    (dict(A=np.eye(2), B=[1.0, 2.0, 3.0], C=[[1.0, 1.0]]), "B has 3 rows but A is 2 x 2"),
     (dict(A=[[1.0]], B=[[1.0]], C=[[1.0]], dt=0.0), "dt .sample time. must be positive"),
     (dict(A=[[1.0]], B=[[1.0]], C=[[1.0]], dt=-1.0), "dt .sample time. must be positive"),
     (dict(A=[[1.0]], B=[[1.0]], C=[[1.0]], dt=True), "dt .sample time. must be a positive number"),
@@ -54,6 +55,16 @@ def test_input_arrays_are_copied():
 def test_validation_messages(kwargs, message):
     with pytest.raises(ValueError, match=message):
         pc.StateSpaceModel(**kwargs)
+
+
+def test_flat_B_is_one_column_and_flat_C_one_row():
+    # B has one row and C one column per state, so a flat sequence of n numbers can only
+    # be one input or one output (common practice in general-purpose control libraries).
+    A = [[0.0, 1.0], [-2.0, -3.0]]
+    flat = pc.StateSpaceModel(A, [0.0, 1.0], [1.0, 0.0])
+    full = pc.StateSpaceModel(A, [[0.0], [1.0]], [[1.0, 0.0]])
+    assert flat.B.shape == (2, 1) and flat.C.shape == (1, 2)
+    assert_allclose(flat.transfer_at(1j), full.transfer_at(1j), rtol=0, atol=0)
 
 
 def test_static_gain_model():

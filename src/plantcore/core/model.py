@@ -53,7 +53,7 @@ def _name_list(names, count: int, prefix: str, what: str) -> tuple[str, ...]:
     return names
 
 
-def _real_matrix(value, label: str) -> np.ndarray:
+def _real_matrix(value, label: str, flat: str | None = None) -> np.ndarray:
     """Convert one matrix to a 2-D float array, refusing anything that is not real numbers."""
     if isinstance(value, str):
         raise ValueError(f"{label} must be a matrix of real numbers, got a string.")
@@ -76,9 +76,15 @@ def _real_matrix(value, label: str) -> np.ndarray:
     if arr.ndim == 0:
         arr = arr.reshape(1, 1)
     elif arr.ndim == 1:
-        # A flat list: an empty one is "no entries"; a non-empty one is ambiguous.
+        # A flat list: an empty one is "no entries".  A non-empty one is one column of B or
+        # one row of C (unambiguous: B has a row and C a column per state; common practice
+        # in general-purpose control libraries); elsewhere it is ambiguous.
         if arr.size == 0:
             arr = arr.reshape(0, 0)
+        elif flat == "column":
+            arr = arr.reshape(-1, 1)
+        elif flat == "row":
+            arr = arr.reshape(1, -1)
         else:
             raise ValueError(
                 f"{label} is a flat list of {arr.size} numbers; give it as a matrix "
@@ -98,8 +104,8 @@ def _real_matrix(value, label: str) -> np.ndarray:
 
 def _validated(A, B, C, D):
     A = _real_matrix(A, "A")
-    B = _real_matrix(B, "B")
-    C = _real_matrix(C, "C")
+    B = _real_matrix(B, "B", flat="column")
+    C = _real_matrix(C, "C", flat="row")
     D = None if D is None else _real_matrix(D, "D")
     if A.shape[0] != A.shape[1]:
         raise ValueError(f"A is {A.shape[0]} x {A.shape[1]} but must be square (one row and column per state).")
@@ -149,9 +155,9 @@ class StateSpaceModel:
     A : (n, n) array_like
         State matrix.
     B : (n, m) array_like
-        Input matrix.
+        Input matrix; a flat sequence of ``n`` numbers is one input (one column).
     C : (p, n) array_like
-        Output matrix.
+        Output matrix; a flat sequence of ``n`` numbers is one output (one row).
     D : (p, m) array_like, optional
         Feedthrough matrix; zeros when omitted.
     dt : float or None, optional
