@@ -74,3 +74,22 @@ def test_report_command_prints_the_warning(model_files, tmp_path, capsys):
     stderr = capsys.readouterr().err
     assert "WARNING: the minimal realization removed 1 mode" in stderr
     assert 'class="alert"' in out.read_text(encoding="utf-8")
+
+
+def test_minimal_realization_not_equivalent_exits_1(model_files, tmp_path, capsys,
+                                                     monkeypatch):
+    # Should the written minimal realization ever be certified NOT EQUIVALENT (a defect),
+    # reduce says so on stderr and exits 1 rather than 0.
+    from plantcore.reduction import equivalence
+
+    class NotEquivalent:
+        verdict, equivalent = "not equivalent", False
+
+        def to_text(self, labels=None):
+            return "Verdict:               NOT EQUIVALENT"
+
+    monkeypatch.setattr(equivalence, "check_equivalence", lambda a, b: NotEquivalent())
+    out = tmp_path / "reduced.toml"
+    assert main(["reduce", str(model_files["stable"]), "-o", str(out)]) == 1
+    stderr = capsys.readouterr().err
+    assert "NOT EQUIVALENT to the model" in stderr and out.exists()

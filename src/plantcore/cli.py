@@ -27,7 +27,8 @@ _ACKNOWLEDGE = "--accept-hidden-unstable"
 _REDUCE_EXIT_CODES = (
     "exit codes: 0 the reduced model was written; 1 the minimal realization removed a mode "
     f"that is unstable or on the stability boundary (a WARNING line on stderr names it) and "
-    f"{_ACKNOWLEDGE} was not given, so nothing was written; 2 bad input; 3 numerical "
+    f"{_ACKNOWLEDGE} was not given, so nothing was written, or the written minimal "
+    "realization is NOT EQUIVALENT to the model (a WARNING line says so); 2 bad input; 3 numerical "
     f"breakdown; 4 the model was written but the certificate of the minimal realization is "
     f"UNDECIDED (a difference above the tolerance that rounding may explain). With "
     f"{_ACKNOWLEDGE} the model is written, the WARNING is still printed and the exit code is "
@@ -127,6 +128,10 @@ def _cmd_reduce(args) -> int:
     truncated = args.order is not None or args.max_error is not None
     if certificate.verdict == "undecided" and not truncated:
         return EXIT_UNDECIDED
+    if certificate.verdict == "not equivalent" and not truncated:
+        print("WARNING: the written minimal realization is NOT EQUIVALENT to the model; do not "
+              "use it (exit 1).", file=sys.stderr)
+        return EXIT_NOT_EQUIVALENT
     return EXIT_OK
 
 
