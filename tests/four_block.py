@@ -6,7 +6,10 @@ linear dynamical systems", J. SIAM Control 1(2), 1963); the generator follows th
 project's failure reproducers.
 """
 
+import importlib.util
 import math
+import pathlib
+import sys
 
 import numpy as np
 
@@ -14,6 +17,21 @@ from plantcore.structure.certificate import modal_certificate
 from plantcore.structure.kalman import _prepare
 
 ZERO_BLOCKS = [(0, 1), (0, 3), (2, 0), (2, 1), (2, 3), (3, 0), (3, 1)]
+
+ROOT = pathlib.Path(__file__).resolve().parents[1]
+
+
+def load_known_structure():
+    """``benchmarks/known_structure.py`` (the trust study's generator, which does not
+    import plantcore), loaded once by path."""
+    name = "known_structure"
+    if name in sys.modules:
+        return sys.modules[name]
+    spec = importlib.util.spec_from_file_location(name, ROOT / "benchmarks" / "known_structure.py")
+    module = importlib.util.module_from_spec(spec)
+    sys.modules[name] = module        # its dataclasses look their module up while defined
+    spec.loader.exec_module(module)
+    return module
 
 
 def rand_orth(n, rng):
@@ -45,20 +63,8 @@ def assemble(diag, sizes, m, p, rng):
 
 
 def diag_block(k, rng, discrete=False):
-    if k == 0:
-        return np.zeros((0, 0))
-    G = rng.standard_normal((k, k)) / math.sqrt(k)
-    if discrete:
-        M = 0.6 * G
-        rho = max(abs(np.linalg.eigvals(M)))
-        if rho > 0.95:
-            M *= 0.9 / rho
-        return M
-    M = G - (1.0 + rng.uniform(0.0, 1.0)) * np.eye(k)
-    ev = np.linalg.eigvals(M)
-    if max(ev.real) > -0.05:
-        M -= (max(ev.real) + 0.2) * np.eye(k)
-    return M
+    """A random stable k x k block (the trust study generator's own)."""
+    return load_known_structure()._stable_block(k, rng, discrete)
 
 
 def hide(Az, Bz, Cz, cond, rng):

@@ -282,8 +282,8 @@ def test_defective_eigenvalue_of_multiplicity_19_is_one_cluster_left_undecided()
     # The computed copies scatter over rings of radii 2e-3 and 3e-2 whose centres agree to
     # 3e-10: one cluster of 19.  Its Jordan chains run through the whole model, so no short
     # staircase can count its copies apart from the staircase being checked: undecided.
-    from test_reconcile import _load_known_structure
-    km = _load_known_structure().draw("repeated", (20261203, 10))
+    from four_block import load_known_structure
+    km = load_known_structure().draw("repeated", (20261203, 10))
     assert tuple(km.sizes) == (6, 3, 3, 7) and km.n == 19
     _, cert = certificate_of(km.A, km.B, km.C)
     assert cert.multiplicities.tolist() == [19]

@@ -341,8 +341,8 @@ def test_whole_model_contradiction_falls_back_to_the_quotient():
     # That contradiction proves the whole-model staircase kept noise: the quotient by
     # R ∩ N decides, the contradicting count stays in the record as superseded, and the
     # answer is returned (flagged, as the certificate disagrees) instead of refused.
-    import test_reconcile
-    km = test_reconcile._load_known_structure().draw("scaled", (20261203, 54))
+    from four_block import load_known_structure
+    km = load_known_structure().draw("scaled", (20261203, 54))
     kd = pc.kalman_decomposition(km.model())
     labels = [d.label for d in kd.decisions if d.superseded]
     assert any("observability of the whole model" in text for text in labels)
@@ -384,8 +384,8 @@ def test_a_decomposition_that_does_not_reproduce_the_model_is_fragile():
     # The same scaled draw: the returned decomposition reproduces the model only to a
     # backward error of about 1 (measured); it is warned about and marked fragile, with
     # the figure in the decision record.
-    import test_reconcile
-    km = test_reconcile._load_known_structure().draw("scaled", (20261203, 204))
+    from four_block import load_known_structure
+    km = load_known_structure().draw("scaled", (20261203, 204))
     with pytest.warns(pc.AccuracyWarning, match="marked fragile"):
         kd = pc.kalman_decomposition(km.model())
     assert kd.residual > 1e-8 and kd.fragile

@@ -17,16 +17,22 @@ Outside checks used here:
 """
 
 import dataclasses
-import importlib.util
 import math
 import pathlib
-import sys
 import warnings
 
 import numpy as np
 import pytest
+from four_block import (
+    ZERO_BLOCKS,
+    assemble,
+    certificate_of,
+    cuts,
+    diag_block,
+    hide,
+    load_known_structure,
+)
 from numpy.testing import assert_allclose
-from four_block import ZERO_BLOCKS, assemble, certificate_of, cuts, diag_block, hide
 
 import plantcore as pc
 from plantcore.core.rank import FRAGILITY_FACTOR, RankDecision
@@ -184,7 +190,7 @@ def test_spectral_decomposition_of_hidden_model(sizes, seed, cond):
     assert np.all(sd.B[bl[2], :] == 0.0) and np.all(sd.B[bl[3], :] == 0.0)
     assert np.all(sd.C[:, bl[1]] == 0.0) and np.all(sd.C[:, bl[3]] == 0.0)
     # and it is a similarity of the (equilibrated) model
-    rel = lambda X, Y: np.linalg.norm(X - Y) / np.linalg.norm(Y)  # noqa: E731
+    rel = lambda X, Y: np.linalg.norm(X - Y) / np.linalg.norm(Y)
     assert rel(sd.T @ sd.A @ sd.T_inv, p.A) <= 1e-10
     # B and C: the zeroed rows (columns) are the hiding's own rounding, about
     # cond(T)^2 eps relative to ||B||: 1e-10 for orthogonal hiding, else the documented
@@ -240,15 +246,7 @@ def test_shared_cluster_is_split_by_its_own_block(C):
 
 # --- a seeded slice of the trust study ---------------------------------------------------
 
-def _load_known_structure():
-    name = "known_structure"
-    if name in sys.modules:
-        return sys.modules[name]
-    spec = importlib.util.spec_from_file_location(name, ROOT / "benchmarks" / "known_structure.py")
-    module = importlib.util.module_from_spec(spec)
-    sys.modules[name] = module        # its dataclasses look their module up while defined
-    spec.loader.exec_module(module)
-    return module
+_load_known_structure = load_known_structure
 
 
 TRUST_SEED = 20260101

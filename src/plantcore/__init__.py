@@ -26,7 +26,7 @@ from plantcore.reduction.discretization import (ContinuousFromSampled, SampledMo
                                                 continuous_from_sampled, discretize)
 from plantcore.reduction.gramian_matrices import (Gramian, controllability_gramian,
                                                   observability_gramian)
-from plantcore.reduction.steady_state_gain import SteadyStateGain, dc_gain
+from plantcore.reduction.steady_state_gain import SteadyStateGain, steady_state_gain
 from plantcore.reports import write_html_report
 from plantcore.structure import (ExactPartSizes, KalmanDecomposition, MinimalRealization, Mode,
                                  PartSizes, StaircaseForm, classify_modes,
@@ -93,7 +93,7 @@ __all__ = [
     "run_demo",
     "transmission_zeros",
     "TransmissionZeros",
-    "dc_gain",
+    "steady_state_gain",
     "SteadyStateGain",
     "controllability_gramian",
     "observability_gramian",

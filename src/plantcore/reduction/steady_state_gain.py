@@ -10,19 +10,17 @@ realization whenever the model has such an eigenvalue.
 from __future__ import annotations
 
 import math
-import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.linalg
 
 from plantcore.core.equilibration import equilibrate
-from plantcore.core.errors import HiddenModeWarning
 from plantcore.core.model import as_model
 from plantcore.core.rank import RankDecision, any_fragile, decide_rank, resolve_tolerance
 from plantcore.structure.minimal import minimal_realization
 
-__all__ = ["SteadyStateGain", "dc_gain"]
+__all__ = ["SteadyStateGain", "steady_state_gain"]
 
 
 @dataclass(frozen=True)
@@ -62,7 +60,7 @@ class SteadyStateGain:
         return any_fragile(self.decisions)
 
 
-def dc_gain(model, *, tol=None) -> SteadyStateGain:
+def steady_state_gain(model, *, tol=None) -> SteadyStateGain:
     """The steady-state gain ``G(0)`` (continuous) or ``G(1)`` (discrete) of every channel.
 
     Parameters
@@ -109,10 +107,10 @@ def dc_gain(model, *, tol=None) -> SteadyStateGain:
     --------
     >>> import numpy as np
     >>> import plantcore as pc
-    >>> g = pc.dc_gain(pc.from_transfer_function([2.0], [1.0, 4.0]))      # 2 / (s + 4)
+    >>> g = pc.steady_state_gain(pc.from_transfer_function([2.0], [1.0, 4.0]))      # 2 / (s + 4)
     >>> float(g.matrix[0, 0])
     0.5
-    >>> float(pc.dc_gain(pc.from_transfer_function([-3.0], [1.0, 2.0, 0.0])).matrix[0, 0])
+    >>> float(pc.steady_state_gain(pc.from_transfer_function([-3.0], [1.0, 2.0, 0.0])).matrix[0, 0])
     -inf
     """
     model = as_model(model)
@@ -131,10 +129,8 @@ def dc_gain(model, *, tol=None) -> SteadyStateGain:
         return SteadyStateGain(np.array(gain, dtype=float), np.zeros((p, m), dtype=int), 0,
                                "as_given", tuple(decisions))
 
-    with warnings.catch_warnings():
-        # a removed unstable mode matters for control, not for the steady-state gain
-        warnings.simplefilter("ignore", HiddenModeWarning)
-        minimal = minimal_realization(model, tol)
+    # (a removed unstable mode is not warned about to plantcore's own callers)
+    minimal = minimal_realization(model, tol)
     decisions.extend(minimal.decisions)
     A, B, C = _equilibrated(minimal.model)
     M = _shifted(A, model.is_discrete)

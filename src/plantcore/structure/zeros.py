@@ -16,14 +16,12 @@ matrix and the number of zeros at infinity.  The same pencil serves continuous t
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.linalg
 
 from plantcore.core.equilibration import equilibrate
-from plantcore.core.errors import HiddenModeWarning
 from plantcore.core.model import as_model
 from plantcore.core.rank import RankDecision, any_fragile, decide_rank, resolve_tolerance
 from plantcore.structure.minimal import minimal_realization
@@ -139,10 +137,8 @@ def transmission_zeros(model, *, tol=None, realization="minimal") -> Transmissio
     model = as_model(model)
     decisions: list[RankDecision] = []
     if realization == "minimal":
-        with warnings.catch_warnings():
-            # a removed unstable mode matters for control, not for the zeros
-            warnings.simplefilter("ignore", HiddenModeWarning)
-            minimal = minimal_realization(model, tol)
+        # (a removed unstable mode is not warned about to plantcore's own callers)
+        minimal = minimal_realization(model, tol)
         decisions.extend(minimal.decisions)
         model = minimal.model
     tol = resolve_tolerance(tol, model.n)
