@@ -11,6 +11,7 @@ from __future__ import annotations
 import argparse
 import sys
 
+from plantcore.commands import COMMAND_MODULES
 from plantcore.core.errors import NumericalBreakdown
 
 __all__ = ["main"]
@@ -327,6 +328,13 @@ def _build_parser() -> argparse.ArgumentParser:
     p.add_argument("--reduced-order", type=int, default=None, dest="reduced_order",
                    help="also measure the error of a balanced truncation to this order")
     p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
+    # --- commands in modules of their own (plantcore.commands) ---
+    import importlib
+
+    for module_name in COMMAND_MODULES:
+        handler = importlib.import_module(f"plantcore.commands.{module_name}").register(sub)
+        if handler is not None:
+            COMMANDS[module_name] = handler
     return parser
 
 
