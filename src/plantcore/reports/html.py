@@ -577,7 +577,7 @@ def _check_output(path, protected) -> None:
 
 
 def write_html_report(model, path, *, tol=None, order=None, max_error=None, source=None,
-                      inputs=(), progress=None):
+                      inputs=(), progress=None, overwrite: bool = True):
     """Write the HTML report of a model to ``path`` (atomically).
 
     Parameters
@@ -598,6 +598,9 @@ def write_html_report(model, path, *, tol=None, order=None, max_error=None, sour
         Further files that must not be overwritten.
     progress : bool or None, optional
         As for :func:`~plantcore.analysis.report_contents.collect_report`.
+    overwrite : bool, default True
+        False refuses an existing regular file (as :func:`~plantcore.files.atomic_write`);
+        the command line passes its ``--force`` here.
 
     Returns
     -------
@@ -633,4 +636,5 @@ def write_html_report(model, path, *, tol=None, order=None, max_error=None, sour
                                   order=order, max_error=max_error, source=source,
                                   analysis=analysis, progress=progress)
     text = render_html(contents, progress=progress)
-    return WrittenReport(atomic_write_text(path, text, inputs=protected), contents)
+    return WrittenReport(atomic_write_text(path, text, inputs=protected, overwrite=overwrite),
+                         contents)
