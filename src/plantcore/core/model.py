@@ -12,6 +12,21 @@ with real matrices and named states, inputs and outputs.  It is immutable: the a
 private copies marked read-only.  Every public function of plantcore that takes a model
 passes it through :func:`as_model`, which also accepts python-control state-space objects and
 tuples ``(A, B, C)`` / ``(A, B, C, D)`` of array-likes.
+
+Sparse models
+-------------
+``A`` may be a ``scipy.sparse`` matrix or array.  The model then keeps it sparse (a private
+CSR copy whose data are read-only) and ``model.is_sparse`` is True; ``B``, ``C`` and ``D``
+are stored as dense arrays whatever they arrive as, since they have only ``m`` columns or
+``p`` rows.  The rule for the rest of the package:
+
+* ``.A`` of a sparse model is the sparse matrix (never silently densified).
+* :func:`as_model` refuses a sparse model with one line that names the dense size the
+  caller would need (``n x n`` doubles), unless the caller passes ``allow_sparse=True``.
+  Every dense-only function goes through :func:`as_model`, so none of them allocates
+  ``n x n`` arrays for a sparse model behind the user's back; the routines that work on
+  sparse models (:mod:`plantcore.large`) ask for them explicitly.
+* :meth:`StateSpaceModel.to_dense` makes the dense model when the user wants it.
 """
 
 from __future__ import annotations
@@ -20,10 +35,12 @@ import numbers
 from typing import Any
 
 import numpy as np
+import scipy.sparse
 
 from plantcore.core.names import list_problem, name_problem
 
-__all__ = ["StateSpaceModel", "as_model", "from_transfer_function"]
+__all__ = ["StateSpaceModel", "as_model", "dense_size_text", "from_transfer_function", "require_dense",
+           "sparse_model_or_none"]
 
 
 def _name_list(names, count: int, prefix: str, what: str) -> tuple[str, ...]:
@@ -102,11 +119,43 @@ def _real_matrix(value, label: str, flat: str | None = None) -> np.ndarray:
     return arr
 
 
+def _sparse_matrix(value, label: str):
+    """A private CSR copy of a scipy.sparse matrix of finite reals, its arrays read-only."""
+    if value.ndim != 2:
+        raise ValueError(f"{label} must be a 2-D matrix, got a sparse array with {value.ndim} "
+                         "dimensions.")
+    kind = value.dtype.kind
+    if kind == "b":
+        raise ValueError(f"{label} holds booleans; give real numbers (use 0 and 1).")
+    if kind == "c":
+        raise ValueError(f"{label} holds complex numbers; plantcore works with real models.")
+    if kind not in "iuf":
+        raise ValueError(f"{label} holds entries that are not real numbers (dtype {value.dtype}).")
+    out = scipy.sparse.csr_array(value, dtype=float, copy=True)
+    out.sum_duplicates()
+    if not np.all(np.isfinite(out.data)):
+        k = int(np.flatnonzero(~np.isfinite(out.data))[0])
+        row = int(np.searchsorted(out.indptr, k, side="right")) - 1
+        raise ValueError(
+            f"{label} has a non-finite entry ({out.data[k]}) at row {row + 1}, column "
+            f"{int(out.indices[k]) + 1}; every entry must be a finite real number.")
+    for arr in (out.data, out.indices, out.indptr):
+        arr.flags.writeable = False
+    return out
+
+
+def _dense_or_sparse(value, label: str, flat: str | None = None) -> np.ndarray:
+    """B, C and D are stored dense; a sparse one is converted (it has few columns or rows)."""
+    if scipy.sparse.issparse(value):
+        return _real_matrix(_sparse_matrix(value, label).toarray(), label)
+    return _real_matrix(value, label, flat)
+
+
 def _validated(A, B, C, D):
-    A = _real_matrix(A, "A")
-    B = _real_matrix(B, "B", flat="column")
-    C = _real_matrix(C, "C", flat="row")
-    D = None if D is None else _real_matrix(D, "D")
+    A = _sparse_matrix(A, "A") if scipy.sparse.issparse(A) else _real_matrix(A, "A")
+    B = _dense_or_sparse(B, "B", flat="column")
+    C = _dense_or_sparse(C, "C", flat="row")
+    D = None if D is None else _dense_or_sparse(D, "D")
     if A.shape[0] != A.shape[1]:
         raise ValueError(f"A is {A.shape[0]} x {A.shape[1]} but must be square (one row and column per state).")
     n = A.shape[0]
@@ -152,8 +201,10 @@ class StateSpaceModel:
 
     Parameters
     ----------
-    A : (n, n) array_like
-        State matrix.
+    A : (n, n) array_like or scipy.sparse matrix
+        State matrix.  A ``scipy.sparse`` matrix or array is kept sparse (CSR) and makes
+        :attr:`is_sparse` True; see the module notes for what that means for other
+        functions.
     B : (n, m) array_like
         Input matrix; a flat sequence of ``n`` numbers is one input (one column).
     C : (p, n) array_like
@@ -190,7 +241,7 @@ class StateSpaceModel:
 
     def __init__(self, A, B, C, D=None, dt=None, states=None, inputs=None, outputs=None, name=None):
         A, B, C, D = _validated(A, B, C, D)
-        for arr in (A, B, C, D):
+        for arr in (B, C, D) if scipy.sparse.issparse(A) else (A, B, C, D):
             arr.flags.writeable = False
         n, m, p = A.shape[0], B.shape[1], C.shape[0]
         object.__setattr__(self, "_A", A)
@@ -212,7 +263,8 @@ class StateSpaceModel:
         raise AttributeError("StateSpaceModel is immutable; build a new one instead.")
 
     # --- read-only attributes -------------------------------------------------------------
-    A = property(lambda self: self._A, doc="State matrix, (n, n), read-only.")
+    A = property(lambda self: self._A, doc="State matrix, (n, n), read-only; a "
+                 "scipy.sparse CSR array when the model is sparse.")
     B = property(lambda self: self._B, doc="Input matrix, (n, m), read-only.")
     C = property(lambda self: self._C, doc="Output matrix, (p, n), read-only.")
     D = property(lambda self: self._D, doc="Feedthrough matrix, (p, m), read-only.")
@@ -242,6 +294,27 @@ class StateSpaceModel:
         """True for a discrete-time model."""
         return self._dt is not None
 
+    @property
+    def is_sparse(self) -> bool:
+        """True when ``A`` is held as a scipy.sparse matrix (see the module notes)."""
+        return scipy.sparse.issparse(self._A)
+
+    def to_dense(self) -> StateSpaceModel:
+        """The same model with a dense ``A`` (itself when it is dense already).
+
+        This allocates ``n x n`` doubles (:func:`dense_size_text` says how much); it is the
+        explicit way to hand a sparse model to the dense routines.
+        """
+        if not self.is_sparse:
+            return self
+        return self.replace(A=self._A.toarray())
+
+    def to_sparse(self) -> StateSpaceModel:
+        """The same model with ``A`` held sparse (itself when it is sparse already)."""
+        if self.is_sparse:
+            return self
+        return self.replace(A=scipy.sparse.csr_array(self._A))
+
     def replace(self, **changes) -> "StateSpaceModel":
         """A copy with some fields changed (``A``, ``B``, ``C``, ``D``, ``dt``, names).
 
@@ -252,12 +325,13 @@ class StateSpaceModel:
                       states=self._states, inputs=self._inputs, outputs=self._outputs,
                       name=self._name)
         fields.update(changes)
-        n_new = np.shape(fields["A"])[0] if np.ndim(fields["A"]) == 2 else None
+        shape_a, shape_b, shape_c = (_shape(fields[key]) for key in "ABC")
+        n_new = shape_a[0] if len(shape_a) == 2 else None
         if "states" not in changes and n_new != self.n:
             fields["states"] = None
-        if "inputs" not in changes and np.ndim(fields["B"]) == 2 and np.shape(fields["B"])[1] != self.n_inputs:
+        if "inputs" not in changes and len(shape_b) == 2 and shape_b[1] != self.n_inputs:
             fields["inputs"] = None
-        if "outputs" not in changes and np.ndim(fields["C"]) == 2 and np.shape(fields["C"])[0] != self.n_outputs:
+        if "outputs" not in changes and len(shape_c) == 2 and shape_c[0] != self.n_outputs:
             fields["outputs"] = None
         return StateSpaceModel(**fields)
 
@@ -266,11 +340,15 @@ class StateSpaceModel:
 
         ``point`` is ``s`` in continuous time and ``z`` in discrete time.  Returns a complex
         ``(p, m)`` array; raises ``ValueError`` when the point is an eigenvalue of ``A``.
+        A sparse model is evaluated with one sparse LU factorization of ``point I - A``
+        (scipy.sparse.linalg.splu), never a dense ``n x n`` array.
         """
         s = complex(point)
         n = self.n
         if n == 0:
             return self._D.astype(complex)
+        if self.is_sparse:
+            return self._sparse_transfer_at(s, point)
         M = s * np.eye(n) - self._A
         try:
             X = np.linalg.solve(M, self._B.astype(complex))
@@ -278,10 +356,27 @@ class StateSpaceModel:
             raise ValueError(f"the transfer matrix is not defined at {point}: it is an eigenvalue of A.") from None
         return self._C @ X + self._D
 
+    def _sparse_transfer_at(self, s: complex, point) -> np.ndarray:
+        import warnings
+
+        import scipy.sparse.linalg
+
+        identity = scipy.sparse.identity(self.n, dtype=complex, format="csc")
+        M = (s * identity - self._A.astype(complex)).tocsc()
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("error", scipy.sparse.linalg.MatrixRankWarning)
+                X = scipy.sparse.linalg.splu(M).solve(self._B.astype(complex))
+        except (RuntimeError, scipy.sparse.linalg.MatrixRankWarning):
+            raise ValueError(f"the transfer matrix is not defined at {point}: it is an "
+                             "eigenvalue of A.") from None
+        return self._C @ X + self._D
+
     def to_control(self):
-        """Convert to a ``control.StateSpace`` object (python-control)."""
+        """Convert to a ``control.StateSpace`` object (python-control); dense models only."""
         import control
 
+        require_dense(self, "to_control()")
         dt = 0 if self._dt is None else self._dt
         kwargs = {}
         if self.n or self.n_inputs or self.n_outputs:
@@ -300,8 +395,9 @@ class StateSpaceModel:
     def __repr__(self) -> str:
         domain = "continuous time" if self._dt is None else f"discrete time, dt={self._dt:g}"
         label = f" {self._name!r}" if self._name else ""
+        sparse = f", sparse A with {self._A.nnz} nonzeros" if self.is_sparse else ""
         return (f"<StateSpaceModel{label}: {self.n} states, {self.n_inputs} inputs, "
-                f"{self.n_outputs} outputs, {domain}>")
+                f"{self.n_outputs} outputs, {domain}{sparse}>")
 
     def __reduce__(self):
         return (_rebuild, (self._A, self._B, self._C, self._D, self._dt, self._states,
@@ -310,6 +406,55 @@ class StateSpaceModel:
 
 def _rebuild(A, B, C, D, dt, states, inputs, outputs, name):
     return StateSpaceModel(A, B, C, D, dt, states, inputs, outputs, name)
+
+
+def _shape(value) -> tuple:
+    if scipy.sparse.issparse(value):
+        return value.shape
+    return np.shape(value)
+
+
+def dense_size_text(n: int) -> str:
+    """How much one dense ``n x n`` array of doubles takes, e.g. ``"800 MB"``."""
+    size = 8.0 * n * n
+    for unit in ("bytes", "kB", "MB", "GB", "TB"):
+        if size < 1000.0 or unit == "TB":
+            return f"{size:.0f} {unit}" if unit == "bytes" else f"{size:.3g} {unit}"
+        size /= 1000.0
+    raise AssertionError("unreachable")
+
+
+def require_dense(model: StateSpaceModel, what: str = "this function") -> None:
+    """Refuse a sparse model in a routine that needs dense ``n x n`` arrays (one line).
+
+    Raises
+    ------
+    ValueError
+        Naming the number of states, the size of one dense ``n x n`` array, and the routes
+        that work on sparse models.
+    """
+    if not model.is_sparse:
+        return
+    label = f"model {model.name!r}" if model.name else "the model"
+    raise ValueError(
+        f"{label} is sparse with {model.n:,} states and {what} needs dense {model.n:,} x "
+        f"{model.n:,} arrays ({dense_size_text(model.n)} each); use the sparse routes "
+        "(plantcore.structural_reduction, plantcore.hankel_singular_values, "
+        "plantcore.balanced_truncation, plantcore.low_rank_gramians, transfer_at), or "
+        "model.to_dense() when that size fits in memory.")
+
+
+def sparse_model_or_none(obj: Any) -> StateSpaceModel | None:
+    """The sparse :class:`StateSpaceModel` that ``obj`` describes, or None when it is dense.
+
+    ``obj`` may be a model or a tuple ``(A, B, C[, D])`` whose ``A`` is scipy.sparse; this is
+    the test the dense routines use to hand a sparse model to :mod:`plantcore.large`.
+    """
+    if isinstance(obj, StateSpaceModel):
+        return obj if obj.is_sparse else None
+    if isinstance(obj, (tuple, list)) and len(obj) in (3, 4) and scipy.sparse.issparse(obj[0]):
+        return StateSpaceModel(*obj)
+    return None
 
 
 def _names_from_control(obj, attr: str, count: int):
@@ -332,20 +477,28 @@ def _name_from_control(obj):
     return name
 
 
-def as_model(obj: Any) -> StateSpaceModel:
+def as_model(obj: Any, *, allow_sparse: bool = False) -> StateSpaceModel:
     """Turn any supported model description into a :class:`StateSpaceModel`.
 
     Accepts a :class:`StateSpaceModel` (returned as is), a python-control ``StateSpace`` or
     ``TransferFunction`` object, or a tuple ``(A, B, C)`` / ``(A, B, C, D)`` of array-likes.
+    A sparse model (or a tuple with a scipy.sparse ``A``) is refused with one line naming the
+    dense size it would need, unless ``allow_sparse=True``: the dense routines call this
+    without it, the sparse ones (:mod:`plantcore.large`) with it.
     """
     if isinstance(obj, StateSpaceModel):
+        if not allow_sparse:
+            require_dense(obj)
         return obj
     if isinstance(obj, (tuple, list)):
         if len(obj) not in (3, 4):
             raise ValueError(
                 f"a model tuple must be (A, B, C) or (A, B, C, D); got {len(obj)} items."
             )
-        return StateSpaceModel(*obj)
+        model = StateSpaceModel(*obj)
+        if not allow_sparse:
+            require_dense(model)
+        return model
     mod = type(obj).__module__ or ""
     if mod.startswith("control"):
         import control
