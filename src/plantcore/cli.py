@@ -56,6 +56,46 @@ def _one_line(text: str) -> str:
     return " ".join(str(text).split())
 
 
+_FORCE = "--force"
+_OVERWRITE_POLICY = (
+    "An existing output file is kept: the command refuses it before computing anything "
+    f"unless {_FORCE} is given. Character devices (such as /dev/null) and named pipes are "
+    "written into, never replaced; an input file is never overwritten, even with "
+    f"{_FORCE}.")
+
+
+def _check_output_first(path, *, inputs, force: bool, suffixes, kind: str,
+                        suffix_selects_format: bool = False) -> None:
+    """Refuse a bad output before any computation: its suffix, an existing file, the folder.
+
+    A character device or named pipe (``-o /dev/null``) needs no suffix unless the suffix
+    selects the format (model files); safe_write refuses the other non-regular targets.
+
+    The write itself is made with ``overwrite=force`` as well, so a file that appears while
+    the command computes is not replaced either.
+    """
+    import os
+
+    from plantcore.files import check_output_path
+
+    name = os.fsdecode(os.fspath(path))
+    suffix = os.path.splitext(name)[1].lower()
+    is_stream = os.path.exists(name) and not os.path.isfile(name) and not os.path.isdir(name)
+    if suffix not in suffixes and not (is_stream and not suffix_selects_format):
+        shown = f"the suffix {suffix!r}" if suffix else "no suffix"
+        raise ValueError(f"{name}: output: {shown} is not one of {', '.join(suffixes)} "
+                         f"(the {kind} is chosen by the suffix).")
+    check_output_path(name, inputs=inputs, overwrite=True)  # inputs, folders, devices
+    if not force and os.path.isfile(name):
+        raise ValueError(f"{name}: output: already exists; plantcore keeps existing files "
+                         f"(give {_FORCE} to replace it, or choose another name).")
+
+
+def _add_force(parser) -> None:
+    parser.add_argument(_FORCE, action="store_true", dest="force",
+                        help="replace an existing output file (never an input file)")
+
+
 # --- subcommands -----------------------------------------------------------------------------
 # Each handler takes the parsed arguments and returns an exit code.  Handlers live here only
 # as thin glue; numerics and formatting belong to the library and report modules.
@@ -78,12 +118,15 @@ def _cmd_inspect(args) -> int:
 
 
 def _cmd_reduce(args) -> int:
-    from plantcore.files import check_output_path, load_model, save_model
+    from plantcore.files import load_model, save_model
+    from plantcore.files.layout import MODEL_FILE_SUFFIXES
     from plantcore.structure.minimal import minimal_realization
     from plantcore.structure.removed_modes import hidden_mode_message
 
+    _check_output_first(args.output, inputs=(args.model,), force=args.force,
+                        suffixes=MODEL_FILE_SUFFIXES, kind="model file format",
+                        suffix_selects_format=True)
     model = load_model(args.model)
-    check_output_path(args.output, inputs=(args.model,))  # refuse before computing
     minimal = minimal_realization(model, tol=args.tol)
     reduced = minimal.model
     print(f"minimal realization: {model.n} -> {minimal.order} states "
@@ -115,7 +158,7 @@ def _cmd_reduce(args) -> int:
             print(f"plantcore reduce: {args.output} was not written; give {_ACKNOWLEDGE} to "
                   "write the reduced model anyway (exit 1).", file=sys.stderr)
             return EXIT_HIDDEN_UNSTABLE
-    save_model(reduced, args.output, inputs=(args.model,))
+    save_model(reduced, args.output, inputs=(args.model,), overwrite=args.force)
     print(f"reduced model written to {args.output}")
     from plantcore.reduction.equivalence import check_equivalence
 
@@ -138,8 +181,8 @@ def _cmd_reduce(args) -> int:
 
 # --- compare ---
 def _cmd_compare(args) -> int:
-    from plantcore.reduction.equivalence import check_equivalence
     from plantcore.files import load_model
+    from plantcore.reduction.equivalence import check_equivalence
 
     first = load_model(args.model_a)
     second = load_model(args.model_b)
@@ -151,13 +194,19 @@ def _cmd_compare(args) -> int:
 
 
 # --- report ---
-def _cmd_report(args) -> int:
-    from plantcore.reports.html import write_html_report
-    from plantcore.files import load_model
+_HTML_SUFFIXES = (".html", ".htm")
 
+
+def _cmd_report(args) -> int:
+    from plantcore.files import load_model
+    from plantcore.reports.html import write_html_report
+
+    _check_output_first(args.output, inputs=(args.model,), force=args.force,
+                        suffixes=_HTML_SUFFIXES, kind="report")
     model = load_model(args.model)
     contents = write_html_report(model, args.output, tol=args.tol, order=args.order,
-                                 max_error=args.max_error, source=args.model).contents
+                                 max_error=args.max_error, source=args.model,
+                                 overwrite=args.force).contents
     red = contents.reduction
     reduced = f", reduced {red.order}" if red is not None else ""
     print(f"report written to {args.output} ({model.n} states, minimal "
@@ -181,9 +230,12 @@ def _cmd_demo(args) -> int:
 
 # --- audit ---
 def _cmd_audit(args) -> int:
-    from plantcore.reports.audit import audit_html, audit_text
     from plantcore.estimation import audit_from_file
+    from plantcore.reports.audit import audit_html, audit_text
 
+    if args.output:
+        _check_output_first(args.output, inputs=(args.jacobians, args.expected),
+                            force=args.force, suffixes=_HTML_SUFFIXES, kind="report")
     audit = audit_from_file(args.jacobians, expected_unobservable=args.expected, tol=args.tol)
     if args.output:  # written before anything is printed: a refused output prints one line only
         from plantcore.files import atomic_write
@@ -191,7 +243,7 @@ def _cmd_audit(args) -> int:
         # the page is rendered only once the output path has passed atomic_write's checks
         atomic_write(args.output,
                      lambda f: f.write(audit_html(audit, source=args.jacobians).encode("utf-8")),
-                     inputs=(args.jacobians, args.expected))
+                     inputs=(args.jacobians, args.expected), overwrite=args.force)
     print(audit_text(audit, source=args.jacobians))
     if args.output:
         print(f"report written to {args.output}")
@@ -200,9 +252,9 @@ def _cmd_audit(args) -> int:
 
 # --- sweep ---
 def _cmd_sweep(args) -> int:
-    from plantcore.sweeps.sweep import sweep
     from plantcore.reports.sweep_folder import check_output_folder, write_sweep_folder
     from plantcore.sweeps.spec import load_sweep_spec
+    from plantcore.sweeps.sweep import sweep
 
     spec = load_sweep_spec(args.spec)
     check_output_folder(args.output)
@@ -255,7 +307,7 @@ def _build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("reduce", help="write a minimal (or balanced-truncated) model",
                        description="Write a minimal (or balanced-truncated) model and print "
                                    "its equivalence certificate.",
-                       epilog=_REDUCE_EXIT_CODES)
+                       epilog=_REDUCE_EXIT_CODES + " " + _OVERWRITE_POLICY)
     p.add_argument("model", help="model file (.toml, .json or .npz)")
     p.add_argument("-o", "--output", required=True, help="file for the reduced model")
     group = p.add_mutually_exclusive_group()
@@ -269,6 +321,7 @@ def _build_parser() -> argparse.ArgumentParser:
                         "mode that is unstable or on the stability boundary (no controller "
                         "designed on the reduced model can stabilize the plant through it); "
                         "the WARNING is still printed and the exit code is 0")
+    _add_force(p)
 
     # --- compare ---
     p = sub.add_parser("compare", help="certify that two models have the same transfer matrix "
@@ -285,7 +338,8 @@ def _build_parser() -> argparse.ArgumentParser:
                    help="also compare in exact rational arithmetic and let that decide "
                         "(small models; file numbers are taken at their exact binary value)")
     # --- report ---
-    p = sub.add_parser("report", help="write a self-contained HTML report with plots")
+    p = sub.add_parser("report", help="write a self-contained HTML report with plots",
+                       epilog=_OVERWRITE_POLICY)
     p.add_argument("model", help="model file (.toml, .json or .npz)")
     p.add_argument("-o", "--output", required=True, help="HTML file to write")
     p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
@@ -295,6 +349,7 @@ def _build_parser() -> argparse.ArgumentParser:
     group.add_argument("--max-error", type=float, default=None, dest="max_error",
                        help="truncate to the lowest order whose error bound is below this "
                             "(default: a tenth of the peak gain)")
+    _add_force(p)
     # --- demo ---
     p = sub.add_parser("demo", help="run inspect, reduce, compare and report on a packaged example")
     p.add_argument("-o", "--output", default=None, metavar="FOLDER",
@@ -304,7 +359,7 @@ def _build_parser() -> argparse.ArgumentParser:
                    help="packaged example to use (default thermal_process; also motion_axis)")
     # --- audit ---
     p = sub.add_parser("audit", help="observability audit of the Jacobians a linearized "
-                                     "estimator used")
+                                     "estimator used", epilog=_OVERWRITE_POLICY)
     p.add_argument("jacobians", metavar="JACOBIANS.npz",
                    help="archive with transition_jacobians (K, n, n), measurement_jacobians "
                         "(K, p, n) and optionally expected_unobservable (n, d), "
@@ -314,6 +369,7 @@ def _build_parser() -> argparse.ArgumentParser:
     p.add_argument("-o", "--output", default=None, metavar="REPORT.html",
                    help="also write a self-contained HTML report with plots")
     p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
+    _add_force(p)
     # --- sweep ---
     p = sub.add_parser("sweep", help="analyze a model family over a grid or random draws of "
                                      "its parameters")
