@@ -112,3 +112,50 @@ def test_help_states_the_policy(capsys):
         main(["reduce", "--help"])
     out = " ".join(capsys.readouterr().out.split())
     assert "An existing output file is kept" in out and "--force" in out
+
+
+def test_sigterm_during_a_command_unwinds_and_exits_143(model_file, tmp_path, capsys,
+                                                        monkeypatch):
+    import signal
+    import time
+
+    import plantcore.files.model_files as model_files
+
+    out = tmp_path / "reduced.toml"
+    original = model_files.atomic_write_text
+
+    def write_then_terminate(path, text, **kwargs):
+        def writer_that_is_killed(f):
+            f.write(text[:10].encode())
+            os.kill(os.getpid(), signal.SIGTERM)  # arrives while the temporary exists
+            time.sleep(5)  # the handler interrupts this
+        return model_files.atomic_write(path, writer_that_is_killed, **kwargs)
+
+    monkeypatch.setattr(model_files, "atomic_write_text", write_then_terminate)
+    with pytest.raises(SystemExit) as stop:
+        main(["reduce", str(model_file), "-o", str(out)])
+    assert stop.value.code == 143
+    assert "terminated" in capsys.readouterr().err
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["tank.toml"]  # no temporary left
+    assert signal.getsignal(signal.SIGTERM) is signal.SIG_DFL
+    monkeypatch.setattr(model_files, "atomic_write_text", original)
+
+
+def test_an_interrupted_demo_leaves_no_partial_folder(tmp_path, monkeypatch):
+    import plantcore.demo as demo
+    import plantcore.files as files
+
+    calls = []
+
+    def fail_on_second(*args, **kwargs):
+        calls.append(args[0])
+        if len(calls) == 2:
+            raise SystemExit(143)
+        return original(*args, **kwargs)
+
+    original = files.atomic_write_text
+    monkeypatch.setattr(files, "atomic_write_text", fail_on_second)  # the demo imports it late
+    folder = tmp_path / "demo_out"
+    with pytest.raises(SystemExit):
+        demo.run_demo(folder, echo=None)
+    assert len(calls) == 2 and not folder.exists()

@@ -22,6 +22,7 @@ EXIT_HIDDEN_UNSTABLE = 1   # reduce: a removed mode is not stable and was not ac
 EXIT_BAD_INPUT = 2
 EXIT_INTERNAL = 3
 EXIT_UNDECIDED = 4         # compare, reduce: undecided at the attainable accuracy
+EXIT_TERMINATED = 143      # SIGTERM (128 + 15), after temporaries and partial folders are removed
 
 _ACKNOWLEDGE = "--accept-hidden-unstable"
 
@@ -405,8 +406,15 @@ def main(argv=None) -> int:
     if not args.command:
         parser.print_help(sys.stderr)
         return EXIT_BAD_INPUT
+    from plantcore.files.safe_write import cleanup_on_terminate
+
     try:
-        return COMMANDS[args.command](args)
+        with cleanup_on_terminate():  # SIGTERM unwinds like Ctrl-C: temporaries are removed
+            return COMMANDS[args.command](args)
+    except SystemExit as exc:
+        if exc.code == EXIT_TERMINATED:
+            print("plantcore: terminated", file=sys.stderr)
+        raise
     except BrokenPipeError:
         # The reader of our output went away (e.g. piped into `head`): not an error of ours.
         import os

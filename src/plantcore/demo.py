@@ -221,8 +221,13 @@ def run_demo(folder=None, *, example: str = "thermal_process", tol=None, echo=pr
                 written[name] = save_model(models[name], path / name, inputs=(source,))
             elif name in texts:
                 written[name] = atomic_write_text(path / name, texts[name], inputs=(source,))
-    except BaseException:
-        if created and not written:
+    except BaseException:  # a failure, Ctrl-C or SIGTERM: leave no half-written demo folder
+        for done in written.values():
+            try:
+                os.remove(done)
+            except OSError:
+                pass
+        if created:
             try:
                 path.rmdir()
             except OSError:
