@@ -119,7 +119,7 @@ def test_sigterm_during_a_command_unwinds_and_exits_143(model_file, tmp_path, ca
     import signal
     import time
 
-    import plantcore.files.model_files as model_files
+    from plantcore.files import model_files
 
     out = tmp_path / "reduced.toml"
     original = model_files.atomic_write_text
@@ -142,8 +142,7 @@ def test_sigterm_during_a_command_unwinds_and_exits_143(model_file, tmp_path, ca
 
 
 def test_an_interrupted_demo_leaves_no_partial_folder(tmp_path, monkeypatch):
-    import plantcore.demo as demo
-    import plantcore.files as files
+    from plantcore import demo, files
 
     calls = []
 
