@@ -79,6 +79,13 @@ from plantcore.files.layout import (
 from plantcore.files.npz_format import _fields_from_npz, _npz_writer
 from plantcore.files.safe_read import open_input, read_capped
 from plantcore.files.safe_write import atomic_write, atomic_write_text
+from plantcore.files.sparse_files import (
+    MAX_SPARSE_FILE_BYTES,
+    is_sparse_manifest,
+    load_sparse_manifest,
+    save_sparse_model,
+    sparse_model_from_npz,
+)
 from plantcore.files.toml_format import _parse_toml, _toml_document
 
 __all__ = ["load_model", "save_model"]
@@ -140,6 +147,8 @@ def load_model(path) -> StateSpaceModel:
     real_path = os.fsdecode(os.fspath(path))
     suffix = _suffix(real_path)
     limit = layout.MAX_MODEL_FILE_BYTES
+    if suffix == ".npz":  # a sparse archive may be larger (plantcore.files.sparse_files)
+        limit = max(limit, MAX_SPARSE_FILE_BYTES)
     handle = open_input(real_path, display, "a model file", limit=limit,
                         limit_name="plantcore.files.MAX_MODEL_FILE_BYTES")
     with handle:
@@ -149,11 +158,17 @@ def load_model(path) -> StateSpaceModel:
                                                   "in .toml, .json or .npz.")
         try:
             if suffix == ".npz":
+                sparse = sparse_model_from_npz(handle, display)
+                if sparse is not None:
+                    return sparse
+                _check_dense_size(handle, display)
                 fields = _fields_from_npz(handle, display)
             else:
                 data = read_capped(handle, display, "model files", limit=limit)
                 text = _decode_text(data, display)
                 doc = _parse_toml(text, display) if suffix == ".toml" else _parse_json(text, display)
+                if suffix == ".toml" and is_sparse_manifest(doc):
+                    return load_sparse_manifest(doc, real_path, display)
                 fields = _fields_from_document(doc, display)
         except ModelFileError:
             raise
@@ -169,6 +184,16 @@ def load_model(path) -> StateSpaceModel:
                                                   f"({type(exc).__name__}: "
                                                   f"{' '.join(str(exc).split())}).") from None
     return _model_from_fields(fields, display)
+
+
+def _check_dense_size(handle, display) -> None:
+    """A dense ``.npz`` keeps the model-file cap (the sparse one was opened with a larger)."""
+    size = os.fstat(handle.fileno()).st_size
+    limit = layout.MAX_MODEL_FILE_BYTES
+    if size > limit:
+        raise ModelFileError(display, "file", f"has {size} bytes, more than the limit of {limit} "
+                                              "bytes for a model file "
+                                              "(plantcore.files.MAX_MODEL_FILE_BYTES).")
 
 
 def _check_savable(model: StateSpaceModel, path) -> None:
@@ -230,11 +255,14 @@ def save_model(model, path, *, inputs=(), overwrite: bool = True) -> Path:
     ...     assert np.array_equal(back.A, model.A) and back.states == model.states
     ...     assert back.dt == model.dt and back.name == "tank"
     """
-    model = as_model(model)
+    model = as_model(model, allow_sparse=True)
     if not isinstance(path, (str, os.PathLike)):
         raise TypeError(f"path must be a file name (str or os.PathLike), got {type(path).__name__}.")
     display = _display_path(path)
     suffix = _suffix(os.fsdecode(os.fspath(path)))
+    if model.is_sparse:  # .npz archive or .toml manifest (plantcore.files.sparse_files)
+        _check_savable(model, display)
+        return save_sparse_model(model, path, inputs=inputs, overwrite=overwrite)
     if suffix not in MODEL_FILE_SUFFIXES:
         shown = f"{suffix!r}" if suffix else "no suffix"
         raise ModelFileError(display, "file", f"unknown file type ({shown}); model files end in "
