@@ -33,11 +33,13 @@ from scipy.linalg import lapack
 
 from plantcore.core.errors import AccuracyWarning, NumericalBreakdown
 from plantcore.core.model import StateSpaceModel, as_model
-from plantcore.reduction.gramians import _cholesky_factor, _fmt
+from plantcore.reduction.gramians import _fmt, _schur_factors
+from plantcore.structure.certificate import _Schur
 from plantcore.structure.kalman import _prepare
 from plantcore.structure.modes import _stability, _stability_data
+from plantcore.structure.pbh_measures import schur_from_form
 
-__all__ = ["EQUAL_HSV_RTOL", "hankel_singular_values", "ReducedModel", "balanced_truncation", "truncation_error"]
+__all__ = ["EQUAL_HSV_RTOL", "ReducedModel", "balanced_truncation", "hankel_singular_values", "truncation_error"]
 
 
 _EPS = np.finfo(float).eps
@@ -71,21 +73,30 @@ class _Split:
     Bu: np.ndarray
     Cu: np.ndarray
     decoupling_norm: float
+    schur: object = None      # real Schur form of As (A_s = Q T Q^T), computed once
 
 
-def _split(model: StateSpaceModel) -> _Split:
+def _split(model: StateSpaceModel, p=None, schur=None) -> _Split:
     """Additive decomposition ``G = G_stable + G_unstable`` (internal).
 
-    Works on the equilibrated model (an exact power-of-two similarity).  Ordered real Schur
-    form puts the stable eigenvalues first, ``A -> [[T11, T12], [0, T22]]``; the Sylvester
-    equation ``T11 X - X T22 = -T12`` (LAPACK ``trsyl``, the Bartels-Stewart method on
-    quasi-triangular matrices) then decouples the two blocks with the similarity
-    ``[[I, X], [0, I]]``.  Refuses modes on the stability boundary.
+    Works on the equilibrated model (an exact power-of-two similarity; ``p``, its prepared
+    form, may be handed in).  One real Schur form of ``A`` (``schur``, computed here when
+    not handed in) gives the eigenvalues, the boundary test and, reordered by LAPACK
+    ``trsen`` with the stable eigenvalues first (``A -> [[T11, T12], [0, T22]]``; Bai and
+    Demmel 1993), the split: the Sylvester equation ``T11 X - X T22 = -T12`` (LAPACK
+    ``trsyl``, the Bartels-Stewart method on quasi-triangular matrices) decouples the two
+    blocks with the similarity ``[[I, X], [0, I]]``.  The stable part keeps its Schur form
+    (``T11`` with ``Q = I``), so the Gramians need no further factorization.  Refuses modes
+    on the stability boundary.
     """
-    p = _prepare(model, None)
+    p = _prepare(model, None) if p is None else p
     discrete = model.is_discrete
-    delta, values = _stability_data(p)
-    boundary = [lam for lam in values if _stability(complex(lam), delta, discrete)[1]]
+    A, B, C = p.A, p.B, p.C
+    n = A.shape[0]
+    schur = _Schur(A) if schur is None else schur
+    delta, values = _stability_data(p, schur)
+    flags = [_stability(complex(lam), delta, discrete) for lam in values]
+    boundary = [lam for lam, (_, marginal) in zip(values, flags) if marginal]
     if boundary:
         where = "unit circle" if discrete else "imaginary axis"
         raise ValueError(
@@ -93,26 +104,23 @@ def _split(model: StateSpaceModel) -> _Split:
             f"{delta:.2g}); balanced truncation and Hankel singular values need every mode "
             "strictly stable or strictly unstable. Remove or shift that mode first "
             "(for example, treat an integrator separately).")
-    n_stable = int(sum(_stability(complex(lam), delta, discrete)[0] for lam in values))
-    A, B, C = p.A, p.B, p.C
-    n = A.shape[0]
+    stable = np.array([f[0] for f in flags], dtype=bool)
+    n_stable = int(stable.sum())
     if n_stable == n:
         empty = np.zeros((0, 0))
-        return _Split(A, B, C, empty, np.zeros((0, B.shape[1])), np.zeros((C.shape[0], 0)), 0.0)
-    if discrete:
-        limit = (1.0 - delta) ** 2
-
-        def select(re, im):
-            return re * re + im * im < limit
-    else:
-        def select(re, im):
-            return re < -delta
-    T, Zs, sdim = scipy.linalg.schur(A, output="real", sort=select)
-    if sdim != n_stable:
+        return _Split(A, B, C, empty, np.zeros((0, B.shape[1])), np.zeros((C.shape[0], 0)), 0.0,
+                      schur)
+    # the two positions of a 2 x 2 block hold a conjugate pair: select both or neither
+    pairs = np.nonzero(np.diag(schur.T, -1))[0]
+    both = stable[pairs] | stable[pairs + 1]
+    stable[pairs], stable[pairs + 1] = both, both
+    T, Zs, _, _, sdim, _, _, info = lapack.dtrsen(stable.astype(np.int32), schur.T, schur.Q,
+                                                  job="N")
+    if info != 0 or sdim != n_stable:
         raise NumericalBreakdown(
-            f"the ordered Schur form found {sdim} stable modes where {n_stable} were expected; "
-            "some mode lies too close to the stability boundary to be split reliably.",
-            {"sdim": sdim, "expected": n_stable})
+            f"the reordered Schur form found {sdim} stable modes where {n_stable} were "
+            "expected; some mode lies too close to the stability boundary to be split reliably.",
+            {"sdim": sdim, "expected": n_stable, "info": info})
     k = n_stable
     T11, T12, T22 = T[:k, :k], T[:k, k:], T[k:, k:]
     Bz = Zs.T @ B
@@ -143,15 +151,24 @@ def _split(model: StateSpaceModel) -> _Split:
     Bu = Bz[k:, :]
     Cs = Cz[:, :k]
     Cu = Cz[:, :k] @ X + Cz[:, k:]
-    return _Split(T11, Bs, Cs, T22, Bu, Cu, float(np.linalg.norm(X, 2)) if X.size else 0.0)
+    T11 = np.array(T11)
+    return _Split(T11, Bs, Cs, np.array(T22), Bu, Cu,
+                  float(np.linalg.norm(X, 2)) if X.size else 0.0,
+                  schur_from_form(T11, np.eye(k)))
 
 
-def _hsv_and_factors(As, Bs, Cs, discrete):
-    Rc = _cholesky_factor(As, Bs, discrete)
-    Ro = _cholesky_factor(As.T, Cs.T, discrete)
-    if As.shape[0] == 0:
+def _hsv_and_factors(sp: _Split, discrete: bool, *, vectors: bool = True):
+    """Hankel singular values of the stable part and, with ``vectors``, what the
+    square-root method needs: ``(s, R_c, R_o, U, V)`` with ``R_c``, ``R_o`` the Gramian
+    factors in the coordinates of the stable part's Schur form and
+    ``R_o R_c^T = U diag(s) V^T``."""
+    Rc, Ro = _schur_factors(sp.schur, sp.Bs, sp.Cs, discrete)
+    if sp.As.shape[0] == 0:
         return np.zeros(0), Rc, Ro, np.zeros((0, 0)), np.zeros((0, 0))
-    U, s, Vt = scipy.linalg.svd(Ro @ Rc.T)
+    product = Ro @ Rc.T
+    if not vectors:
+        return scipy.linalg.svd(product, compute_uv=False), Rc, Ro, None, None
+    U, s, Vt = scipy.linalg.svd(product)
     return s, Rc, Ro, U, Vt.T
 
 
@@ -207,9 +224,13 @@ def hankel_singular_values(model) -> np.ndarray:
     model = as_model(model)
     if model.n == 0:
         return np.zeros(0)
-    sp = _split(model)
-    s, *_ = _hsv_and_factors(sp.As, sp.Bs, sp.Cs, model.is_discrete)
-    return s
+    return _hankel_values(_split(model), model.is_discrete)
+
+
+def _hankel_values(sp: _Split, discrete: bool) -> np.ndarray:
+    """The Hankel singular values of a split model (internal; :func:`analyze` hands in the
+    split made on its own Schur form)."""
+    return _hsv_and_factors(sp, discrete, vectors=False)[0]
 
 
 @dataclass(frozen=True)
@@ -402,7 +423,7 @@ def balanced_truncation(model, order=None, max_error=None) -> ReducedModel:
     sp = _split(model)
     nu = sp.Au.shape[0]
     ns = sp.As.shape[0]
-    hsv, Rc, Ro, U, V = _hsv_and_factors(sp.As, sp.Bs, sp.Cs, discrete)
+    hsv, Rc, Ro, U, V = _hsv_and_factors(sp, discrete)
     negligible = _NEGLIGIBLE_FACTOR * max(ns, 1) * _EPS * (hsv[0] if hsv.size else 0.0)
     cuts = _groups(hsv)
     r_max = max([r for r in cuts if r == 0 or hsv[r - 1] > negligible], default=0)
@@ -436,12 +457,14 @@ def balanced_truncation(model, order=None, max_error=None) -> ReducedModel:
         r = r_max
     bound = _tail_bound(hsv, r)
     if r:
+        # projections in the coordinates of the stable part's Schur form A_s = Q T_s Q^T
         sig = hsv[:r] ** -0.5
         T = Rc.T @ V[:, :r] * sig[None, :]
         W = Ro.T @ U[:, :r] * sig[None, :]
-        Ar = W.T @ sp.As @ T
-        Br = W.T @ sp.Bs
-        Cr = sp.Cs @ T
+        Q = sp.schur.Q
+        Ar = W.T @ (sp.schur.T @ T)
+        Br = W.T @ (Q.T @ sp.Bs)
+        Cr = (sp.Cs @ Q) @ T
     else:
         Ar = np.zeros((0, 0))
         Br = np.zeros((0, model.n_inputs))

@@ -13,22 +13,24 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.linalg
+from scipy.linalg import lapack
 
 from plantcore.core.errors import NumericalBreakdown
 from plantcore.core.model import as_model
 from plantcore.structure.kalman import _prepare
 from plantcore.structure.modes import _stability, _stability_data
+from plantcore.structure.pbh_measures import _Schur
 
 __all__ = ["GramianFactors", "gramian_factors"]
 
 
-def _hammarling_triangular(S: np.ndarray, B: np.ndarray, discrete: bool) -> np.ndarray:
+def _hammarling(S: np.ndarray, B: np.ndarray, discrete: bool) -> np.ndarray:
     """Upper-triangular ``U`` with ``X = U U^H`` solving the Lyapunov equation for triangular ``S``.
 
     Continuous: ``S X + X S^H + B B^H = 0``; discrete: ``S X S^H - X + B B^H = 0``;
-    ``S`` complex upper triangular and stable.  Column ``k`` of ``U`` (from the last) comes
-    from the partition ``S = [[S1, s], [0, λ]]``, ``U = [[U1, u], [0, ν]]``,
-    ``B = [[B1], [b^H]]`` (Hammarling 1982, section 5 and 6), written with the unit vector
+    ``S`` upper triangular (real or complex) and stable.  Column ``k`` of ``U`` (from the
+    last) comes from the partition ``S = [[S1, s], [0, λ]]``, ``U = [[U1, u], [0, ν]]``,
+    ``B = [[B1], [b^H]]`` (Hammarling 1982, sections 5 and 6), written with the unit vector
     ``e = b / ||b||`` so that no division by a small ``ν`` occurs:
 
     * continuous: ``γ = sqrt(-2 Re λ)``, ``ν = ||b|| / γ``,
@@ -38,13 +40,22 @@ def _hammarling_triangular(S: np.ndarray, B: np.ndarray, discrete: bool) -> np.n
       next ``B1 <- B1 + (γ w - (1 + λ) B1 e) e^H``.
 
     The updated ``B1`` satisfies the reduced equation for ``U1`` exactly (the identity is
-    checked by expanding ``U U^H`` blockwise).
+    checked by expanding ``U U^H`` blockwise).  Each column is one triangular solve with
+    the leading block of ``S``, shifted on a working copy's diagonal and passed to LAPACK
+    ``?trtrs`` as a column slice of that copy (leading dimension ``n``), so nothing of size
+    ``k^2`` is copied: ``O(n^3 / 3)`` operations in all, memory ``O(n^2)``.
     """
     n = S.shape[0]
-    U = np.zeros((n, n), dtype=complex)
-    W = np.array(B, dtype=complex)
+    cplx = np.iscomplexobj(S) or np.iscomplexobj(B)
+    dtype = complex if cplx else float
+    trtrs = lapack.ztrtrs if cplx else lapack.dtrtrs
+    work = np.array(S, dtype=dtype, order="F")
+    diag = work.diagonal().copy()
+    rows = np.arange(n)
+    U = np.zeros((n, n), dtype=dtype, order="F")
+    W = np.array(B, dtype=dtype)
     for k in range(n - 1, -1, -1):
-        lam = S[k, k]
+        lam = diag[k]
         b = W[k, :].conj()
         beta = float(np.linalg.norm(b))
         gamma2 = (1.0 - abs(lam) ** 2) if discrete else -2.0 * lam.real
@@ -55,51 +66,126 @@ def _hammarling_triangular(S: np.ndarray, B: np.ndarray, discrete: bool) -> np.n
         gamma = math.sqrt(gamma2)
         nu = beta / gamma
         U[k, k] = nu
-        if k == 0:
-            break
-        S1 = S[:k, :k]
-        s = S[:k, k]
-        B1 = W[:k, :]
-        if beta == 0.0:
-            W = B1            # u = 0 and B1 is unchanged
-            continue
+        if k == 0 or beta == 0.0:
+            continue            # u = 0 and B1 is unchanged
         e = b / beta
-        g = B1 @ e
+        g = W[:k, :] @ e
+        s = S[:k, k]
+        lead = rows[:k]
         if discrete:
-            M = np.conj(lam) * S1 - np.eye(k)
-            u = -scipy.linalg.solve_triangular(M, gamma * g + np.conj(lam) * nu * s)
-            w = S1 @ u + nu * s
-            W = B1 + np.outer(gamma * w - (1.0 + lam) * g, e.conj())
+            c = np.conj(lam)
+            rhs = gamma * g + c * nu * s
+            if c == 0:
+                u = rhs                                      # (0 S1 - I) u = -rhs
+            else:                                            # (S1 - I / c) u = -rhs / c
+                work[lead, lead] = diag[:k] - 1.0 / c
+                u = _solve(trtrs, work, k, -rhs / c)
+            w = S[:k, :k] @ u + nu * s
+            W[:k, :] += np.outer(gamma * w - (1.0 + lam) * g, e.conj())
         else:
-            M = S1 + np.conj(lam) * np.eye(k)
-            u = -scipy.linalg.solve_triangular(M, gamma * g + nu * s)
-            W = B1 - gamma * np.outer(u, e.conj())
+            work[lead, lead] = diag[:k] + np.conj(lam)
+            u = _solve(trtrs, work, k, -(gamma * g + nu * s))
+            W[:k, :] -= gamma * np.outer(u, e.conj())
         U[:k, k] = u
     return U
 
 
-def _cholesky_factor(A: np.ndarray, B: np.ndarray, discrete: bool) -> np.ndarray:
-    """Real upper-triangular ``R`` with ``R^T R = P``, ``P`` the Gramian of ``(A, B)``.
+def _solve(trtrs, work, k, rhs):
+    """Solve with the leading ``k x k`` upper triangle of ``work`` (a column slice, no copy)."""
+    x, info = trtrs(work[:, :k], rhs[:, None])
+    if info != 0:      # pragma: no cover - a zero pivot: the shift keeps it non-singular
+        raise NumericalBreakdown(f"triangular solve failed in Hammarling's method (info={info}).",
+                                 {"info": info})
+    return x[:, 0]
 
-    Complex Schur form ``A = Z S Z^H``; Hammarling's recursion on ``(S, Z^H B)`` gives
-    ``P = F F^H`` with ``F = Z U``.  Because ``P`` is real, ``P = [Re F, Im F][Re F, Im F]^T``
-    up to rounding, and a QR factorization of ``[Re F, Im F]^T`` gives the real triangular
-    factor.
+
+def _compressed(M: np.ndarray) -> np.ndarray:
+    """``M`` (n x w), or an ``n x n`` matrix with the same ``M M^H`` when ``w > n``."""
+    n, w = M.shape
+    if w <= n:
+        return M
+    r = scipy.linalg.qr(M.conj().T, mode="r")[0][:n, :]
+    return r.conj().T
+
+
+def _realified(L: np.ndarray) -> np.ndarray:
+    """The real upper triangle ``R`` with ``R^T R = L L^H`` (real by assumption): the triangle
+    of a QR factorization of ``L^T``, or of ``[Re L^T; Im L^T]`` for complex ``L``.
+
+    The triangular orientation keeps the product ``R_o R_c^T`` graded (its small part in the
+    trailing rows), which lets the SVD resolve Hankel singular values far below
+    ``eps sigma_1`` when the model is weakly coupled, as the triangular factors of the
+    square-root method do (Laub, Heath, Paige and Ward 1987).
     """
+    M = np.vstack([L.real.T, L.imag.T]) if np.iscomplexobj(L) else L.T
+    return scipy.linalg.qr(M, mode="r", overwrite_a=np.iscomplexobj(L))[0][:L.shape[0], :]
+
+
+def _to_real_schur_basis(schur, U: np.ndarray) -> np.ndarray:
+    """``Q^T Z U`` for the complex form ``A = Z S Z^H`` of the real Schur form ``A = Q T Q^T``.
+
+    ``Q^T Z`` is block diagonal (one 2 x 2 unitary block per complex pair, the rotations of
+    the real-to-complex conversion), so the product costs ``O(n^2)``: only the diagonal and
+    the two neighbouring diagonals of ``Q^T Z`` are formed.
+    """
+    Q, Z = schur.Q, schur.complex[1]
+    diag = np.einsum("ij,ij->j", Q, Z)
+    L = diag[:, None] * U
+    pairs = np.nonzero(np.diag(schur.T, -1))[0]
+    if pairs.size:
+        upper = np.einsum("ij,ij->j", Q[:, pairs], Z[:, pairs + 1])
+        lower = np.einsum("ij,ij->j", Q[:, pairs + 1], Z[:, pairs])
+        L[pairs, :] += upper[:, None] * U[pairs + 1, :]
+        L[pairs + 1, :] += lower[:, None] * U[pairs, :]
+    return L
+
+
+def _schur_factor(schur, X: np.ndarray, discrete: bool, side: str) -> np.ndarray:
+    """A square real factor of one Gramian in the coordinates of a real Schur form.
+
+    With ``A = Q T Q^T`` (``schur``), returns ``R`` (``n x n`` real, upper triangular)
+    with ``Q^T P Q = R^T R`` for side ``"c"`` (``X = B``) and ``Q^T Q_o Q = R^T R``
+    for side ``"o"`` (``X = C``).  One Schur form serves both equations (Bartels and Stewart
+    1972; Hammarling 1982): when ``T`` is triangular (real eigenvalues) Hammarling's
+    recursion runs on ``T`` in real arithmetic; otherwise on the complex form ``S``
+    (``A = Z S Z^H``, obtained from the real form by ``O(n^2)`` rotations), and the complex
+    factor is brought back to a real one by :func:`_to_real_schur_basis` and
+    :func:`_realified`.  The observability equation ``S^H X + X S + (C Z)^H (C Z) = 0`` is
+    the controllability equation of the flipped triangle ``J S^H J`` (``J`` the reversal),
+    so one recursion serves both.
+    """
+    n = schur.T.shape[0]
+    if n == 0:
+        return np.zeros((0, 0))
+    real = not np.any(np.diag(schur.T, -1))
+    S, Z = (schur.T, schur.Q) if real else schur.complex
+    if side == "c":
+        U = _hammarling(S, _compressed(Z.conj().T @ X), discrete)
+    else:
+        flipped = np.conj(S.T[::-1, ::-1])
+        U = _hammarling(flipped, _compressed((X @ Z).conj().T[::-1, :]), discrete)[::-1, :]
+    return _realified(U if real else _to_real_schur_basis(schur, U))
+
+
+def _schur_factors(schur, B: np.ndarray, C: np.ndarray, discrete: bool):
+    """``(R_c, R_o)`` of :func:`_schur_factor` on one Schur form."""
+    return _schur_factor(schur, B, discrete, "c"), _schur_factor(schur, C, discrete, "o")
+
+
+def _upper_factor(R_t: np.ndarray, Q: np.ndarray) -> np.ndarray:
+    """The upper-triangular factor with non-negative diagonal of ``Q R_t^T R_t Q^T``."""
+    R = scipy.linalg.qr(R_t @ Q.T, mode="r")[0]
+    signs = np.where(np.diag(R) < 0, -1.0, 1.0)
+    return signs[:, None] * R
+
+
+def _cholesky_factor(A: np.ndarray, B: np.ndarray, discrete: bool) -> np.ndarray:
+    """Real upper-triangular ``R`` with ``R^T R = P``, ``P`` the Gramian of ``(A, B)``."""
     n = A.shape[0]
     if n == 0:
         return np.zeros((0, 0))
-    S, Z = scipy.linalg.schur(A, output="complex")
-    Bt = Z.conj().T @ B
-    if Bt.shape[1] > n:       # only B B^H matters: compress to n columns first
-        r = scipy.linalg.qr(Bt.conj().T, mode="r")[0][:n, :]
-        Bt = r.conj().T
-    U = _hammarling_triangular(S, Bt, discrete)
-    F = Z @ U
-    G = np.hstack([F.real, F.imag])
-    R = scipy.linalg.qr(G.T, mode="r")[0][:n, :]
-    signs = np.where(np.diag(R) < 0, -1.0, 1.0)
-    return signs[:, None] * R
+    schur = _Schur(A)
+    return _upper_factor(_schur_factor(schur, B, discrete, "c"), schur.Q)
 
 
 @dataclass(frozen=True)
@@ -175,8 +261,11 @@ def gramian_factors(model) -> GramianFactors:
                 f"the Gramians exist only for a stable model, but A has the eigenvalue "
                 f"{_fmt(lam)}; use hankel_singular_values or balanced_truncation, which split "
                 "off the unstable part.")
-    A, B, C = model.A, model.B, model.C
-    return GramianFactors(_cholesky_factor(A, B, discrete), _cholesky_factor(A.T, C.T, discrete))
+    if model.n == 0:
+        return GramianFactors(np.zeros((0, 0)), np.zeros((0, 0)))
+    schur = _Schur(model.A)
+    R_c, R_o = _schur_factors(schur, model.B, model.C, discrete)
+    return GramianFactors(_upper_factor(R_c, schur.Q), _upper_factor(R_o, schur.Q))
 
 
 def _fmt(lam) -> str:

@@ -46,6 +46,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.linalg
 
+from plantcore.structure.certificate import schur_eigenvalues
 from plantcore.structure.kalman import PART_NAMES, _complement, _prepare, kalman_decomposition
 from plantcore.structure.pbh_measures import PBHMeasures
 
@@ -178,17 +179,24 @@ def _clustered_eigenvalues(A_block: np.ndarray, tol: float) -> np.ndarray:
     return _cluster_means(scipy.linalg.eigvals(A_block), tol)
 
 
-def _stability_data(p) -> tuple[float, np.ndarray]:
+def _stability_data(p, schur=None) -> tuple[float, np.ndarray]:
     """Boundary tolerance and clustered eigenvalues of a prepared (equilibrated) model.
 
     Internal; shared with :mod:`plantcore.reduction.balanced` so that the two modules agree on which
-    modes are stable, unstable or on the boundary.
+    modes are stable, unstable or on the boundary.  With ``schur``, a real Schur form of
+    ``p.A`` already computed, the eigenvalues are read from it (in the order of its diagonal
+    positions) and the boundary test measures on it: no further ``O(n^3)`` work.
     """
     nA = float(np.linalg.norm(p.A))
     discrete = p.model.is_discrete
     delta = _boundary_delta(nA, discrete)
-    values = _clustered_eigenvalues(p.A, _CLUSTER_FACTOR * nA)
-    return delta, _snap_to_boundary(p.A, values, delta, nA, discrete)
+    if schur is None:
+        values = _clustered_eigenvalues(p.A, _CLUSTER_FACTOR * nA)
+        measures = None
+    else:
+        values = _cluster_means(schur_eigenvalues(schur.T), _CLUSTER_FACTOR * nA)
+        measures = PBHMeasures(p.A, schur)
+    return delta, _snap_to_boundary(p.A, values, delta, nA, discrete, measures)
 
 _SNAP_RADIUS = 1e-3
 
@@ -239,10 +247,13 @@ def _snap_to_boundary(A, values, delta: float, nA: float, discrete: bool,
         todo.append(i)
         points.append(mu)
     if todo:
+        # sigma_min(A - mu I) = sigma_min(A - conj(mu) I) for real A: one evaluation per pair
         measures = PBHMeasures(A) if measures is None else measures
-        smin = measures.smallest(np.zeros((A.shape[0], 0)), points, "c")
-        for i, mu, value in zip(todo, points, smin):
-            if value <= delta:
+        keys = [_upper(mu) for mu in points]
+        distinct = list(dict.fromkeys(keys))
+        found = dict(zip(distinct, measures.smallest(np.zeros((A.shape[0], 0)), distinct, "c")))
+        for i, mu, key in zip(todo, points, keys):
+            if found[key] <= delta:
                 out[i] = mu
     return out
 

@@ -50,7 +50,7 @@ from threadpoolctl import threadpool_limits
 
 from plantcore.structure.certificate import _Schur
 
-__all__ = ["MAX_STEPS", "PBHMeasures"]
+__all__ = ["MAX_STEPS", "PBHMeasures", "schur_from_form"]
 
 _EPS = np.finfo(float).eps
 
@@ -62,6 +62,22 @@ _RESIDUAL = 1e-8    # stop when beta_k |u_k| <= _RESIDUAL * theta
 _SEED = 20240917      # fixed start vectors: the same answer on every run
 
 
+class _GivenSchur(_Schur):
+    """A :class:`plantcore.structure.certificate._Schur` around a form already computed."""
+
+    def __init__(self, T, Q):
+        self.T, self.Q = T, Q
+        self._complex = None
+        self._pairs = {}
+
+
+def schur_from_form(T, Q) -> _Schur:
+    """The Schur-form object of the measures for ``A = Q T Q^T`` already computed (``T``
+    real quasi-triangular, ``Q`` orthogonal), so that one factorization is shared by the
+    mode table, the boundary test, the distance starts and the Gramians."""
+    return _GivenSchur(T, Q)
+
+
 class PBHMeasures:
     """``sigma_min`` of ``[A - lambda I, X]`` (side ``"c"``) or ``[A - lambda I; X]``
     (side ``"o"``) at any ``lambda``, from one Schur form of ``A`` computed on first use.
@@ -70,11 +86,14 @@ class PBHMeasures:
     ----------
     A : (n, n) ndarray
         Real state matrix (not modified).
+    schur : _Schur, optional
+        A real Schur form of ``A`` already computed (see :func:`schur_from_form`); the
+        measures then cost no further ``O(n^3)`` work beyond its complex form when needed.
     """
 
-    def __init__(self, A):
+    def __init__(self, A, schur=None):
         self._A = A
-        self._schur = None
+        self._schur = schur
         # The Schur form caches its arrangement of X by id(X): every X handed in is kept
         # alive here, so that no later array can take over its id while the cache lives.
         self._held: list = []
