@@ -21,7 +21,7 @@ import pytest
 import sympy
 
 import plantcore as pc
-from plantcore.structure.exact import ExactPartSizes
+from plantcore.structure.exact import ExactPartSizes, exact_transfer_comparison
 
 s = sympy.Symbol("s")
 
@@ -340,3 +340,91 @@ def test_result_is_a_frozen_dataclass():
     assert isinstance(sizes, ExactPartSizes)
     with pytest.raises(dataclasses.FrozenInstanceError):
         sizes.minimal_order = 3
+
+
+# --- exact comparison of transfer matrices by Markov parameters -------------------------------
+
+
+def _padded(A, B, C, rng):
+    """The same transfer matrix with one uncontrollable and one unobservable state added.
+
+    The new first state is never driven (zero row of B, zero coupling from the old states)
+    and the new last state is never seen (zero column of C, no coupling into the old
+    states), so by the canonical structure theorem (Kalman 1963) the transfer matrix is
+    unchanged, exactly.
+    """
+    n = A.shape[0]
+    Ap = np.zeros((n + 2, n + 2))
+    Ap[1:n + 1, 1:n + 1] = A
+    Ap[0, 0] = -0.75
+    Ap[1:n + 1, 0] = rng.standard_normal(n)          # it drives the old states, is not driven
+    Ap[n + 1, n + 1] = -1.25
+    Ap[n + 1, 1:n + 1] = rng.standard_normal(n)      # it is driven by them, is not seen
+    Bp = np.vstack([np.zeros((1, B.shape[1])), B, rng.standard_normal((1, B.shape[1]))])
+    Cp = np.hstack([rng.standard_normal((C.shape[0], 1)), C, np.zeros((C.shape[0], 1))])
+    return Ap, Bp, Cp
+
+
+@pytest.mark.parametrize("n", [3, 8])
+def test_markov_comparison_agrees_with_rational_functions(n):
+    rng = np.random.default_rng(n)
+    A = rng.standard_normal((n, n)) - 2 * np.eye(n)
+    B = rng.standard_normal((n, 2))
+    C = rng.standard_normal((2, n))
+    same = exact_transfer_comparison((A, B, C), _padded(A, B, C, rng))
+    assert same.equal and same.differing_entries == () and same.first_difference is None
+    assert same.compared_markov_parameters == 2 * n + 2
+    # one entry of C changed in its last bit: only the row of that output differs
+    C2 = C.copy()
+    C2[1, 0] = np.nextafter(C2[1, 0], np.inf)
+    changed = exact_transfer_comparison((A, B, C), (A, B, C2))
+    assert not changed.equal and changed.differing_entries == ((1, 0), (1, 1))
+    if n == 3:  # the slow general route (elimination over rational functions) agrees
+        s = sympy.Symbol("s")
+        G1 = pc.exact_transfer_matrix((A, B, C), s)
+        G2 = pc.exact_transfer_matrix((A, B, C2), s)
+        assert [(i, j) for i in range(2) for j in range(2)
+                if sympy.cancel(G1[i, j] - G2[i, j]) != 0] == [(1, 0), (1, 1)]
+
+
+def test_markov_comparison_finds_a_difference_past_the_first_parameters():
+    # 1/(s+1)^2 against a model whose first three Markov parameters (0, 1, -2) agree with it
+    # but whose fourth does not: 1/(s+1)^2 has 3, the other 3 + 1e-6 ... built exactly
+    a = ([[-1, 1], [0, -1]], [[0], [1]], [[1, 0]])
+    b = ([[-1, 1, 0], [0, -1, 1], [0, 0, "-1/2"]], [[0], [1], [0]], [[1, 0, 0]])  # b = a
+    assert exact_transfer_comparison(a, b).equal
+    c = ([[-1, 1, 0], [0, -1, 1], [0, 0, -1]], [[0], [1], [1]], [[1, 0, 0]])
+    # c = a + 1/(s+1)^3 : Markov parameters C A^k B of the extra term are 0, 0, 1, ...
+    result = exact_transfer_comparison(a, c)
+    assert not result.equal and result.first_difference == 2
+
+
+def test_markov_comparison_of_discrete_and_static_models():
+    dt = 0.5
+    a = pc.StateSpaceModel([[0.5]], [[1.0]], [[2.0]], [[1.0]], dt=dt)
+    static = pc.StateSpaceModel(np.zeros((0, 0)), np.zeros((0, 1)), np.zeros((1, 0)), [[1.0]],
+                                dt=dt)
+    result = exact_transfer_comparison(a, static)
+    assert not result.equal and result.first_difference == 0
+    assert exact_transfer_comparison(static, static).equal
+    d_only = exact_transfer_comparison(a, a.replace(D=[[1.5]]))
+    assert not d_only.equal and d_only.first_difference == -1
+
+
+def test_markov_comparison_falls_back_for_symbolic_parameters():
+    k = sympy.Symbol("k", positive=True)
+    a = ([[-k]], [[1]], [[k]])
+    b = ([[-k, 0], [0, -1]], [[1], [0]], [[k, 1]])
+    result = exact_transfer_comparison(a, b)
+    assert result.equal and result.method == "rational functions (sympy)"
+
+
+def test_exact_certificate_of_thirty_states_uses_integer_markov_parameters():
+    rng = np.random.default_rng(30)
+    n = 30
+    A = rng.standard_normal((n, n)) - 3 * np.eye(n)
+    B = rng.standard_normal((n, 2))
+    C = rng.standard_normal((2, n))
+    cert = pc.check_equivalence((A, B, C), _padded(A, B, C, rng), exact=True)
+    assert cert.equivalent and cert.exact_equal
+    assert any("first 62 Markov parameters" in r for r in cert.reasons)

@@ -345,22 +345,14 @@ def _markov_error(a: StateSpaceModel, b: StateSpaceModel):
 
 
 def _exact_comparison(a_obj, b_obj, a: StateSpaceModel, b: StateSpaceModel):
-    """Exact transfer matrices; returns (equal, list of differing (i, j))."""
-    import sympy
-
-    from plantcore.structure.exact import exact_transfer_matrix
+    """Exact comparison of the transfer matrices (Markov parameters in integer arithmetic)."""
+    from plantcore.core.progress import Progress
+    from plantcore.structure.exact import exact_transfer_comparison
 
     source_a = a_obj if isinstance(a_obj, (tuple, list)) else a
     source_b = b_obj if isinstance(b_obj, (tuple, list)) else b
-    variable = sympy.Symbol("z" if a.is_discrete else "s")
-    Ga = exact_transfer_matrix(source_a, variable)
-    Gb = exact_transfer_matrix(source_b, variable)
-    differing = []
-    for i in range(a.n_outputs):
-        for j in range(a.n_inputs):
-            if sympy.cancel(Ga[i, j] - Gb[i, j]) != 0:
-                differing.append((i, j))
-    return not differing, differing
+    with Progress("exact comparison", total=2 * (a.n + b.n)) as progress:
+        return exact_transfer_comparison(source_a, source_b, progress=progress)
 
 
 def _gain_near(model: StateSpaceModel, w: float) -> float:
@@ -653,9 +645,14 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
     exact_equal = None
     criterion = "relative peak error"
     if exact:
-        exact_equal, differing = _exact_comparison(a, b, ma, mb)
+        comparison = _exact_comparison(a, b, ma, mb)
+        exact_equal, differing = comparison.equal, comparison.differing_entries
+        how = (f" ({comparison.method}: D and the first {comparison.compared_markov_parameters} "
+               "Markov parameters, which decide by the Cayley-Hamilton theorem)"
+               if comparison.compared_markov_parameters else f" ({comparison.method})")
         if exact_equal:
-            reasons.append("In exact rational arithmetic the transfer matrices are identical.")
+            reasons.append("In exact rational arithmetic the transfer matrices are identical"
+                           + how + ".")
         else:
             i, j = differing[0]
             reasons.append(
