@@ -3,7 +3,8 @@
 The HTML report (:mod:`plantcore.reports.html`) only renders what this module collects:
 the analysis (reused when the caller has one), the peak gain, the certificate of the minimal
 realization, the balanced truncation with its rule, the certificate of the reduced model,
-and the sampled frequency responses its plot draws.
+the transmission zeros and each mode's distance to the nearest one, and the sampled
+frequency responses its plot draws.
 """
 
 from __future__ import annotations
@@ -16,13 +17,15 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from plantcore.analysis.analyze import analyze
-from plantcore.core.rank import DEFAULT_RELATIVE_TOLERANCE
 from plantcore.core.progress import Progress
+from plantcore.core.rank import DEFAULT_RELATIVE_TOLERANCE
 from plantcore.reduction.balanced import balanced_truncation
 from plantcore.reduction.equivalence import check_equivalence
 from plantcore.reduction.norms import peak_gain as _peak_gain
+from plantcore.structure.zeros import transmission_zeros
 
-__all__ = ["DEFAULT_RELATIVE_ERROR", "ReportContents", "SampledResponse", "collect_report"]
+__all__ = ["DEFAULT_RELATIVE_ERROR", "ModeZeroDistance", "ReportContents", "SampledResponse",
+           "collect_report"]
 
 #: When neither an order nor a largest error is asked for, the report (and ``plantcore
 #: demo``) truncates to the lowest order whose guaranteed error bound is at most this
@@ -98,14 +101,56 @@ class SampledResponse:
 
 def _sampled_responses(analysis, reduction) -> tuple:
     """The frequency responses a report draws: the original sampled coarsely (it may be
-    large), the minimal and the reduced model finely, on grids set by the eigenvalues."""
+    large), the minimal and the reduced model finely, on one grid set by the eigenvalues
+    (the coarse points are a subset of the fine ones)."""
     model = analysis.model
     fine = _frequency_grid(model, analysis.modes, 400)
-    coarse = _frequency_grid(model, analysis.modes, 40 if model.n > 200 else 70)
+    # The original is sampled at every k-th frequency of the fine grid, so the plotted
+    # points of the original lie exactly on the minimal model's curve where they agree.
+    coarse = fine[::10 if model.n > 200 else 6]
     curves = [("original", model, coarse), ("minimal", analysis.minimal.model, fine)]
     if reduction is not None:
         curves.append(("reduced", reduction.model, fine))
     return tuple(SampledResponse(label, m.n, w, _singular_values(m, w)) for label, m, w in curves)
+
+
+@dataclass(frozen=True)
+class ModeZeroDistance:
+    """How close one mode lies to a transmission zero (a near pole-zero cancellation).
+
+    Attributes
+    ----------
+    nearest_zero : complex or None
+        The finite transmission zero nearest to the mode's eigenvalue, or None when the
+        model has no finite zero.
+    distance : float
+        ``|λ - z|`` in the units of the eigenvalue (``inf`` without a finite zero).
+    relative_distance : float
+        ``|λ - z| / max(|λ|, ρ)`` with ``ρ`` the largest eigenvalue modulus, so that a value
+        near zero means the pole is all but cancelled by the zero, whatever the mode's size.
+    """
+
+    nearest_zero: complex | None
+    distance: float
+    relative_distance: float
+
+
+def _zero_distances(modes, zeros) -> tuple:
+    """Per mode, the nearest finite transmission zero (``zeros`` may be None: unknown)."""
+    if zeros is None:
+        return ()
+    z = np.asarray(zeros.finite_zeros, dtype=complex)
+    values = np.array([complex(m.value) for m in modes], dtype=complex)
+    if not z.size:
+        return tuple(ModeZeroDistance(None, math.inf, math.inf) for _ in modes)
+    rho = float(np.max(np.abs(values))) if values.size else 0.0
+    out = []
+    for lam in values:
+        gaps = np.abs(z - lam)
+        k = int(np.argmin(gaps))
+        size = max(abs(lam), rho, np.finfo(float).tiny)
+        out.append(ModeZeroDistance(complex(z[k]), float(gaps[k]), float(gaps[k]) / size))
+    return tuple(out)
 
 
 @dataclass(frozen=True)
@@ -134,6 +179,13 @@ class ReportContents:
         Peak gain of the original model.
     responses : tuple of SampledResponse
         Frequency responses of the original, minimal and reduced models, for the plot.
+    zeros : TransmissionZeros or None
+        The transmission zeros (the invariant zeros of the minimal realization), or None
+        when they could not be computed (``zeros_problem`` says why).
+    mode_zero_distances : tuple of ModeZeroDistance
+        One per mode of ``analysis.modes``, in the same order (empty without ``zeros``).
+    zeros_problem : str
+        Why there are no zeros, or ``""``.
     source : str or None
         The file the model came from, shown in the header.
     created : str
@@ -150,6 +202,9 @@ class ReportContents:
     peak_gain: object
     responses: tuple = field(default=(), repr=False)
     source: str | None = None
+    zeros: object = None
+    mode_zero_distances: tuple = field(default=(), repr=False)
+    zeros_problem: str = ""
     created: str = field(default_factory=lambda: _dt.datetime.now().isoformat(timespec="minutes"))
 
     @property
@@ -210,7 +265,7 @@ def collect_report(model, *, tol=None, order=None, max_error=None, source=None,
     if order is not None and (isinstance(order, bool) or not isinstance(order, (int, np.integer))
                               or order < 0):
         raise ValueError(f"order must be a whole number of states, 0 or more, got {order!r}.")
-    bar = _progress(progress, "report", 6)
+    bar = _progress(progress, "report", 7)
     try:
         if analysis is None:
             bar.step("analysing the model")
@@ -245,8 +300,12 @@ def collect_report(model, *, tol=None, order=None, max_error=None, source=None,
         elif r == 0:
             problem = "the minimal realization has no states; there is nothing to truncate."
         elif gain is None or not math.isfinite(gain.value) or gain.value == 0.0:
-            problem = ("the model has a mode on the stability boundary or no gain, so no "
-                       "relative error bound can be set; give --order to truncate anyway.")
+            problem = ("the model has a mode on the stability boundary (an integrator, say) "
+                       "or no gain, so no relative error bound can be set; balanced truncation "
+                       "needs the boundary modes separated from the model first."
+                       if gain is None or not math.isfinite(gain.value) else
+                       "the model has no gain (its transfer function is zero); there is "
+                       "nothing to truncate.")
         else:
             limit = DEFAULT_RELATIVE_ERROR * gain.value
             rule = (f"the lowest order whose error bound is at most "
@@ -262,10 +321,19 @@ def collect_report(model, *, tol=None, order=None, max_error=None, source=None,
                 reduced_certificate = check_equivalence(model, reduction.model, reference_peak_gain=gain)
             except (ValueError, ArithmeticError):
                 reduced_certificate = None
+        bar.step("transmission zeros")
+        zeros, zeros_problem = None, ""
+        try:   # the minimal realization's invariant zeros are the transmission zeros
+            zeros = transmission_zeros(minimal.model, tol=analysis.tolerance,
+                                       realization="as_given")
+        except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+            zeros_problem = f"the transmission zeros could not be computed: {exc}"
         bar.step("frequency responses")
         responses = _sampled_responses(analysis, reduction)
     finally:
         bar.close()
     return ReportContents(analysis, certificate, certificate_problem, reduction, rule, problem,
                           reduced_certificate, gain, responses,
-                          None if source is None else os.fsdecode(os.fspath(source)))
+                          None if source is None else os.fsdecode(os.fspath(source)),
+                          zeros=zeros, mode_zero_distances=_zero_distances(analysis.modes, zeros),
+                          zeros_problem=zeros_problem)

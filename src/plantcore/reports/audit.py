@@ -19,7 +19,7 @@ import numpy as np
 from plantcore.core.wording import SAFETY_CAUTION, describe_direction
 from plantcore.reports.text import _num
 
-__all__ = ["audit_text", "audit_html"]
+__all__ = ["audit_html", "audit_text"]
 
 
 def _names(audit) -> list:
@@ -76,11 +76,11 @@ def audit_text(audit, *, source=None) -> str:
     scale = "scaled states (x / state_scale)" if audit.state_scale is not None else "given units"
     lines = [
         head,
-        f"horizon {audit.horizon} steps, {audit.n} states, {audit.n_measurements} measurements "
-        f"per step, {scale}",
+        (f"horizon {audit.horizon} steps, {audit.n} states, {audit.n_measurements} measurements "
+        f"per step, {scale}"),
         f"verdict: {_verdict(audit)}",
-        f"rank of the observability matrix: {audit.rank} (the real system allows "
-        f"{audit.expected_rank}); expected directions seen: {audit.spurious_dimension}",
+        (f"rank of the observability matrix: {audit.rank} (the real system allows "
+        f"{audit.expected_rank}); expected directions seen: {audit.spurious_dimension}"),
     ]
     rows = _direction_rows(audit)
     if rows:
@@ -181,8 +181,8 @@ def _plots(audit) -> list:
             label="rank tolerance")
     _dress(ax, audit, "singular value", "Singular values of the observability matrix")
     ax.legend(fontsize=8)
-    out.append(("Singular values of the observability matrix of steps 1..k. Values below the "
-                "dashed line count as zero; the number of values above it is the rank.", _png(fig)))
+    out.append((("Singular values of the observability matrix of steps 1..k. Values below the "
+                "dashed line count as zero; the number of values above it is the rank."), _png(fig)))
 
     d = audit.expected_basis.shape[1]
     if d:
@@ -199,9 +199,9 @@ def _plots(audit) -> list:
         else:
             ax.text(0.5, 0.5, "no information claimed along any expected direction (infinite)",
                     transform=ax.transAxes, ha="center", va="center", fontsize=9)
-        out.append(("Implied standard deviation along each expected unobservable direction from "
+        out.append((("Implied standard deviation along each expected unobservable direction from "
                     "the information of steps 1..k. For a consistent estimator it is infinite "
-                    "(not drawn); a curve that falls marks information that does not exist.",
+                    "(not drawn); a curve that falls marks information that does not exist."),
                     _png(fig)))
 
         fig, ax = _axes(3.0)

@@ -27,7 +27,6 @@ side by side with the shared style sheet.
 
 from __future__ import annotations
 
-import html
 import math
 import os
 from dataclasses import dataclass, field
@@ -35,12 +34,18 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from plantcore.analysis.analyze import Analysis
-from plantcore.analysis.report_contents import (DEFAULT_RELATIVE_ERROR, ReportContents,
-                                                _progress, collect_report)
+from plantcore.analysis.report_contents import (
+    DEFAULT_RELATIVE_ERROR,
+    ReportContents,
+    _progress,
+    collect_report,
+)
 from plantcore.core.version import __version__
-from plantcore.core.wording import SAFETY_CAUTION
+from plantcore.core.wording import SAFETY_CAUTION, counted, shown_eigenvalue, shown_value
 from plantcore.files.safe_write import atomic_write_text
 from plantcore.reports.plots import PART_LABELS, eigenvalue_plot, frequency_plot, hankel_plot
+from plantcore.reports.style import escape, html_fragment, html_number, html_page
+from plantcore.reports.text import decision_method
 from plantcore.structure.removed_modes import hidden_mode_message
 
 __all__ = [
@@ -48,9 +53,9 @@ __all__ = [
     "PART_LABELS",
     "ReportContents",
     "WrittenReport",
+    "analysis_html",
     "collect_report",
     "render_html",
-    "analysis_html",
     "write_html_report",
 ]
 
@@ -68,32 +73,15 @@ _PART_MEANING = {
 # Formatting helpers
 # =============================================================================================
 
-def _e(value) -> str:
-    """HTML-escaped text (quotes too)."""
-    return html.escape(str(value), quote=True)
-
-
-def _num(x, digits: int = 3) -> str:
-    if x is None:
-        return "&ndash;"
-    x = float(x)
-    if math.isnan(x):
-        return "&ndash;"
-    if math.isinf(x):
-        return "&infin;" if x > 0 else "&minus;&infin;"
-    if x == 0:
-        return "0"
-    text = f"{x:.{digits}g}"
-    if "e" in text:
-        mant, exp = text.split("e")
-        mant = mant.replace("-", "&minus;")
-        return f"{mant}&times;10<sup>{int(exp)}</sup>".replace("<sup>-", "<sup>&minus;")
-    return text.replace("-", "&minus;")
+_e = escape
+_num = html_number
 
 
 def _complex(z, digits: int = 4) -> str:
     z = complex(z)
     re, im = z.real, z.imag
+    if im == 0 and re == 0:
+        return "0"
     if im == 0:
         return _num(re, digits)
     sign = "+" if im > 0 else "&minus;"
@@ -107,81 +95,6 @@ def _yes_no(flag: bool) -> str:
 # =============================================================================================
 # HTML
 # =============================================================================================
-
-_CSS = """
-:root { --ink:#1f2328; --muted:#5b5f66; --rule:#d9d4c7; --paper:#fffdf8; --band:#f3efe4;
-        --slate:#2c5d8a; --ochre:#c98a1b; --brick:#a3362c; --stone:#6f6a62;
-        --good:#2f6b3a; --good-bg:#e6f0e2; --warn:#8a4b08; --warn-bg:#fbecd6; }
-* { box-sizing: border-box; }
-body { margin:0; background:var(--paper); color:var(--ink);
-       font: 15px/1.5 "Segoe UI", "DejaVu Sans", "Helvetica Neue", Arial, sans-serif; }
-main { max-width: 62rem; margin: 0 auto; padding: 1.2rem 1.6rem 3rem; }
-header.report-head { border-left: 0.55rem solid var(--slate); background: var(--band);
-       padding: 0.9rem 1.2rem; margin: 0 0 1.2rem; }
-header.report-head h1 { margin: 0 0 0.2rem; font-size: 1.55rem; font-weight: 600; }
-header.report-head p { margin: 0.1rem 0; color: var(--muted); }
-nav.contents { font-size: 0.9rem; margin: 0 0 1.4rem; color: var(--muted); }
-nav.contents a { color: var(--slate); text-decoration: none; margin-right: 0.9rem;
-       white-space: nowrap; }
-section { margin: 0 0 2rem; }
-h2 { font-size: 1.2rem; font-weight: 600; border-bottom: 2px solid var(--rule);
-     padding-bottom: 0.2rem; margin: 0 0 0.7rem; }
-h2 .num { color: var(--slate); margin-right: 0.4rem; }
-p.lead { color: var(--muted); margin-top: 0; }
-table { border-collapse: collapse; width: 100%; font-size: 0.9rem; margin: 0.4rem 0 0.8rem; }
-th, td { text-align: left; padding: 0.28rem 0.55rem; border-bottom: 1px solid var(--rule);
-         vertical-align: top; }
-th { background: var(--band); font-weight: 600; }
-td.n { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
-tbody tr:nth-child(even) td { background: #faf7f0; }
-.tiles { display: grid; grid-template-columns: repeat(auto-fill, minmax(13.5rem, 1fr));
-         gap: 0.7rem; }
-.tile { border: 1px solid var(--rule); border-top: 0.35rem solid var(--stone);
-        padding: 0.55rem 0.75rem; background: #fff; }
-.tile.good { border-top-color: var(--good); }
-.tile.warn { border-top-color: var(--warn); }
-.tile .q { font-size: 0.82rem; color: var(--muted); text-transform: uppercase;
-           letter-spacing: 0.04em; }
-.tile .a { font-size: 1.25rem; font-weight: 600; }
-.tile.good .a { color: var(--good); }
-.tile.warn .a { color: var(--warn); }
-.tile .why { font-size: 0.85rem; color: var(--muted); }
-.stack { display: flex; height: 1.6rem; border: 1px solid var(--rule); margin: 0.3rem 0 0.6rem; }
-.stack span { display: block; height: 100%; color: #fff; font-size: 0.8rem;
-              line-height: 1.6rem; text-align: center; overflow: hidden; }
-.swatch { display: inline-block; width: 0.8rem; height: 0.8rem; margin-right: 0.35rem;
-          vertical-align: -0.05rem; }
-.p1 { background: var(--slate); } .p2 { background: var(--ochre); }
-.p3 { background: var(--brick); } .p4 { background: var(--stone); }
-.bar { display: inline-block; height: 0.6rem; background: var(--slate); vertical-align: middle; }
-.bar.fragile { background: var(--brick); }
-.flag { color: var(--warn); font-weight: 600; }
-.ok { color: var(--good); font-weight: 600; }
-figure { margin: 0.4rem 0 0.8rem; }
-figure img { max-width: 100%; height: auto; border: 1px solid var(--rule); background: #fff; }
-figcaption { font-size: 0.85rem; color: var(--muted); }
-pre { background: var(--band); padding: 0.7rem 0.9rem; overflow-x: auto; font-size: 0.82rem;
-      line-height: 1.4; white-space: pre-wrap; }
-code, pre, .mono { font-family: "DejaVu Sans Mono", Consolas, "Liberation Mono", monospace; }
-ul.names { columns: 2; font-size: 0.88rem; padding-left: 1.1rem; }
-details summary { cursor: pointer; color: var(--slate); }
-div.alert { border: 2px solid var(--brick); background: #fbf1ee; padding: 0.6rem 0.9rem;
-            margin: 0 0 1.2rem; font-weight: 600; color: var(--brick); }
-section#caution { border: 2px solid var(--brick); background: #fbf1ee; padding: 0.8rem 1rem; }
-section#caution h2 { border: none; color: var(--brick); }
-footer { color: var(--muted); font-size: 0.8rem; border-top: 1px solid var(--rule);
-         padding-top: 0.5rem; }
-@media print {
-  body { background: #fff; font-size: 10.5pt; }
-  main { max-width: none; padding: 0; }
-  nav.contents { display: none; }
-  section, figure, table, .tile { break-inside: avoid; }
-  h2 { break-after: avoid; }
-  .tile, header.report-head, .stack span, .bar, .swatch, section#caution {
-      -webkit-print-color-adjust: exact; print-color-adjust: exact; }
-  a { color: inherit; text-decoration: none; }
-}
-"""
 
 _SECTIONS = [
     ("model", "The model"),
@@ -215,16 +128,20 @@ def _names_list(names, what: str) -> str:
     return f'<ul class="names">{items}</ul>'
 
 
-def _table(headers, rows) -> str:
-    """A table with a header row (``headers``: HTML cells' contents) over rendered rows."""
+def _table(headers, rows, *, tall: bool = False) -> str:
+    """A table with a header row (``headers``: HTML cells' contents) over rendered rows, in
+    a box that scrolls sideways (and, when ``tall``, down) rather than widen the page."""
     head = "".join(f"<th>{h}</th>" for h in headers)
-    return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>"
+    box = "table-wrap tall" if tall else "table-wrap"
+    return (f'<div class="{box}"><table><thead><tr>{head}</tr></thead>'
+            f"<tbody>{''.join(rows)}</tbody></table></div>")
 
 
 def _key_value_table(pairs) -> str:
     """A two-column table of (label, value) pairs, labels as row headers."""
-    return ("<table><tbody>" + "".join(f"<tr><th>{a}</th><td>{b}</td></tr>" for a, b in pairs)
-            + "</tbody></table>")
+    return ('<div class="table-wrap"><table><tbody>'
+            + "".join(f"<tr><th>{a}</th><td>{b}</td></tr>" for a, b in pairs)
+            + "</tbody></table></div>")
 
 
 def _model_section(c: ReportContents) -> str:
@@ -241,7 +158,13 @@ def _model_section(c: ReportContents) -> str:
     if c.peak_gain is not None:
         pg = c.peak_gain
         unit = "rad/sample" if m.is_discrete else "rad per time unit"
-        rows.append(("Peak gain", f"{_num(pg.value, 4)} at frequency {_num(pg.frequency, 4)} {unit}"))
+        boundary = [mode for mode in c.analysis.modes if getattr(mode, "marginal", False)
+                    and mode.part == "controllable_observable"]
+        if boundary and math.isfinite(pg.value):
+            rows.append(("Peak gain", ("&infin;: a pole lies on the stability boundary (the "
+                                      f"search stopped at {_num(pg.value, 4)})")))
+        else:
+            rows.append(("Peak gain", f"{_num(pg.value, 4)} at frequency {_num(pg.frequency, 4)} {unit}"))
     table = _key_value_table(rows)
     names = (f"<h3>Inputs</h3>{_names_list(m.inputs, 'inputs')}"
              f"<h3>Outputs</h3>{_names_list(m.outputs, 'outputs')}"
@@ -283,8 +206,8 @@ def _verdict_section(c: ReportContents) -> str:
     cert = c.certificate
     if cert is not None:
         if cert.verdict == "undecided":
-            answer, why = ("undecided", "a difference above the tolerance that rounding may "
-                           "explain; see section 9")
+            answer, why = ("undecided", ("a difference above the tolerance that rounding may "
+                           "explain; see section 9"))
         elif cert.equivalent:
             answer = "yes"
             why = ("same transfer function as the original"
@@ -353,55 +276,173 @@ def _parts_section(c: ReportContents) -> str:
     return _section("part-sizes", f'<div class="stack">{stack}</div>' + table, lead)
 
 
-def _decisions_section(c: ReportContents) -> str:
-    a = c.analysis
-    rows = []
-    for d in a.decisions:
-        width = 0.0 if not math.isfinite(d.margin) else min(100.0, 10.0 * math.log10(max(d.margin, 1.0)))
-        if not math.isfinite(d.margin):
-            width = 100.0
-        bar = f'<span class="bar{" fragile" if d.fragile else ""}" style="width:{width * 0.6:.1f}px"></span>'
-        status = '<span class="flag">fragile</span>' if d.fragile else '<span class="ok">clear</span>'
-        rows.append(
-            f"<tr><td>{_e(d.label)}</td><td class=\"n\">{d.rank} of {d.size}</td>"
-            f"<td class=\"n\">{_num(d.smallest_kept) if d.rank else 'none'}</td>"
-            f"<td class=\"n\">{_num(d.largest_dropped)}</td>"
+def _decision_row(d) -> str:
+    width = 100.0 if not math.isfinite(d.margin) else min(100.0, 10.0 * math.log10(max(d.margin, 1.0)))
+    bar = f'<span class="bar{" fragile" if d.fragile else ""}" style="width:{width * 0.6:.1f}px"></span>'
+    status = '<span class="flag">fragile</span>' if d.fragile else '<span class="ok">clear</span>'
+    if d.window_outcome:
+        status += f"<br><small>{_e(d.window_outcome)}</small>"
+    return (f"<tr><td>{_e(d.label)}</td><td>{_e(decision_method(d))}</td>"
+            f"<td class=\"n\">{d.rank} of {d.size}</td>"
+            f"<td class=\"n\">{_num(shown_value(d.smallest_kept)) if d.rank else 'none'}</td>"
+            f"<td class=\"n\">{_num(shown_value(d.largest_dropped))}</td>"
             f"<td class=\"n\">{_num(d.tolerance)}</td><td class=\"n\">{_num(d.margin)} {bar}</td>"
             f"<td>{status}</td></tr>")
-    table = _table(("Decision", "Rank", "Smallest kept", "Largest dropped", "Tolerance", "Margin",
-                    "Status"), rows)
-    if not rows:
-        table = "<p>The model has no states, so no rank was decided.</p>"
-    lead = ("Every rank was decided from singular values of blocks produced by orthogonal "
-            "transformations. Values are relative to the model's scale. The margin is how far "
-            "the decision lies from the tolerance, as a factor; below 100 the answer depends on "
-            "the tolerance and the decision is marked fragile.")
-    return _section("rank-decisions", table, lead)
+
+
+_DECISION_HEADERS = ("Decision", "Decided by", "Rank", "Smallest kept", "Largest dropped",
+                     "Tolerance", "Margin", "Status")
+
+
+_DECISIONS_LEAD = ("Every rank was decided from singular values of blocks produced by orthogonal "
+                   "transformations (a staircase step), or checked mode by mode (the modal "
+                   "certificate, whose rank counts the modes it proved controllable or observable). "
+                   "Values are relative to the model's scale; values at rounding level are shown as "
+                   "0. The margin is how far the decision lies from the tolerance, as a factor; "
+                   "below 100 the answer depends on the tolerance and the decision is marked fragile.")
+
+
+def _decisions_section(c: ReportContents) -> str:
+    lead = _DECISIONS_LEAD
+    a = c.analysis
+    decisions = list(a.decisions)
+    if not decisions:
+        return _section("rank-decisions",
+                        "<p>The model has no states, so no rank was decided.</p>", lead)
+    if len(decisions) <= FULL_MODE_TABLE_LIMIT:
+        return _section("rank-decisions",
+                        _table(_DECISION_HEADERS, [_decision_row(d) for d in decisions]), lead)
+    closest = sorted(decisions, key=lambda d: (not d.fragile, d.margin))[:ATTENTION_ROWS]
+    body = (f"<p>{len(decisions)} decisions, {sum(d.fragile for d in decisions)} fragile. "
+            f"The {len(closest)} closest to the tolerance:</p>"
+            + _table(_DECISION_HEADERS, [_decision_row(d) for d in closest])
+            + f'<details class="all-decisions"><summary>All {len(decisions)} decisions</summary>'
+            + _table(_DECISION_HEADERS, [_decision_row(d) for d in decisions], tall=True)
+            + "</details>")
+    return _section("rank-decisions", body, lead)
+
+
+#: Up to this many modes the mode table is shown whole; above it the section opens with a
+#: summary and the modes that deserve a look, and the full table is collapsed.
+FULL_MODE_TABLE_LIMIT = 40
+#: How many modes the summary lists (those nearest a cancellation or the boundary first).
+ATTENTION_ROWS = 12
+
+
+def _eigenvalue_scale(model) -> float:
+    """The scale eigenvalues are shown against (``||A||_F``): see ``shown_eigenvalue``."""
+    return float(np.linalg.norm(model.A)) if model.n else 1.0
+
+
+def _stability_cell(mode) -> str:
+    if getattr(mode, "marginal", False):
+        return '<span class="flag">marginal</span>'
+    return "yes" if mode.stable else '<span class="flag">no</span>'
+
+
+def _mode_row(c: ReportContents, k: int, scale: float) -> str:
+    mode = c.analysis.modes[k]
+    part = mode.part
+    idx = list(PART_LABELS).index(part) + 1 if part in PART_LABELS else 0
+    note = '<span class="flag">near cancellation</span>' if mode.narrow else ""
+    value = shown_eigenvalue(mode.value, scale, discrete=c.model.is_discrete)
+    if k < len(c.mode_zero_distances):
+        zd = c.mode_zero_distances[k]
+        if zd.nearest_zero is None:
+            zero_cells = '<td class="n">none</td><td class="n">&ndash;</td>'
+        else:
+            zero = shown_eigenvalue(zd.nearest_zero, scale, discrete=c.model.is_discrete)
+            zero_cells = (f'<td class="n">{_complex(zero)}</td>'
+                          f'<td class="n">{_num(shown_value(zd.relative_distance))}</td>')
+    else:
+        zero_cells = '<td class="n">&ndash;</td><td class="n">&ndash;</td>'
+    return (f'<tr><td class="n">{k + 1}</td><td class="n">{_complex(value)}</td>'
+            f"<td>{_stability_cell(mode)}</td>"
+            f"<td title=\"{_e(PART_LABELS.get(part, part))}\"><span class=\"swatch p{idx}\"></span>"
+            f"{idx}</td>"
+            f'<td class="n">{_num(shown_value(mode.controllability_margin))}</td>'
+            f'<td class="n">{_num(shown_value(mode.observability_margin))}</td>'
+            f"{zero_cells}<td>{note}</td></tr>")
+
+
+_MODE_HEADERS = ("#", "Eigenvalue", "Stable", "Part",
+                 "Controllability margin<sup>a</sup>", "Observability margin<sup>b</sup>",
+                 "Nearest transmission zero", "Relative distance<sup>c</sup>", "Note")
+_MODE_NOTES = ('<p class="lead"><small><sup>a</sup> on the controllable part of the model for a '
+               "controllable mode, on the whole model for an uncontrollable one. "
+               "<sup>b</sup> on the observable part for an observable mode, on the whole model "
+               "otherwise. <sup>c</sup> |&lambda; &minus; z| / max(|&lambda;|, largest "
+               "|&lambda;|).</small></p>")
+
+
+def _attention_order(c: ReportContents) -> list:
+    """Mode indices, those that deserve a look first: not stable, then narrow margins or a
+    zero close by (smallest of the three relative measures first)."""
+    a = c.analysis
+    def key(k):
+        m = a.modes[k]
+        zd = (c.mode_zero_distances[k].relative_distance if k < len(c.mode_zero_distances)
+              else math.inf)
+        return (m.stable, min(m.controllability_margin, m.observability_margin, zd), k)
+    return sorted(range(len(a.modes)), key=key)
+
+
+def _mode_summary(c: ReportContents) -> str:
+    """Counts by part and stability, for a table too long to read first."""
+    a = c.analysis
+    rows = []
+    for i, part in enumerate(PART_LABELS):
+        sel = [m for m in a.modes if m.part == part]
+        if not sel:
+            continue
+        stable = sum(1 for m in sel if m.stable)
+        marginal = sum(1 for m in sel if getattr(m, "marginal", False))
+        rows.append(f'<tr><td><span class="swatch p{i + 1}"></span>{i + 1}. '
+                    f'{_e(PART_LABELS[part])}</td><td class="n">{len(sel)}</td>'
+                    f'<td class="n">{stable}</td><td class="n">{marginal}</td>'
+                    f'<td class="n">{len(sel) - stable - marginal}</td>'
+                    f'<td class="n">{sum(1 for m in sel if m.narrow)}</td></tr>')
+    return _table(("Part", "Modes", "Stable", "Marginal", "Unstable", "Near cancellation"), rows)
+
+
+_MODES_LEAD = ("One row per eigenvalue; the part is the Kalman part of section 3. The margins "
+               "are the smallest singular values of "
+               "[A &minus; &lambda;I, B] and [A &minus; &lambda;I; C] relative to the model's "
+               "scale, the size of the smallest change of the data that would make the mode "
+               "uncontrollable or unobservable. A controllable mode is measured on the "
+               "controllable part of the model (so an uncontrollable copy of the same eigenvalue "
+               "does not hide it), an uncontrollable one on the whole model; likewise for "
+               "observability. The nearest transmission zero and its distance "
+               "|&lambda; &minus; z| / max(|&lambda;|, largest |&lambda;|) show how close each pole "
+               "comes to being cancelled. Values at rounding level are shown as 0.")
 
 
 def _modes_section(c: ReportContents) -> str:
+    lead = _MODES_LEAD
     a = c.analysis
-    rows = []
-    for k, mode in enumerate(a.modes, start=1):
-        stable = "marginal" if getattr(mode, "marginal", False) else _yes_no(mode.stable)
-        note = '<span class="flag">near cancellation</span>' if mode.narrow else ""
-        part = mode.part
-        idx = list(PART_LABELS).index(part) + 1 if part in PART_LABELS else 0
-        rows.append(
-            f"<tr><td class=\"n\">{k}</td><td class=\"n\">{_complex(mode.value)}</td>"
-            f"<td>{stable}</td><td><span class=\"swatch p{idx}\"></span>"
-            f"{_e(PART_LABELS.get(part, part))}</td>"
-            f"<td class=\"n\">{_num(mode.controllability_margin)}</td>"
-            f"<td class=\"n\">{_num(mode.observability_margin)}</td><td>{note}</td></tr>")
-    table = _table(("#", "Eigenvalue", "Stable", "Part", "Controllability margin",
-                    "Observability margin", "Note"), rows)
-    if not rows:
-        table = "<p>The model has no states.</p>"
-    lead = ("One row per eigenvalue. The margins are the smallest singular values of "
-            "[A &minus; &lambda;I, B] and [A &minus; &lambda;I; C], relative to the model's scale: "
-            "the size of the smallest change of the data that would make the mode "
-            "uncontrollable or unobservable.")
-    return _section("modes", table, lead)
+    n_modes = len(a.modes)
+    if not n_modes:
+        return _section("modes", "<p>The model has no states.</p>", lead)
+    scale = _eigenvalue_scale(c.model)
+    if c.zeros is not None:
+        z = c.zeros
+        zeros_line = (f"<p>Transmission zeros: {z.finite_zeros.size} finite, "
+                      f"{z.infinite_zero_count} at infinity; normal rank of the transfer matrix "
+                      f"{z.normal_rank}{' (a rank decision near its tolerance: fragile)' if z.fragile else ''}.</p>")
+    else:
+        zeros_line = f"<p>{_e(c.zeros_problem or 'Transmission zeros not computed.')}</p>"
+    if n_modes <= FULL_MODE_TABLE_LIMIT:
+        rows = [_mode_row(c, k, scale) for k in range(n_modes)]
+        return _section("modes", zeros_line + _table(_MODE_HEADERS, rows) + _MODE_NOTES, lead)
+    first = _attention_order(c)[:ATTENTION_ROWS]
+    summary = (_mode_summary(c) + f"<h3>The {len(first)} modes that deserve a look first</h3>"
+               "<p>Modes that are not stable, then those with the smallest margin or the "
+               "nearest transmission zero.</p>"
+               + _table(_MODE_HEADERS, [_mode_row(c, k, scale) for k in first]))
+    full = (f'<details class="all-modes"><summary>All {n_modes} modes</summary>'
+            + _table(_MODE_HEADERS, [_mode_row(c, k, scale) for k in range(n_modes)], tall=True)
+            + "</details>")
+    return _section("modes", zeros_line + summary + full + _MODE_NOTES, lead)
 
 
 def _figure_html(src_alt, caption: str) -> str:
@@ -419,8 +460,8 @@ def _hankel_section(c: ReportContents, plot) -> str:
         measured = c.reduced_certificate.peak_error if c.reduced_certificate is not None else None
         rows = [
             ("Order chosen by", _e(c.reduction_rule)),
-            ("States", f"{c.model.n} original &rarr; {c.analysis.minimal_order} minimal &rarr; "
-                       f"{red.order} reduced"),
+            ("States", (f"{c.model.n} original &rarr; {c.analysis.minimal_order} minimal &rarr; "
+                       f"{red.order} reduced")),
             ("Error bound (2 &times; sum of the distinct discarded values)", _num(red.error_bound, 4)),
             ("Measured peak error of the reduced model", _num(measured, 4)),
         ]
@@ -466,7 +507,7 @@ def _certificate_section(c: ReportContents) -> str:
     return _section("certificate", "\n".join(parts), lead)
 
 
-def render_html(contents: ReportContents, *, progress=None) -> str:
+def render_html(contents: ReportContents, *, progress=None, fragment: bool = False) -> str:
     """The HTML text of a report.
 
     Parameters
@@ -475,11 +516,15 @@ def render_html(contents: ReportContents, *, progress=None) -> str:
         From :func:`collect_report`.
     progress : bool or None, optional
         As for :func:`collect_report`.
+    fragment : bool, optional
+        False (default): a complete HTML document.  True: one ``<div>`` with a style sheet
+        scoped to it, to embed in a notebook or another page (see
+        :mod:`plantcore.reports.style`).
 
     Returns
     -------
     str
-        A complete HTML document, self-contained (no network addresses, no scripts).
+        Self-contained HTML (no network addresses, no scripts).
     """
     c = contents
     bar = _progress(progress, "report plots", 3)
@@ -494,13 +539,14 @@ def render_html(contents: ReportContents, *, progress=None) -> str:
         bar.close()
     m = c.model
     title = m.name or (os.path.basename(c.source) if c.source else "unnamed model")
-    nav = "".join(f'<a href="#{sid}">{i + 1} {_e(t)}</a>' for i, (sid, t) in enumerate(_SECTIONS))
+    nav = " ".join(f'<a href="#{sid}">{i + 1}&nbsp;{_e(t)}</a>' for i, (sid, t) in enumerate(_SECTIONS))
     body = [
-        f'<header class="report-head"><h1>Model report: {_e(title)}</h1>'
-        f"<p>{m.n} states &middot; {m.n_inputs} inputs &middot; {m.n_outputs} outputs &middot; "
+        (f'<header class="report-head"><h1>Model report: {_e(title)}</h1>'
+        f"<p>{counted(m.n, 'state')} &middot; {counted(m.n_inputs, 'input')} &middot; "
+        f"{counted(m.n_outputs, 'output')} &middot; "
         f"{'discrete' if m.is_discrete else 'continuous'} time</p>"
-        f"<p>Made by plantcore {_e(__version__)} on {_e(c.created)}</p></header>",
-        f'<nav class="contents">{nav}</nav>',
+        f"<p>Made by plantcore {_e(__version__)} on {_e(c.created)}</p></header>"),
+        f'<nav class="contents" aria-label="contents">{nav}</nav>',
         _hidden_alert(c),
         _model_section(c),
         _verdict_section(c),
@@ -511,26 +557,29 @@ def render_html(contents: ReportContents, *, progress=None) -> str:
                  "Where each eigenvalue lies, and which Kalman part it belongs to. Nested "
                  "symbols are repeated eigenvalues that belong to different parts."),
         _section("frequency-response", _figure_html(freq, freq[1]),
-                 "The original and the minimal model must coincide; the reduced model may "
-                 "depart from them by at most the error bound."),
+                 "The original and the minimal model must coincide"
+                 + ("; the reduced model may depart from them by at most the error bound."
+                    if c.reduction is not None else ".")),
         _hankel_section(c, hank),
         _certificate_section(c),
         _section("caution", f"<p>{_e(SAFETY_CAUTION)}</p>"),
         "<footer>This report is self-contained: it loads nothing from any network.</footer>",
     ]
-    return ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
-            "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
-            f"<title>Model report: {_e(title)}</title>\n<style>{_CSS}</style>\n</head>\n"
-            "<body>\n<main>\n" + "\n".join(body) + "\n</main>\n</body>\n</html>\n")
+    text = "\n".join(body)
+    if fragment:
+        return html_fragment(text)
+    return html_page(f"Model report: {title}", text)
 
 
-def analysis_html(analysis) -> str:
+def analysis_html(analysis, *, fragment: bool = False) -> str:
     """HTML report of an :class:`plantcore.analysis.Analysis` (used by ``Analysis.to_html``).
 
-    The reduction follows the default rule (:data:`DEFAULT_RELATIVE_ERROR`).
+    The reduction follows the default rule (:data:`DEFAULT_RELATIVE_ERROR`).  With
+    ``fragment=True`` the report is one embeddable ``<div>`` (see :func:`render_html`).
     """
-    contents = collect_report(analysis.model, tol=analysis.tolerance, analysis=analysis)
-    return render_html(contents)
+    contents = collect_report(analysis.model, tol=analysis.tolerance, analysis=analysis,
+                              progress=False)
+    return render_html(contents, progress=False, fragment=fragment)
 
 
 @dataclass(frozen=True)

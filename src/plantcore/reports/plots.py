@@ -10,8 +10,11 @@ from __future__ import annotations
 
 import base64
 import io
+import math
 
 import numpy as np
+
+from plantcore.core.wording import shown_eigenvalue
 
 __all__ = ["PART_LABELS", "eigenvalue_plot", "frequency_plot", "hankel_plot"]
 
@@ -25,15 +28,15 @@ PART_LABELS = {
 # Our own palette: a slate blue, an ochre, a brick red and a warm grey, distinguishable in
 # print and for the common colour-vision deficiencies; marker shapes repeat the information.
 _PART_STYLE = {
-    "controllable_observable": dict(color="#2c5d8a", marker="o", size=7, filled=True),
-    "controllable_unobservable": dict(color="#c98a1b", marker="s", size=11, filled=False),
-    "uncontrollable_observable": dict(color="#a3362c", marker="^", size=13, filled=False),
-    "uncontrollable_unobservable": dict(color="#6f6a62", marker="D", size=15, filled=False),
+    "controllable_observable": {"color": "#2c5d8a", "marker": "o", "size": 7, "filled": True},
+    "controllable_unobservable": {"color": "#c98a1b", "marker": "s", "size": 11, "filled": False},
+    "uncontrollable_observable": {"color": "#a3362c", "marker": "^", "size": 13, "filled": False},
+    "uncontrollable_unobservable": {"color": "#6f6a62", "marker": "D", "size": 15, "filled": False},
 }
 _MODEL_STYLE = {
-    "original": dict(color="#262626"),
-    "minimal": dict(color="#2c5d8a"),
-    "reduced": dict(color="#c98a1b"),
+    "original": {"color": "#262626"},
+    "minimal": {"color": "#2c5d8a"},
+    "reduced": {"color": "#c98a1b"},
 }
 
 
@@ -62,14 +65,89 @@ def _style_axes(ax) -> None:
     ax.set_axisbelow(True)
 
 
-def eigenvalue_plot(contents) -> tuple[str, str]:
-    """Eigenvalues in the complex plane, marked by Kalman part."""
-    model = contents.model
-    modes = contents.analysis.modes
-    fig = _figure(8.0, 4.4)
-    ax = fig.add_subplot()
-    _style_axes(ax)
-    values = np.array([complex(m.value) for m in modes], dtype=complex)
+def plotted_eigenvalues(model, modes) -> np.ndarray:
+    """The eigenvalues as the map places them: as text and HTML show them
+    (:func:`plantcore.core.wording.shown_eigenvalue`), so a part at rounding level relative
+    to ``||A||_F`` is drawn at exactly 0 (an integrator computed as ``2.7e-17`` sits on the
+    imaginary axis and sets no scale)."""
+    scale = float(np.linalg.norm(model.A)) if model.n else 1.0
+    return np.array([shown_eigenvalue(m.value, scale, discrete=model.is_discrete)
+                     for m in modes], dtype=complex)
+
+
+def _decade_ticks(magnitudes, most: int = 4) -> np.ndarray:
+    """Powers of ten spanning ``magnitudes`` (positive), at most ``most`` of them, evenly
+    strided so labels never crowd."""
+    lo = math.floor(math.log10(float(magnitudes.min())))
+    hi = math.ceil(math.log10(float(magnitudes.max())))
+    stride = max(1, math.ceil((hi - lo + 1) / most))
+    return 10.0 ** np.arange(lo, hi + 1, stride)
+
+
+def _power_label(x, _pos=None) -> str:
+    if x == 0:
+        return "0"
+    k = round(math.log10(abs(x)))
+    if -2 <= k <= 3:
+        text = f"{abs(x):g}"
+    else:
+        text = f"10$^{{{k}}}$"
+    return ("−" if x < 0 else "") + text
+
+
+def _signed_log_axis(axis, coordinates, setter) -> bool:
+    """Put one axis on a signed logarithmic scale when its nonzero values spread over more
+    than a factor 50; ticks at strided powers of ten (both signs) and 0.  Returns whether
+    the scale was changed."""
+    from matplotlib.ticker import FixedLocator, FuncFormatter, NullLocator
+
+    nz = np.abs(coordinates[coordinates != 0])
+    if not nz.size or nz.max() / nz.min() <= 50:
+        return False
+    linthresh = float(nz.min())
+    setter("symlog", linthresh=linthresh, linscale=0.6)
+    ticks = _decade_ticks(nz)
+    signs = []
+    if (coordinates < 0).any():
+        signs.append(-1.0)
+    if (coordinates > 0).any():
+        signs.append(1.0)
+    values = sorted({0.0} | {sg * t for sg in signs for t in ticks})
+    axis.set_major_locator(FixedLocator(values))
+    axis.set_major_formatter(FuncFormatter(_power_label))
+    axis.set_minor_locator(NullLocator())
+    return True
+
+
+def drop_overlapping_labels(fig, ax) -> None:
+    """Remove tick labels that would overlap their neighbours (kept from the outermost
+    inwards on a signed log axis, left to right otherwise), so no label is ever drawn over
+    another whatever the spread of the data."""
+    from matplotlib.ticker import FixedLocator
+
+    renderer = fig.canvas.get_renderer()
+    fig.draw_without_rendering()
+    for axis in (ax.xaxis, ax.yaxis):
+        ticks = [t for t in axis.get_major_ticks() if t.label1.get_visible() and t.label1.get_text()]
+        lo, hi = sorted(axis.get_view_interval())
+        ticks = [t for t in ticks if lo <= t.get_loc() <= hi]
+        if len(ticks) < 2:
+            continue
+        # zero first, then by decreasing magnitude: the ends of the axis and 0 are kept
+        ticks.sort(key=lambda t: (t.get_loc() != 0, -abs(t.get_loc())))
+        kept, boxes = [], []
+        for t in ticks:
+            box = t.label1.get_window_extent(renderer).expanded(1.15, 1.15)
+            if any(box.overlaps(b) for b in boxes):
+                continue
+            kept.append(t.get_loc())
+            boxes.append(box)
+        axis.set_major_locator(FixedLocator(sorted(kept)))
+
+
+def draw_eigenvalue_map(ax, model, modes) -> str:
+    """Draw the eigenvalue map on ``ax``; returns a note on the scales used (may be "")."""
+    values = plotted_eigenvalues(model, modes)
     note = ""
     if model.is_discrete:
         t = np.linspace(0.0, 2.0 * np.pi, 361)
@@ -83,34 +161,50 @@ def eigenvalue_plot(contents) -> tuple[str, str]:
                    label="imaginary axis (stability boundary)")
         ax.set_xlabel("real part (1 / time unit)")
         ax.set_ylabel("imaginary part (rad / time unit)")
-        nz = np.abs(values.real[values.real != 0])
-        if nz.size and nz.max() / nz.min() > 50:
-            ax.set_xscale("symlog", linthresh=float(nz.min()) / 2, linscale=0.5)
-            note = " The real axis is on a symmetric logarithmic scale so that slow and fast modes both show."
-        ni = np.abs(values.imag[values.imag != 0])
-        if ni.size and ni.max() / ni.min() > 50:
-            ax.set_yscale("symlog", linthresh=float(ni.min()) / 2, linscale=0.5)
-            note += " The imaginary axis is on a symmetric logarithmic scale."
+        if values.size and _signed_log_axis(ax.xaxis, values.real, ax.set_xscale):
+            note = (" The real axis is on a signed logarithmic scale (linear between the "
+                    "smallest nonzero values and zero) so that slow and fast modes both show.")
+        if values.size and _signed_log_axis(ax.yaxis, values.imag, ax.set_yscale):
+            note += " The imaginary axis is on a signed logarithmic scale too."
+    if values.size and (values == 0).any() and not model.is_discrete:
+        note += (" Eigenvalues at rounding level of zero are integrators and are drawn at 0.")
     for part in ("uncontrollable_unobservable", "uncontrollable_observable",
                  "controllable_unobservable", "controllable_observable"):
-        sel = [m for m in modes if m.part == part]
-        if not sel:
+        sel = np.array([k for k, m in enumerate(modes) if m.part == part], dtype=int)
+        if not sel.size:
             continue
         st = _PART_STYLE[part]
-        z = np.array([complex(m.value) for m in sel])
+        z = values[sel]
         ax.scatter(z.real, z.imag, s=st["size"] ** 2, marker=st["marker"],
                    facecolors=st["color"] if st["filled"] else "none", edgecolors=st["color"],
                    linewidths=1.6, zorder=3 if st["filled"] else 2,
-                   label=f"{PART_LABELS[part]} ({len(sel)})")
-    narrow = np.array([complex(m.value) for m in modes if m.narrow], dtype=complex)
+                   label=f"{PART_LABELS[part]} ({sel.size})")
+    narrow = np.array([k for k, m in enumerate(modes) if m.narrow], dtype=int)
     if narrow.size:
-        ax.scatter(narrow.real, narrow.imag, s=22 ** 2, marker="o", facecolors="none",
+        z = values[narrow]
+        ax.scatter(z.real, z.imag, s=22 ** 2, marker="o", facecolors="none",
                    edgecolors="#262626", linewidths=0.9, linestyle=(0, (2, 2)), zorder=4,
                    label=f"near cancellation ({narrow.size})")
     if not len(modes):
         ax.text(0.5, 0.5, "the model has no states", transform=ax.transAxes, ha="center")
     ax.legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.02, 1.0), frameon=False,
               borderaxespad=0.0, markerscale=0.7, labelspacing=1.0)
+    return note
+
+
+def eigenvalue_figure(contents):
+    """The eigenvalue map of a report's contents as a matplotlib figure, and its note."""
+    fig = _figure(8.0, 4.4)
+    ax = fig.add_subplot()
+    _style_axes(ax)
+    note = draw_eigenvalue_map(ax, contents.model, contents.analysis.modes)
+    drop_overlapping_labels(fig, ax)
+    return fig, note
+
+
+def eigenvalue_plot(contents) -> tuple[str, str]:
+    """Eigenvalues in the complex plane, marked by Kalman part."""
+    fig, note = eigenvalue_figure(contents)
     alt = "Eigenvalues of the original model in the complex plane, marked by Kalman part."
     return _png(fig), alt + note
 
@@ -149,8 +243,9 @@ def frequency_plot(contents) -> tuple[str, str]:
     ax.set_ylabel("gain (singular values)" if min(model.n_inputs, model.n_outputs) > 1 else "gain")
     if model.n_inputs and model.n_outputs:
         ax.legend(fontsize=8, loc="best", framealpha=0.9)
-    alt = ("Frequency response of the original model (markers), its minimal realization "
-           "(solid line) and the balanced-truncated model (dashed line).")
+    alt = ("Frequency response of the original model (markers) and its minimal realization "
+           "(solid line)" + (" and the balanced-truncated model (dashed line)."
+                             if contents.reduction is not None else "."))
     if min(model.n_inputs, model.n_outputs) > 1:
         alt += " Each model shows all singular values of its transfer matrix."
     return _png(fig), alt

@@ -8,11 +8,20 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
 
-from plantcore.core.wording import SAFETY_CAUTION, counted, frequency_phrase, short_number
+from plantcore.core.wording import (
+    SAFETY_CAUTION,
+    counted,
+    frequency_phrase,
+    short_number,
+    shown_eigenvalue,
+    shown_value,
+    special_number,
+)
 from plantcore.structure.removed_modes import hidden_mode_message
 
-__all__ = ["analysis_text", "analysis_markdown", "certificate_text"]
+__all__ = ["analysis_markdown", "analysis_text", "certificate_text", "decision_method"]
 
 # --- analysis reports (text and markdown) -----------------------------------------------------
 # These read an :class:`plantcore.analysis.Analysis` and only format what it holds.
@@ -33,15 +42,38 @@ _MAX_LISTED_MODES = 4
 def _num(x, digits: int = 3) -> str:
     if x is None:
         return "-"
-    x = float(x)
-    if math.isinf(x):
-        return "inf"
-    if math.isnan(x):
-        return "nan"
-    return f"{x:.{digits}g}"
+    word = special_number(x, missing="nan", infinite="inf", negative_infinite="-inf", zero=None)
+    return word if word is not None else f"{float(x):.{digits}g}"
 
 
-def _eig(value, digits: int = 4) -> str:
+def decision_method(decision) -> str:
+    """Which method made a rank decision, in words (from its label and kind)."""
+    if decision.label.startswith("modal certificate"):
+        return "modal certificate, mode by mode" + (" (a check)" if decision.check_only else "")
+    if decision.label.startswith("zeros"):
+        return "system pencil reduction"
+    if "step" in decision.label:
+        return "orthogonal staircase"
+    return "singular values"
+
+
+def _hankel_note(note: str) -> str:
+    """The analysis' note on Hankel singular values without a leading repeat of the
+    heading ("Hankel singular values not available: ...")."""
+    for lead in ("Hankel singular values not available: ", "Hankel singular values are not available: "):
+        if note.startswith(lead):
+            return note[len(lead):]
+    return note
+
+
+def _scale(a) -> float:
+    """The scale eigenvalues are shown against (``||A||_F``; see ``shown_eigenvalue``)."""
+    return float(np.linalg.norm(a.model.A)) if a.model.n else 1.0
+
+
+def _eig(value, digits: int = 4, scale: float | None = None, discrete: bool = False) -> str:
+    if scale is not None:
+        value = shown_eigenvalue(value, scale, discrete=discrete)
     value = complex(value)
     re = 0.0 if value.real == 0 else value.real     # no "-0"
     if value.imag == 0:
@@ -71,8 +103,8 @@ def _stability_word(mode) -> str:
     return "marginal" if mode.marginal else "UNSTABLE"
 
 
-def _mode_list(modes) -> str:
-    shown = [_eig(m.value) for m in modes[:_MAX_LISTED_MODES]]
+def _mode_list(modes, scale: float, discrete: bool = False) -> str:
+    shown = [_eig(m.value, scale=scale, discrete=discrete) for m in modes[:_MAX_LISTED_MODES]]
     more = len(modes) - len(shown)
     return ", ".join(shown) + (f" and {more} more" if more > 0 else "")
 
@@ -110,22 +142,23 @@ def _verdict_lines(a) -> list[tuple[str, str, str]]:
             rows.append((name, "yes", why))
         else:
             bad = [m for m in not_stable if not getattr(m, attr)]
-            rows.append((name, "NO", f"{cannot} the mode(s) {_mode_list(bad)}, which are not stable"))
+            rows.append((name, "NO", (f"{cannot} the mode(s) "
+                         f"{_mode_list(bad, _scale(a), a.model.is_discrete)}, which are not stable")))
     if a.is_minimal:
         rows.append(("minimal", "yes", "every state is controllable and observable"))
     else:
         rows.append(("minimal", "no",
-                     f"a minimal realization has {_plural(a.minimal_order, 'state')} "
+                     (f"a minimal realization has {_plural(a.minimal_order, 'state')} "
                      f"({a.minimal.removed_uncontrollable} not controllable and "
-                     f"{a.minimal.removed_unobservable} not observable removed)"))
+                     f"{a.minimal.removed_unobservable} not observable removed)")))
     return rows
 
 
-def _distance_line(d) -> str:
+def _distance_line(d, scale: float) -> str:
     if d.at is None:
         return f"distance to {d.kind}: none (the model has no states)"
-    return (f"distance to {d.kind}: about {_num(d.value)} of the model's scale, "
-            f"reached at lambda = {_eig(d.at)} (an estimate and an upper bound)")
+    return (f"distance to {d.kind}: about {_num(shown_value(d.value))} of the model's scale, "
+            f"reached at lambda = {_eig(d.at, scale=scale)} (an estimate and an upper bound)")
 
 
 def _method_lines(a) -> list[str]:
@@ -162,16 +195,17 @@ def _narrow_lines(a) -> list[str]:
     if not narrow:
         return []
     verb = "passes" if len(narrow) == 1 else "pass"
-    return [f"Note: {_plural(len(narrow), 'mode')} ({_mode_list(list(narrow))}) {verb} a test "
+    listed = _mode_list(list(narrow), _scale(a), a.model.is_discrete)
+    return [(f"Note: {_plural(len(narrow), 'mode')} ({listed}) {verb} a test "
             f"with a margin below {_num(a.narrow_margin)}: a near pole-zero cancellation. A "
-            "change of the model data of that relative size could make the test fail."]
+            "change of the model data of that relative size could make the test fail.")]
 
 
 def _hsv_text(a) -> list[str]:
     hsv = a.hankel_singular_values
     lines = []
     if hsv is None:
-        lines.append("  not available: " + a.hankel_note)
+        lines.append("  not available: " + _hankel_note(a.hankel_note))
         return lines
     if hsv.size == 0:
         lines.append("  none: " + (a.hankel_note or "the model has no states."))
@@ -210,10 +244,10 @@ def analysis_text(a) -> str:
     width = max([len(d.label) for d in a.decisions], default=0)
     for d in a.decisions:
         flag = "  FRAGILE" if d.fragile else ""
-        kept = "none" if math.isinf(d.smallest_kept) else _num(d.smallest_kept)
+        kept = "none" if math.isinf(d.smallest_kept) else _num(shown_value(d.smallest_kept))
         out.append(f"  {d.label:<{width}s}  rank {d.rank} of {d.size}  smallest kept "
-                   f"{kept}  largest dropped {_num(d.largest_dropped)}  "
-                   f"margin {_num(d.margin)}{flag}")
+                   f"{kept}  largest dropped {_num(shown_value(d.largest_dropped))}  "
+                   f"margin {_num(d.margin)}  ({decision_method(d)}){flag}")
     out += _fragile_lines(a)
     out.append("")
 
@@ -238,25 +272,28 @@ def analysis_text(a) -> str:
     out.append("Verdicts")
     for name, answer, why in _verdict_lines(a):
         out.append(f"  {name:<13s} {answer:<4s} {why}")
-    out.append("  " + _distance_line(a.distance_to_uncontrollability))
-    out.append("  " + _distance_line(a.distance_to_unobservability))
+    out.append("  " + _distance_line(a.distance_to_uncontrollability, _scale(a)))
+    out.append("  " + _distance_line(a.distance_to_unobservability, _scale(a)))
     for line in _method_lines(a):
         out.append("  (" + line + ")")
     out.append("")
 
     out.append("Modes (margin: smallest singular value of [A - lambda I, B] or "
-               "[A - lambda I; C], relative to the model's scale)")
+               "[A - lambda I; C], relative to the model's scale, measured on the controllable "
+               "(observable) part for a controllable (observable) mode, else on the whole "
+               "model; values at rounding level shown as 0)")
+    scale, discrete = _scale(a), a.model.is_discrete
     if not a.modes:
         out.append("  none (the model has no states)")
     else:
         out.append(f"  {'#':>3s}  {'eigenvalue':<24s} {'stability':<9s}  "
                    f"{'controllable':<16s} {'observable':<16s} part")
         for k, m in enumerate(a.modes):
-            c = f"{'yes' if m.controllable else 'no':<4s}{_num(m.controllability_margin)}"
-            o = f"{'yes' if m.observable else 'no':<4s}{_num(m.observability_margin)}"
+            c = f"{'yes' if m.controllable else 'no':<4s}{_num(shown_value(m.controllability_margin))}"
+            o = f"{'yes' if m.observable else 'no':<4s}{_num(shown_value(m.observability_margin))}"
             part = _PART_ORDER.index(m.part) + 1
             flag = "  narrow" if m.narrow else ""
-            out.append(f"  {k + 1:>3d}  {_eig(m.value):<24s} {_stability_word(m):<9s}  "
+            out.append(f"  {k + 1:>3d}  {_eig(m.value, scale=scale, discrete=discrete):<24s} {_stability_word(m):<9s}  "
                        f"{c:<16s} {o:<16s} {part}{flag}")
     out += _narrow_lines(a)
     out.append("")
@@ -283,19 +320,19 @@ def analysis_markdown(a) -> str:
     out += ["## Kalman parts", "", "| part | meaning | states |", "|---:|---|---:|"]
     for i, (name, size) in enumerate(zip(_PART_ORDER, kd.sizes)):
         out.append(f"| {i + 1} | {PART_LABELS[name]} | {int(size)} |")
-    out += ["", f"Transformation condition number {_num(kd.condition)}; largest entry set to zero "
-            f"{_num(kd.residual)} of its block.", ""]
+    out += ["", (f"Transformation condition number {_num(kd.condition)}; largest entry set to zero "
+            f"{_num(kd.residual)} of its block."), ""]
 
     out += ["## Rank decisions", "",
-            "Margin: factor between the deciding singular value and the tolerance; below 100 "
-            "is fragile.", ""]
+            ("Margin: factor between the deciding singular value and the tolerance; below 100 "
+            "is fragile."), ""]
     if a.decisions:
         out += ["| decision | rank | smallest kept | largest dropped | margin | fragile |",
                 "|---|---:|---:|---:|---:|---|"]
         for d in a.decisions:
-            kept = "none" if math.isinf(d.smallest_kept) else _num(d.smallest_kept)
+            kept = "none" if math.isinf(d.smallest_kept) else _num(shown_value(d.smallest_kept))
             out.append(f"| {_md_escape(d.label)} | {d.rank} of {d.size} | {kept} "
-                       f"| {_num(d.largest_dropped)} | {_num(d.margin)} | "
+                       f"| {_num(shown_value(d.largest_dropped))} | {_num(d.margin)} | "
                        f"{'**yes**' if d.fragile else 'no'} |")
     else:
         out.append("None (the model has no states).")
@@ -311,30 +348,32 @@ def analysis_markdown(a) -> str:
                    + "; ".join(f"`{_md_escape(t)}`" for t in dirs[:_MAX_DIRECTIONS])
                    + (f"; and {len(dirs) - _MAX_DIRECTIONS} more" if len(dirs) > _MAX_DIRECTIONS else ""))
     if a.model.n:
-        out += ["", "Part 2, parts 1+2 (the controllable subspace) and parts 2+4 (the unobservable "
+        out += ["", ("Part 2, parts 1+2 (the controllable subspace) and parts 2+4 (the unobservable "
                 "subspace) are fixed by the model; parts 1, 3 and 4 are complements chosen by "
-                "the method."]
+                "the method.")]
     out.append("")
 
     out += ["## Verdicts", "", "| verdict | answer | why |", "|---|---|---|"]
     for name, answer, why in _verdict_lines(a):
         out.append(f"| {name} | {answer} | {_md_escape(why)} |")
-    out += ["", "- " + _distance_line(a.distance_to_uncontrollability),
-            "- " + _distance_line(a.distance_to_unobservability)]
+    out += ["", "- " + _distance_line(a.distance_to_uncontrollability, _scale(a)),
+            "- " + _distance_line(a.distance_to_unobservability, _scale(a))]
     for line in _method_lines(a):
         out.append("- " + line)
     out.append("")
 
     out += ["## Modes", "",
-            "Margin: smallest singular value of `[A - λI, B]` or `[A - λI; C]`, relative to the "
-            "model's scale.", ""]
+            ("Margin: smallest singular value of `[A - λI, B]` or `[A - λI; C]`, relative to the "
+            "model's scale, measured on the controllable (observable) part for a controllable "
+            "(observable) mode, else on the whole model; values at rounding level shown as 0."), ""]
+    scale, discrete = _scale(a), a.model.is_discrete
     if a.modes:
-        out += ["| # | eigenvalue | stability | controllable (margin) | observable (margin) "
-                "| part | narrow |", "|---:|---|---|---|---|---:|---|"]
+        out += [("| # | eigenvalue | stability | controllable (margin) | observable (margin) "
+                "| part | narrow |"), "|---:|---|---|---|---|---:|---|"]
         for k, m in enumerate(a.modes):
-            out.append(f"| {k + 1} | {_eig(m.value)} | {_stability_word(m)} | "
-                       f"{'yes' if m.controllable else 'no'} ({_num(m.controllability_margin)}) | "
-                       f"{'yes' if m.observable else 'no'} ({_num(m.observability_margin)}) | "
+            out.append(f"| {k + 1} | {_eig(m.value, scale=scale, discrete=discrete)} | {_stability_word(m)} | "
+                       f"{'yes' if m.controllable else 'no'} ({_num(shown_value(m.controllability_margin))}) | "
+                       f"{'yes' if m.observable else 'no'} ({_num(shown_value(m.observability_margin))}) | "
                        f"{_PART_ORDER.index(m.part) + 1} | {'**yes**' if m.narrow else ''} |")
     else:
         out.append("None (the model has no states).")
@@ -360,18 +399,18 @@ def _certificate_verdict(cert) -> tuple:
     attainable = short_number(cert.attainable_accuracy)
     if basis == "attainable accuracy":
         return (f"EQUIVALENT to the attainable accuracy {attainable}",
-                f"relative peak error {relative} > tolerance {tol}, within what floating "
-                "point can resolve at every frequency")
+                (f"relative peak error {relative} > tolerance {tol}, within what floating "
+                "point can resolve at every frequency"))
     if basis == "unresolved":
-        return ("UNDECIDED", f"a difference above the tolerance {tol} and the attainable "
-                f"accuracy {attainable}, but not clearly above rounding")
+        return ("UNDECIDED", (f"a difference above the tolerance {tol} and the attainable "
+                f"accuracy {attainable}, but not clearly above rounding"))
     if basis == "no frequency":
         return "UNDECIDED", "no frequency could be examined"
     if basis == "boundary pole":
         return "NOT EQUIVALENT", "the difference has a pole on the boundary"
     if basis == "resolved":
-        return ("NOT EQUIVALENT", f"relative peak error {relative} > tolerance {tol}, and "
-                f"far above the attainable accuracy {attainable}")
+        return ("NOT EQUIVALENT", (f"relative peak error {relative} > tolerance {tol}, and "
+                f"far above the attainable accuracy {attainable}"))
     sign = "<=" if cert.relative_error <= cert.tolerance else ">"
     return ("EQUIVALENT" if cert.equivalent else "NOT EQUIVALENT",
             f"relative peak error {relative} {sign} tolerance {tol}")
