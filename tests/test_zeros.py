@@ -136,3 +136,30 @@ def test_decisions_are_recorded_and_a_near_rank_deficient_feedthrough_is_fragile
 def test_unknown_realization_is_refused():
     with pytest.raises(ValueError, match="realization must be one of"):
         pc.transmission_zeros(([[-1.0]], [[1.0]], [[1.0]]), realization="full")
+
+
+@pytest.mark.parametrize("power", [-450, -100, 100, 450])
+def test_zeros_do_not_change_with_exact_scalings(power):
+    # (s^2 + 3 s + 2.5) / ((s + 1)(s + 2)(s + 3)) has the zeros -1.5 +- 0.5j (by hand).
+    # Scaling A, B, C and D by 2^k scales the zeros by 2^k; a scalar change of state units
+    # (B times 2^k, C divided by it) and a change of time units (A and B times 2^k, zeros
+    # times 2^k) are exact too, so the computed zeros must follow them.
+    model = pc.from_transfer_function([1.0, 3.0, 2.5], [1.0, 6.0, 11.0, 6.0])
+    A, B, C, D = model.A, model.B, model.C, model.D
+    s = 2.0 ** power
+    expected = np.array([-1.5 - 0.5j, -1.5 + 0.5j])
+    for scaled, factor in (((A * s, B * s, C * s, D * s), s), ((A, B * s, C / s, D), 1.0),
+                           ((A * s, B * s, C, D), s)):
+        zeros = pc.transmission_zeros(scaled, realization="as_given")
+        found = np.sort_complex(zeros.finite_zeros / factor)
+        np.testing.assert_allclose(found, expected, rtol=1e-10)
+
+
+def test_zeros_of_a_model_in_extreme_time_units():
+    # 1/(s + 1e300) has no finite zero and normal rank 1; 1/(s + 1e300) + 1 has the zero
+    # -1e300 - 1 (by hand); no overflow on the way (the suite turns RuntimeWarning into an error)
+    plain = pc.transmission_zeros(([[-1e300]], [[1.0]], [[1.0]]), realization="as_given")
+    assert plain.finite_zeros.size == 0 and plain.normal_rank == 1
+    assert plain.infinite_zero_count == 1
+    with_d = pc.transmission_zeros(([[-1e300]], [[1.0]], [[1.0]], [[1.0]]), realization="as_given")
+    np.testing.assert_allclose(with_d.finite_zeros, [-1e300], rtol=1e-12)

@@ -13,6 +13,8 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.linalg import lapack
 
+from plantcore.core.safe_norms import frobenius
+
 __all__ = ["Equilibration", "equilibrate", "io_scaled"]
 
 
@@ -63,13 +65,13 @@ def equilibrate(A, B, C, *, threshold: float = 8.0) -> Equilibration:
         return Equilibration(np.ones(0))
     m, p = B.shape[1], C.shape[0]
     k = max(m, p)
-    norm_M = math.sqrt(np.linalg.norm(A) ** 2 + np.linalg.norm(B) ** 2 + np.linalg.norm(C) ** 2)
+    norm_M = frobenius(np.array([frobenius(A), frobenius(B), frobenius(C)]))
     if norm_M == 0.0:
         return Equilibration(np.ones(n))
     M = np.zeros((n + k, n + k), order="F")
     # Inputs and outputs first brought to the size of A by powers of two (their units do
     # not matter for ranks), so that an input in large units cannot dominate the balance.
-    norm_A = float(np.linalg.norm(A))
+    norm_A = frobenius(A)
     B_n, C_n = io_scaled(B, C, norm_A if norm_A > 0 else 1.0)
     M[:n, :n] = A
     M[:n, n:n + m] = B_n
@@ -85,13 +87,13 @@ def equilibrate(A, B, C, *, threshold: float = 8.0) -> Equilibration:
         s = s / np.exp2(np.round(np.log2(np.median(scale[n:]))))
     s = _pow2(s)
     # Frobenius norm of the scaled system matrix, a block of rows at a time.
-    sq = np.linalg.norm(B / s[:, None]) ** 2 + np.linalg.norm(C * s[None, :]) ** 2
+    pieces = [frobenius(B / s[:, None]), frobenius(C * s[None, :])]
     step = max(1, (1 << 20) // max(n, 1))
     for i in range(0, n, step):
         rows = A[i:i + step, :] / s[i:i + step, None]
         rows *= s[None, :]
-        sq += np.linalg.norm(rows) ** 2
-    if math.sqrt(sq) * threshold < norm_M:
+        pieces.append(frobenius(rows))
+    if frobenius(np.array(pieces)) * threshold < norm_M:
         return Equilibration(s)
     return Equilibration(np.ones(n))
 
@@ -107,11 +109,11 @@ def io_scaled(B, C, scale: float):
     C = np.array(C, dtype=float)
     if scale > 0:
         for j in range(B.shape[1]):
-            nb = np.linalg.norm(B[:, j])
+            nb = frobenius(B[:, j])
             if nb > 0:
                 B[:, j] *= _pow2(scale / nb)
         for i in range(C.shape[0]):
-            nc = np.linalg.norm(C[i, :])
+            nc = frobenius(C[i, :])
             if nc > 0:
                 C[i, :] *= _pow2(scale / nc)
     return B, C

@@ -83,6 +83,7 @@ from scipy.sparse.csgraph import connected_components
 from scipy.spatial import cKDTree
 
 from plantcore.core.rank import FRAGILITY_FACTOR
+from plantcore.core.safe_norms import frobenius, frobenius_of_columns, frobenius_of_rows
 
 __all__ = ["ModalCertificate", "controllable_basis", "modal_certificate", "schur_eigenvalues"]
 
@@ -361,17 +362,17 @@ def _smallest_singular_values(top, bottom, k: int, start=None) -> np.ndarray:
     single = width == 1 and start is not None and np.all(np.isfinite(start))
     if single:
         X = np.asarray(start, dtype=X.dtype).reshape(n, 1) + 1e-3 * X / math.sqrt(n)
-        X /= max(float(np.linalg.norm(X)), 1e-300)
+        X /= max(float(frobenius(X)), 1e-300)
     previous = 0.0
     with np.errstate(over="ignore", invalid="ignore"):
         for _ in range(_INVERSE_STEPS):
             X = scipy.linalg.solve_triangular(R, X, trans="C", check_finite=False)
-            X /= np.maximum(np.linalg.norm(X, axis=0), 1e-300)
+            X /= np.maximum(frobenius_of_columns(X), 1e-300)
             X = scipy.linalg.solve_triangular(R, X, check_finite=False)
             if not np.all(np.isfinite(X)):
                 break
             if single:
-                growth = float(np.linalg.norm(X))    # about 1 / sigma^2 once converged
+                growth = float(frobenius(X))    # about 1 / sigma^2 once converged
                 X /= max(growth, 1e-300)
                 if previous and abs(growth - previous) <= 1e-3 * growth:
                     break
@@ -579,7 +580,7 @@ def _local_split(schur: _Schur, B, C, members: np.ndarray, threshold: float) -> 
             Y = scipy.linalg.solve_sylvester(T11, -T22, -T12)   # T11 Y - Y T22 = -T12
         except (np.linalg.LinAlgError, ValueError):
             return None
-        if not np.all(np.isfinite(Y)) or np.linalg.norm(Y) > 1e6:
+        if not np.all(np.isfinite(Y)) or frobenius(Y) > 1e6:
             return None
         B_c = Bq[:k] - Y @ Bq[k:]          # rows of X^-1 B with X = [[I, Y], [0, I]]
     else:
@@ -614,10 +615,10 @@ def _eigen_residuals(A, lam, VL, VR, block: int = 256):
         # w^H A = (A^T conj(w))^T, taken as two real products
         WA = A.T @ W.real - 1j * (A.T @ W.imag)          # columns: (w^H A)^T
         WA -= np.conj(W) * z[None, :]
-        left[sl] = np.linalg.norm(WA, axis=0)
+        left[sl] = frobenius_of_columns(WA)
         AV = A @ V.real + 1j * (A @ V.imag)
         AV -= V * z[None, :]
-        right[sl] = np.linalg.norm(AV, axis=0)
+        right[sl] = frobenius_of_columns(AV)
     return left, right
 
 
@@ -653,19 +654,19 @@ def modal_certificate(A, B, C, *, scale: float, tol: float,
         return None
     if not np.all(np.isfinite(lam)):
         return None
-    VL = VL / np.linalg.norm(VL, axis=0)
-    VR = VR / np.linalg.norm(VR, axis=0)
+    VL = VL / frobenius_of_columns(VL)
+    VR = VR / frobenius_of_columns(VR)
     overlap = np.abs(np.einsum("ij,ij->j", VL.conj(), VR))
     kappa = np.where(overlap > 0, 1.0 / np.maximum(overlap, 1e-300), math.inf)
-    norm_A = float(np.linalg.norm(A))
+    norm_A = float(frobenius(A))
     # the residuals ||w^H (A - lambda I)|| and ||(A - lambda I) v||, measured, plus the
     # rounding of measuring them (sqrt(n) eps ||A||, common practice for the typical
     # error of an inner product of length n)
     floor = math.sqrt(n) * _EPS * norm_A / scale
     res_l, res_r = _eigen_residuals(A, lam, VL, VR)
-    upper_c = (np.hypot(np.linalg.norm(VL.conj().T @ B, axis=1), res_l) / scale + floor
+    upper_c = (np.hypot(frobenius_of_rows(VL.conj().T @ B), res_l) / scale + floor
                if m else np.zeros(n))
-    upper_o = (np.hypot(np.linalg.norm(C @ VR, axis=0), res_r) / scale + floor
+    upper_o = (np.hypot(frobenius_of_columns(C @ VR), res_r) / scale + floor
                if p else np.zeros(n))
     # Error discs: the first-order error of a computed eigenvalue is about
     # kappa eps ||A||; for the scattered copies of a defective eigenvalue of multiplicity k

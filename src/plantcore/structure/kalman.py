@@ -39,6 +39,7 @@ from plantcore.core.equilibration import equilibrate, io_scaled
 from plantcore.core.errors import AccuracyWarning, NumericalBreakdown
 from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.core.rank import RankDecision, any_fragile, resolve_tolerance
+from plantcore.core.safe_norms import frobenius
 from plantcore.structure.certificate import modal_certificate
 from plantcore.structure.reconcile import (
     certificate_decisions,
@@ -584,8 +585,8 @@ def backward_error(model, new, T, T_inv) -> float:
     A, B, C = model.A, model.B, model.C
 
     def rel(E, X):
-        size = float(np.linalg.norm(X))
-        return float(np.linalg.norm(E)) / size if size > 0 else float(np.linalg.norm(E))
+        size = float(frobenius(X))
+        return float(frobenius(E)) / size if size > 0 else float(frobenius(E))
 
     errors = [rel(T @ new.B - B, B), rel(new.C @ T_inv - C, C)]
     if n <= _EXACT_ACCURACY_STATES:
@@ -593,7 +594,7 @@ def backward_error(model, new, T, T_inv) -> float:
     else:
         G = np.random.default_rng(20240917).standard_normal((n, 16))
         E = T @ (new.A @ (T_inv @ G)) - A @ G
-        errors.append(2.0 * float(np.linalg.norm(E)) / 4.0 / max(float(np.linalg.norm(A)), 1e-300))
+        errors.append(2.0 * float(frobenius(E)) / 4.0 / max(float(frobenius(A)), 1e-300))
     return max(errors)
 
 
@@ -612,10 +613,10 @@ def condition_number(T, T_inv) -> float:
         value = 0.0
         for _ in range(30):
             y = M.T @ (M @ x)
-            value = math.sqrt(float(np.linalg.norm(y)))
+            value = math.sqrt(float(frobenius(y)))
             if value == 0.0:
                 return 0.0
-            x = y / np.linalg.norm(y)
+            x = y / frobenius(y)
         return value
 
     return norm2(T) * norm2(T_inv)
@@ -819,9 +820,9 @@ def _impose_zero_pattern(A, B, C, sizes) -> float:
     blk = [slice(cuts[i], cuts[i + 1]) for i in range(4)]
     zero_A = [(0, 1), (0, 3), (2, 0), (2, 1), (2, 3), (3, 0), (3, 1)]
     res = 0.0
-    nA = max(np.linalg.norm(A), np.finfo(float).tiny)
-    nB = max(np.linalg.norm(B), np.finfo(float).tiny)
-    nC = max(np.linalg.norm(C), np.finfo(float).tiny)
+    nA = max(frobenius(A), np.finfo(float).tiny)
+    nB = max(frobenius(B), np.finfo(float).tiny)
+    nC = max(frobenius(C), np.finfo(float).tiny)
     for i, j in zero_A:
         sub = A[blk[i], blk[j]]
         if sub.size:

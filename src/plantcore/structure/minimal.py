@@ -6,13 +6,17 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from plantcore.core.errors import NumericalBreakdown
 from plantcore.core.model import StateSpaceModel
 from plantcore.core.rank import any_fragile
-from plantcore.core.errors import NumericalBreakdown
+from plantcore.core.safe_norms import frobenius
 from plantcore.structure.kalman import _decompose, _prepare, _start
 from plantcore.structure.reconcile import certificate_decisions, confirm_window
-from plantcore.structure.removed_modes import (removed_from_blocks, removed_from_decomposition,
-                                               warn_hidden_modes)
+from plantcore.structure.removed_modes import (
+    removed_from_blocks,
+    removed_from_decomposition,
+    warn_hidden_modes,
+)
 
 __all__ = ["MinimalRealization", "minimal_realization"]
 
@@ -177,7 +181,7 @@ def _removed_modes(p, red1, red2, nc: int, r: int) -> tuple:
     mode is reported as ``"uncontrollable"``.
     """
     n = p.model.n
-    norm_A = float(np.linalg.norm(p.A))
+    norm_A = float(frobenius(p.A))
     discrete = p.model.is_discrete
     unobservable = np.array(red2.A[r:nc, r:nc].T)
     removed = removed_from_blocks([("controllable_unobservable", unobservable)], norm_A,

@@ -35,6 +35,7 @@ import scipy.linalg
 from scipy.linalg import lapack
 
 from plantcore.core.rank import FRAGILITY_FACTOR, RankDecision
+from plantcore.core.safe_norms import frobenius
 from plantcore.structure.certificate import controllable_basis, schur_eigenvalues
 
 __all__ = ["certificate_decisions", "confirm_window", "spectral_decomposition"]
@@ -308,7 +309,7 @@ def spectral_decomposition(A, B, C, cert) -> SpectralDecomposition | None:
     Az = G_inv @ T @ G
     Bz = T_inv @ B
     Cz = C @ T_e
-    zeroed = _impose_kalman_zeros(Az, Bz, Cz, sizes, [np.linalg.norm(X) for X in (A, B, C)])
+    zeroed = _impose_kalman_zeros(Az, Bz, Cz, sizes, [frobenius(X) for X in (A, B, C)])
     if zeroed > FRAGILITY_FACTOR * cert.tolerance:
         return None
     return SpectralDecomposition(T_e, T_inv, Az, Bz, Cz, sizes, zeroed)
@@ -322,7 +323,7 @@ def _decoupling(T11, T22, T12, limit: float = 1e6):
         Y = scipy.linalg.solve_sylvester(T11, -T22, -T12)
     except (np.linalg.LinAlgError, ValueError):
         return None
-    if not np.all(np.isfinite(Y)) or np.linalg.norm(Y) > limit:
+    if not np.all(np.isfinite(Y)) or frobenius(Y) > limit:
         return None
     return Y
 

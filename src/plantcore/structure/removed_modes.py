@@ -28,6 +28,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from plantcore.core.errors import HiddenModeWarning
+from plantcore.core.safe_norms import frobenius
 from plantcore.structure.kalman import PART_NAMES
 from plantcore.structure.modes import (
     _CLUSTER_FACTOR,
@@ -141,7 +142,7 @@ def removed_from_decomposition(kd, p) -> tuple:
     for i, name in enumerate(PART_NAMES[1:], start=1):
         sl = slice(cuts[i], cuts[i + 1])
         blocks.append((name, (Ti_e[sl, :] @ p.A) @ T_e[:, sl]))
-    return removed_from_blocks(blocks, float(np.linalg.norm(p.A)), p.model.is_discrete)
+    return removed_from_blocks(blocks, float(frobenius(p.A)), p.model.is_discrete)
 
 
 def hidden_mode_message(removed, action: str) -> str:

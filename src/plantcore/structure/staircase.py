@@ -24,6 +24,7 @@ from scipy.linalg import lapack
 from plantcore.core.equilibration import Equilibration, equilibrate, io_scaled
 from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.core.rank import FRAGILITY_FACTOR, RankDecision, any_fragile, resolve_tolerance
+from plantcore.core.safe_norms import frobenius, frobenius_of_columns, frobenius_of_rows
 from plantcore.structure.certificate import modal_certificate, schur_eigenvalues
 from plantcore.structure.reconcile import confirm_window, supersede, undecided_text
 from plantcore.structure.staircase_kernels import reduce_staircase
@@ -106,14 +107,14 @@ def _scale_of(A_e, B_e, C_e) -> float:
     ``B`` and ``C`` are used only when ``A`` is zero.  Including them always would let an
     input in large units make every coupling inside ``A`` look negligible.
     """
-    norm_A = float(np.linalg.norm(A_e))
+    norm_A = float(frobenius(A_e))
     if norm_A > 0 and np.isfinite(norm_A):
         return norm_A
     parts = [0.0]
     if B_e.size:
-        parts.append(float(np.max(np.linalg.norm(B_e, axis=0))))
+        parts.append(float(np.max(frobenius_of_columns(B_e))))
     if C_e.size:
-        parts.append(float(np.max(np.linalg.norm(C_e, axis=1))))
+        parts.append(float(np.max(frobenius_of_rows(C_e))))
     scale = max(parts)
     return scale if scale > 0 else 1.0
 
@@ -184,7 +185,7 @@ def _spectral_staircase(A, B, C, cert, *, scale, tol, label):
         if info != 0:
             return None
     Bq = Q.T @ B
-    norm_B = max(float(np.linalg.norm(B)), 1e-300)
+    norm_B = max(float(frobenius(B)), 1e-300)
     if nc < n and float(np.abs(Bq[nc:]).max()) / norm_B > FRAGILITY_FACTOR * tol:
         return None
     Cq = C @ Q

@@ -16,6 +16,7 @@ matrix and the number of zeros at infinity.  The same pencil serves continuous t
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -24,6 +25,7 @@ import scipy.linalg
 from plantcore.core.equilibration import equilibrate
 from plantcore.core.model import as_model
 from plantcore.core.rank import RankDecision, any_fragile, decide_rank, resolve_tolerance
+from plantcore.core.safe_norms import frobenius, frobenius_of_columns, frobenius_of_rows
 from plantcore.structure.minimal import minimal_realization
 
 __all__ = ["TransmissionZeros", "transmission_zeros"]
@@ -144,16 +146,49 @@ def transmission_zeros(model, *, tol=None, realization="minimal") -> Transmissio
     tol = resolve_tolerance(tol, model.n)
     eq = equilibrate(model.A, model.B, model.C)
     A, B, C = eq.apply(model.A, model.B, model.C)
-    D = np.array(model.D, dtype=float)
-    scale = max(float(np.linalg.norm(X)) for X in (A, B, C, D)) if A.size or D.size else 0.0
+    A, B, C, D, time_scale = _exactly_rescaled(A, B, C, np.array(model.D, dtype=float))
+    scale = max(float(frobenius(X)) for X in (A, B, C, D)) if A.size or D.size else 0.0
 
     A, B, C, D, ranks = _reduce(A, B, C, D, scale, tol, "zeros: ", decisions)
     At, Bt, Ct, Dt, _ = _reduce(A.T, C.T, B.T, D.T, scale, tol, "zeros, dual: ", decisions)
     A, B, C, D = At.T, Ct.T, Bt.T, Dt.T
     rank = D.shape[0]
     infinite = sum(rank - sigma for sigma in ranks)
-    return TransmissionZeros(_finite_zeros(A, B, C, D), int(infinite), int(rank),
+    return TransmissionZeros(_finite_zeros(A, B, C, D) / time_scale, int(infinite), int(rank),
                              realization, tuple(decisions))
+
+
+def _exactly_rescaled(A, B, C, D):
+    """A model with the same zeros up to one factor, with A of unit size and B, C like A.
+
+    ``[alpha A - mu I, alpha B; C, D]`` has the rank of ``[A - lambda I, B; C, D]`` at
+    ``mu = alpha lambda`` (scale the first block row), so the zeros of
+    ``(alpha A, alpha B, C, D)`` are ``alpha`` times the zeros of the model; scaling the
+    inputs (columns of B and D) and outputs (rows of C and D) leaves the zeros as they are.
+    With powers of two every entry is scaled exactly.  Rank decisions are relative to the
+    largest block, so an A of 1e300 beside B and C of 1, or a B of 2^100 beside a C of
+    2^-100 (a scalar change of state units), is decided on a model whose blocks have the
+    same size.  Where the scaled D would overflow, or a nonzero D would underflow to zero,
+    only the time scaling of a large A is kept.  Returns the scaled matrices and ``alpha``:
+    the zeros of the given model are those found divided by ``alpha``.
+    """
+    norm_A = frobenius(A)
+    if not A.size or norm_A == 0.0:
+        return A, B, C, D, 1.0
+    alpha = 2.0 ** -math.frexp(norm_A)[1]
+    A1, B1 = A * alpha, B * alpha
+    size = frobenius(A1)
+    g_in = np.array([2.0 ** round(math.log2(size / v)) if v > 0 else 1.0
+                     for v in frobenius_of_columns(B1)]) if B1.size else np.ones(B.shape[1])
+    g_out = np.array([2.0 ** round(math.log2(size / v)) if v > 0 else 1.0
+                      for v in frobenius_of_rows(C)]) if C.size else np.ones(C.shape[0])
+    with np.errstate(over="ignore", under="ignore"):
+        D2 = g_out[:, None] * D * g_in[None, :]
+    if np.all(np.isfinite(D2)) and np.array_equal(D2 != 0, D != 0):
+        return A1, B1 * g_in[None, :], g_out[:, None] * C, D2, alpha
+    if norm_A > 1.0:
+        return A1, B1, C, D, alpha
+    return A, B, C, D, 1.0
 
 
 _REALIZATIONS = {"minimal", "as_given"}
