@@ -32,7 +32,7 @@ import scipy.linalg
 from scipy.linalg import lapack
 
 from plantcore.core.errors import AccuracyWarning, NumericalBreakdown
-from plantcore.core.model import StateSpaceModel, as_model
+from plantcore.core.model import StateSpaceModel, as_model, sparse_model_or_none
 from plantcore.reduction.gramians import _fmt, _schur_factors
 from plantcore.structure.certificate import _Schur
 from plantcore.structure.kalman import _prepare
@@ -178,6 +178,8 @@ def hankel_singular_values(model) -> np.ndarray:
     Parameters
     ----------
     model : StateSpaceModel, python-control StateSpace, or tuple (A, B, C[, D])
+        A sparse model goes to :func:`plantcore.large.low_rank_hankel_singular_values`
+        (stable models only; approximate values from low-rank Gramian factors).
 
     Returns
     -------
@@ -221,6 +223,11 @@ def hankel_singular_values(model) -> np.ndarray:
     >>> bool(np.isclose(hsv[0], 1.0 / 8.0))
     True
     """
+    sparse = sparse_model_or_none(model)
+    if sparse is not None:  # large sparse models: low-rank factors (issue 18)
+        from plantcore.large.low_rank_balanced import low_rank_hankel_singular_values
+
+        return low_rank_hankel_singular_values(sparse)
     model = as_model(model)
     if model.n == 0:
         return np.zeros(0)
@@ -328,7 +335,9 @@ def balanced_truncation(model, order=None, max_error=None) -> ReducedModel:
     Parameters
     ----------
     model : StateSpaceModel, python-control StateSpace, or tuple (A, B, C[, D])
-        Continuous or discrete time; no mode on the stability boundary.
+        Continuous or discrete time; no mode on the stability boundary.  A sparse model goes
+        to :func:`plantcore.large.low_rank_balanced_truncation` (stable models only), which
+        returns a :class:`plantcore.large.LowRankReduction` with the same leading fields.
     order : int, optional
         Number of states of the reduced model, counting the unstable states (which are
         all kept).  Must lie between the number of unstable modes and that number plus the
@@ -411,6 +420,11 @@ def balanced_truncation(model, order=None, max_error=None) -> ReducedModel:
     True
     """
     order, max_error = _check_options(order, max_error)
+    sparse = sparse_model_or_none(model)
+    if sparse is not None:  # large sparse models: low-rank factors (issue 18)
+        from plantcore.large.low_rank_balanced import low_rank_balanced_truncation
+
+        return low_rank_balanced_truncation(sparse, order=order, max_error=max_error)
     model = as_model(model)
     n = model.n
     discrete = model.is_discrete
