@@ -18,6 +18,8 @@ from plantcore.estimation import (ConstrainedJacobians, NonlinearObservability,
                                   nonlinear_observability)
 from plantcore.examples import example_path, list_examples, load_example
 from plantcore.files import load_model, save_model
+from plantcore.large import (LowRankFactor, LowRankGramians, LowRankReduction, PeakErrorEstimate,
+                             StructuralReduction, low_rank_gramians, structural_reduction)
 from plantcore.reduction import (EquivalenceCertificate, PeakGain, ReducedModel,
                                  balanced_truncation, check_equivalence, h2_norm,
                                  hankel_singular_values, peak_gain)
@@ -38,6 +40,13 @@ from plantcore.structure.zeros import TransmissionZeros, transmission_zeros
 from plantcore.sweeps import SweepResult, SweepSpec, grid, load_sweep_spec, random_points, sweep
 
 __all__ = [
+    "structural_reduction",
+    "StructuralReduction",
+    "low_rank_gramians",
+    "LowRankGramians",
+    "LowRankFactor",
+    "LowRankReduction",
+    "PeakErrorEstimate",
     "audit_linearized_observability",
     "audit_from_file",
     "ObservabilityAudit",
