@@ -88,12 +88,16 @@ def _tail_bound(hsv: np.ndarray, r: int) -> float:
     return 2.0 * float(tail[distinct].sum())
 
 
-def _factors(model, tol, progress):
+def _factors(model, tol, progress, precomputed=None):
     model = as_model(model, allow_sparse=True)
-    structural = structural_reduction(model)
-    if progress is not None:
-        progress(f"structural reduction: {structural.original_order} -> {structural.order} states")
-    gramians = low_rank_gramians(structural.model, tol=tol, progress=progress)
+    if precomputed is not None:  # (structural, gramians) of this model, computed before
+        structural, gramians = precomputed
+    else:
+        structural = structural_reduction(model)
+        if progress is not None:
+            progress(f"structural reduction: {structural.original_order} -> "
+                     f"{structural.order} states")
+        gramians = low_rank_gramians(structural.model, tol=tol, progress=progress)
     for label, factor in (("controllability", gramians.controllability),
                           ("observability", gramians.observability)):
         if not factor.converged:
@@ -137,7 +141,7 @@ def _cuts(hsv: np.ndarray) -> list[int]:
 
 def low_rank_balanced_truncation(model, order=None, max_error=None, *,
                                  tol: float = DEFAULT_RESIDUAL_TOLERANCE, check_error: bool = True,
-                                 progress=None) -> LowRankReduction:
+                                 progress=None, _precomputed=None) -> LowRankReduction:
     """Balanced truncation of a stable sparse model from low-rank Gramian factors.
 
     Parameters
@@ -210,7 +214,7 @@ def low_rank_balanced_truncation(model, order=None, max_error=None, *,
                                   or not isinstance(max_error, int | float)
                                   or not math.isfinite(max_error) or max_error < 0):
         raise ValueError(f"max_error must be a non-negative finite number, got {max_error!r}.")
-    model, structural, gramians, U, hsv, V = _factors(model, tol, progress)
+    model, structural, gramians, U, hsv, V = _factors(model, tol, progress, _precomputed)
     r_max = _accurate_count(hsv, tol)
     cuts = [c for c in _cuts(hsv) if c <= r_max]
     if order is not None:

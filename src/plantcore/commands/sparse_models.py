@@ -1,0 +1,72 @@
+"""The sparse branches of ``plantcore inspect``, ``reduce`` and ``report`` (issue 18).
+
+:mod:`plantcore.cli` hands a model here when ``model.is_sparse``; these handlers call
+:mod:`plantcore.large` and print or write what :mod:`plantcore.reports.sparse_report`
+renders.  Progress goes to standard error (only when it is a terminal, like every progress
+line of plantcore).  Not a subcommand of its own: :func:`register` adds nothing.
+"""
+
+from __future__ import annotations
+
+import json
+
+from plantcore.core.progress import Progress
+
+__all__ = ["inspect_sparse", "reduce_sparse", "register", "report_sparse"]
+
+
+def register(subparsers) -> None:
+    """Nothing to register: the handlers serve the existing commands."""
+
+
+def inspect_sparse(args, model) -> int:
+    from plantcore.large.summary import summarize_sparse
+    from plantcore.reports.sparse_report import (
+        sparse_summary_dict,
+        sparse_summary_markdown,
+        sparse_summary_text,
+    )
+
+    with Progress("inspect") as bar:
+        summary = summarize_sparse(model, progress=bar.step)
+    if args.format == "json":
+        print(json.dumps(sparse_summary_dict(summary), indent=2, allow_nan=False))
+    elif args.format == "markdown":
+        print(sparse_summary_markdown(summary, source=args.model), end="")
+    else:
+        print(sparse_summary_text(summary, source=args.model), end="")
+    return 0
+
+
+def reduce_sparse(args, model) -> int:
+    from plantcore.files import save_model
+    from plantcore.large.low_rank_balanced import low_rank_balanced_truncation
+    from plantcore.reports.sparse_report import sparse_reduction_lines
+
+    # the output was checked by the command before the model was read
+    with Progress("reduce") as bar:
+        reduction = low_rank_balanced_truncation(model, order=args.order,
+                                                 max_error=args.max_error, progress=bar.step)
+    for line in sparse_reduction_lines(reduction):
+        print(line)
+    save_model(reduction.model, args.output, inputs=(args.model,), overwrite=args.force)
+    print(f"reduced model written to {args.output} (dense, {reduction.order} states)")
+    return 0
+
+
+def report_sparse(args, model) -> int:
+    from plantcore.large.summary import sparse_report_contents
+    from plantcore.reports.sparse_report import write_sparse_html_report
+
+    with Progress("report") as bar:
+        contents = sparse_report_contents(model, order=args.order, max_error=args.max_error,
+                                          progress=bar.step)
+    write_sparse_html_report(contents, args.output, source=args.model, inputs=(args.model,),
+                             overwrite=args.force)
+    red = contents.reduction
+    reduced = f", reduced {red.order}" if red is not None else ""
+    print(f"report written to {args.output} ({model.n:,} states, sparse, structurally "
+          f"{contents.summary.structural.order:,}{reduced})")
+    if red is None:
+        print(f"no reduction shown: {contents.reduction_problem}")
+    return 0
