@@ -108,6 +108,10 @@ def _cmd_inspect(args) -> int:
     from plantcore.files import load_model
 
     model = load_model(args.model)
+    if model.is_sparse:  # structural verdicts and low-rank Gramians (issue 18)
+        from plantcore.commands.sparse_models import inspect_sparse
+
+        return inspect_sparse(args, model)
     analysis = analyze(model, tol=args.tol)
     if args.format == "json":
         print(json.dumps(analysis.to_dict(), indent=2, allow_nan=False))
@@ -128,6 +132,10 @@ def _cmd_reduce(args) -> int:
                         suffixes=MODEL_FILE_SUFFIXES, kind="model file format",
                         suffix_selects_format=True)
     model = load_model(args.model)
+    if model.is_sparse:  # structural pre-reduction and low-rank balanced truncation (issue 18)
+        from plantcore.commands.sparse_models import reduce_sparse
+
+        return reduce_sparse(args, model)
     minimal = minimal_realization(model, tol=args.tol)
     reduced = minimal.model
     print(f"minimal realization: {model.n} -> {minimal.order} states "
@@ -205,6 +213,10 @@ def _cmd_report(args) -> int:
     _check_output_first(args.output, inputs=(args.model,), force=args.force,
                         suffixes=_HTML_SUFFIXES, kind="report")
     model = load_model(args.model)
+    if model.is_sparse:  # sparse solves only, no dense n x n arrays (issue 18)
+        from plantcore.commands.sparse_models import report_sparse
+
+        return report_sparse(args, model)
     contents = write_html_report(model, args.output, tol=args.tol, order=args.order,
                                  max_error=args.max_error, source=args.model,
                                  overwrite=args.force).contents
