@@ -6,4 +6,4 @@ Each module here has ``register(subparsers) -> handler | None``: it adds its sub
 :data:`COMMAND_MODULES` and handles errors and exit codes for all commands alike.
 """
 
-COMMAND_MODULES = ("suggest", "realize")
+COMMAND_MODULES = ("suggest", "realize", "plate")
