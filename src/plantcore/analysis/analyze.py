@@ -15,7 +15,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.linalg
 
-from plantcore.reduction.balanced import hankel_singular_values
+from plantcore.reduction.balanced import _hankel_values, _split
 from plantcore.core.errors import NumericalBreakdown
 from plantcore.structure.kalman import PART_NAMES, KalmanDecomposition, _prepare, kalman_decomposition
 from plantcore.structure.minimal import MinimalRealization, _minimal_from_decomposition
@@ -23,6 +23,7 @@ from plantcore.core.model import StateSpaceModel
 from plantcore.structure.modes import NARROW_MARGIN, _mode_table
 from plantcore.structure.removed_modes import removed_from_modes, warn_hidden_modes
 from plantcore.structure.distance import DistanceEstimate, _distances
+from plantcore.structure.pbh_measures import PBHMeasures
 from plantcore.core.rendering import render
 from plantcore.core.wording import SAFETY_CAUTION, describe_direction
 
@@ -261,15 +262,19 @@ def analyze(model, tol=None) -> Analysis:
     p = _prepare(model, tol)
     model = p.model
     kd = kalman_decomposition(model, tol)
-    modes = tuple(_mode_table(kd, p, NARROW_MARGIN))
+    # One real Schur form of the equilibrated A serves the mode table, the boundary test,
+    # the distance starts and the Gramians (it is computed on first use).
+    whole = PBHMeasures(p.A)
+    modes = tuple(_mode_table(kd, p, NARROW_MARGIN, whole))
     removed = removed_from_modes(modes)
     mr = _minimal_from_decomposition(kd, p.s, removed)
     stabilizable = all(m.stable or m.controllable for m in modes)
     detectable = all(m.stable or m.observable for m in modes)
-    to_unc, to_unobs = _distances(p, modes)
+    to_unc, to_unobs = _distances(p, modes, whole)
     note = ""
     try:
-        hsv = hankel_singular_values(model)
+        hsv = _hankel_values(_split(model, p, whole.schur), model.is_discrete) if model.n \
+            else np.zeros(0)
         n_stable = hsv.size
         if model.n and n_stable == 0:
             note = "no mode is stable, so there are no Hankel singular values."

@@ -362,8 +362,11 @@ def _short(lam: complex) -> str:
     return f"lambda = {lam.real:.4g} {'+' if lam.imag > 0 else '-'} {abs(lam.imag):.4g}j"
 
 
-def _distances(p, modes=None) -> tuple[DistanceEstimate, DistanceEstimate]:
+def _distances(p, modes=None, whole=None) -> tuple[DistanceEstimate, DistanceEstimate]:
     """Both distance estimates for a prepared model (internal).
+
+    ``whole`` may hand in the PBH measures of ``p.A`` (its Schur form) shared with the mode
+    table and the Gramians (:func:`plantcore.analyze`).
 
     ``modes`` (the mode table of the same model) lets the evaluations at the eigenvalues be
     reused: a margin equals the distance function at its eigenvalue exactly when it was
@@ -387,7 +390,7 @@ def _distances(p, modes=None) -> tuple[DistanceEstimate, DistanceEstimate]:
         values = _clustered_eigenvalues(p.A, _CLUSTER_FACTOR * nA)
     # one Schur form of A serves both sides: [A^T - λI, C^T] is the transpose of
     # [A - λI; C], with the same singular values
-    on_A = PBHMeasures(p.A)
+    on_A = PBHMeasures(p.A) if whole is None else whole
     return tuple(_distances_of([
         (p.A, p.B_dec, p.scale, values, "uncontrollability", known_c,
          lambda points: on_A.smallest(p.B_dec, points, "c")),

@@ -300,8 +300,11 @@ def _sort_key(value: complex, discrete: bool):
     return (-growth, -value.imag)
 
 
-def _mode_table(kd, p, narrow_margin: float) -> list[Mode]:
-    """The per-mode classification from a decomposition and its prepared model (internal)."""
+def _mode_table(kd, p, narrow_margin: float, whole: PBHMeasures | None = None) -> list[Mode]:
+    """The per-mode classification from a decomposition and its prepared model (internal).
+
+    ``whole`` may hand in the measures of ``p.A`` (and so its Schur form) that the caller
+    shares with other sections (:func:`plantcore.analyze`)."""
     n = p.model.n
     if n == 0:
         return []
@@ -318,7 +321,7 @@ def _mode_table(kd, p, narrow_margin: float) -> list[Mode]:
     # model itself when it is controllable: an orthogonal change of basis leaves the
     # singular values of [A - λI, B] unchanged).  Each matrix whose margins are measured
     # gets one Schur form, computed on first use (see plantcore.structure.pbh_measures).
-    whole = PBHMeasures(p.A)
+    whole = PBHMeasures(p.A) if whole is None else whole
     if n1 + n2 == n:
         on_R, B_R = whole, p.B_dec
     else:
@@ -340,14 +343,16 @@ def _mode_table(kd, p, narrow_margin: float) -> list[Mode]:
     cache_o: dict = {}
     for i, name in enumerate(PART_NAMES):
         sl = slice(cuts[i], cuts[i + 1])
-        values = _clustered_eigenvalues(Az[sl, sl], cluster_tol)
-        if values.size:
-            # the part's block in equilibrated coordinates, for the boundary test; a part
-            # that is the whole model in orthonormal coordinates shares the model's Schur form
-            T_part, Ti_part = T_e[:, sl], Ti_e[sl, :]
-            if values.size == n and _orthonormal_pair(T_part, Ti_part):
-                values = _snap_to_boundary(p.A, values, delta, nA, discrete, whole)
-            else:
+        T_part, Ti_part = T_e[:, sl], Ti_e[sl, :]
+        if cuts[i + 1] - cuts[i] == n and _orthonormal_pair(T_part, Ti_part):
+            # a part that is the whole model in orthonormal coordinates: its eigenvalues
+            # and boundary test come from the model's own Schur form (no second one)
+            values = _cluster_means(schur_eigenvalues(whole.schur.T), cluster_tol)
+            values = _snap_to_boundary(p.A, values, delta, nA, discrete, whole)
+        else:
+            values = _clustered_eigenvalues(Az[sl, sl], cluster_tol)
+            if values.size:
+                # the part's block in equilibrated coordinates, for the boundary test
                 block = (Ti_part @ p.A) @ T_part
                 values = _snap_to_boundary(block, values, delta, nA, discrete)
         controllable = i in (0, 1)
