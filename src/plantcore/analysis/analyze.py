@@ -15,17 +15,22 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.linalg
 
-from plantcore.reduction.balanced import _hankel_values, _split
 from plantcore.core.errors import NumericalBreakdown
-from plantcore.structure.kalman import PART_NAMES, KalmanDecomposition, _prepare, kalman_decomposition
-from plantcore.structure.minimal import MinimalRealization, _minimal_from_decomposition
 from plantcore.core.model import StateSpaceModel
-from plantcore.structure.modes import NARROW_MARGIN, _mode_table
-from plantcore.structure.removed_modes import removed_from_modes, warn_hidden_modes
-from plantcore.structure.distance import DistanceEstimate, _distances
-from plantcore.structure.pbh_measures import PBHMeasures
 from plantcore.core.rendering import render
 from plantcore.core.wording import SAFETY_CAUTION, describe_direction
+from plantcore.reduction.balanced import _hankel_values, _split
+from plantcore.structure.distance import DistanceEstimate, _distances
+from plantcore.structure.kalman import (
+    PART_NAMES,
+    KalmanDecomposition,
+    _prepare,
+    kalman_decomposition,
+)
+from plantcore.structure.minimal import MinimalRealization, _minimal_from_decomposition
+from plantcore.structure.modes import NARROW_MARGIN, _mode_table
+from plantcore.structure.pbh_measures import PBHMeasures
+from plantcore.structure.removed_modes import removed_from_modes, warn_hidden_modes
 
 __all__ = ["Analysis", "analyze"]
 
