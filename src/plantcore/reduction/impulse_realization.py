@@ -1,0 +1,423 @@
+r"""A state-space realization built from impulse-response data, with evidence for its order.
+
+Given Markov parameters ``h_0 = D, h_1, h_2, ..., h_L`` (``p x m`` each; measured pulse-response
+samples of a sampled system, or the expansion coefficients of a continuous one, see
+:mod:`plantcore.reduction.markov`), the block Hankel matrix
+
+.. math::
+
+    H = \begin{bmatrix} h_1 & h_2 & \cdots & h_r \\ h_2 & h_3 & \cdots & h_{r+1} \\
+        \vdots & & & \vdots \\ h_q & h_{q+1} & \cdots & h_{q+r-1} \end{bmatrix}
+      = \mathcal{O}_q \, \mathcal{C}_r
+
+factors into the observability and controllability matrices of any realization, so its rank
+is the order of a minimal realization (Ho and Kalman 1966).  Its singular values are the
+evidence for the order: exact data show ``n`` values above rounding and the rest at the
+rounding level; noisy data show ``n`` values above a plateau made by the noise.  The order
+is decided from them with a recorded :class:`~plantcore.core.rank.RankDecision`, and the
+realization is read from the truncated singular value decomposition ``H ≈ U_n Σ_n V_n^T``
+(Kung 1978; the eigensystem realization algorithm of Juang and Pappa 1985 is the same idea).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.linalg
+
+from plantcore.core.model import StateSpaceModel
+from plantcore.core.rank import RankDecision, decide_rank, resolve_tolerance
+from plantcore.reduction.markov import MarkovParameters, markov_parameters
+
+__all__ = ["ImpulseRealization", "realize_impulse_response"]
+
+#: Seeded draws of a white-noise Hankel matrix used to find the noise floor.
+_NOISE_DRAWS = 8
+
+#: The noise floor is this factor times the largest spectral norm among the draws; the
+#: spectral norm of a random matrix concentrates to a few per cent of its mean, so 1.25
+#: keeps the noise of the data below the floor with a wide margin.
+_FLOOR_FACTOR = 1.25
+
+_NOISE_SEED = 20261203
+
+
+@dataclass(frozen=True)
+class ImpulseRealization:
+    """A realization of impulse-response data and the evidence for its order.
+
+    Attributes
+    ----------
+    model : StateSpaceModel
+        The realization, of order ``order``; ``D = h_0``.  Discrete time with the data's
+        sample time, or continuous time when the data are expansion coefficients.
+    order : int
+        The order of ``model``: the user's when given, else ``automatic_order``.
+    automatic_order : int
+        The order read from the Hankel singular values (``decision.rank``).
+    hankel_singular_values : ndarray
+        Singular values of the block Hankel matrix of the data, descending.
+    noise_floor : float
+        The value below which a Hankel singular value counts as noise or rounding:
+        the larger of the rounding floor (``tol x sigma_1``) and the noise floor (the
+        spectral norm a white-noise Hankel matrix of the noise level reaches, see Notes).
+    noise_level : float
+        The standard deviation of the noise on each entry of ``h_1 .. h_L``: given, or
+        estimated, or 0 for exact data.
+    noise_level_source : str
+        ``"given"``, ``"estimated"`` or ``"exact data"``.
+    gap : float
+        ``sigma_n / sigma_{n+1}`` at the automatic order (``inf`` when nothing is dropped
+        or the next value is zero; ``nan`` when the order is 0).
+    signal_margin : float
+        ``sigma_n / noise_floor`` at the automatic order (``nan`` for order 0): how far the
+        weakest kept state stands above the floor.
+    decision : RankDecision
+        The order decision, values and tolerance relative to ``sigma_1``; fragile when a
+        kept or dropped value lies within a factor 100 of the floor.
+    saturated : bool
+        True when every Hankel singular value the data allow lies above the floor: the data
+        are too short to show the order (give more samples); the answer is then fragile.
+    block_rows, block_columns : int
+        The Hankel matrix has ``block_rows`` x ``block_columns`` blocks of ``p x m``.
+    reproduction_error : float
+        ``||h_hat - h||_F / ||h||_F`` over all given samples, ``h_hat`` the Markov
+        parameters of ``model``.
+    reproduction_rms : float
+        The root mean square of ``h_hat - h`` over the entries of ``h_1 .. h_L``; for a
+        good realization of noisy data it is close to ``noise_level``.
+    time_scale : float
+        1.0 for sampled data; for continuous-time coefficients the ``rho`` by which
+        ``h_k`` was divided as ``h_k / rho^(k-1)`` before the Hankel matrix was formed (the
+        largest geometric growth rate of ``||h_k||``), so that the coefficients do not grow
+        and the Hankel matrix is not dominated by its last entries.  The singular values,
+        floor, noise level and fit refer to the rescaled coefficients; the model is scaled
+        back (``A = rho A_hat``).
+    notes : tuple of str
+        Sentences on what was decided and why.
+    """
+
+    model: StateSpaceModel
+    order: int
+    automatic_order: int
+    hankel_singular_values: np.ndarray = field(repr=False)
+    noise_floor: float
+    noise_level: float
+    noise_level_source: str
+    gap: float
+    signal_margin: float
+    decision: RankDecision
+    saturated: bool
+    block_rows: int
+    block_columns: int
+    reproduction_error: float
+    reproduction_rms: float
+    time_scale: float = 1.0
+    notes: tuple = ()
+
+    @property
+    def decisions(self) -> list:
+        """The order decision, as a list like the other results' ``decisions``."""
+        return [self.decision]
+
+    @property
+    def fragile(self) -> bool:
+        """True when the order depends on the floor (within a factor 100) or the data are
+        too short to show it."""
+        return self.decision.fragile or self.saturated
+
+
+def _block_hankel(h: np.ndarray, q: int, r: int, first: int = 1) -> np.ndarray:
+    """``[h_{first+i+j}]`` for ``i < q``, ``j < r`` as a ``(q p) x (r m)`` matrix."""
+    idx = np.add.outer(np.arange(q), np.arange(r)) + first
+    _, p, m = h.shape
+    return h[idx].transpose(0, 2, 1, 3).reshape(q * p, r * m)
+
+
+def _validate(data, sample_time, inputs, outputs):
+    """Clean ``(K, p, m)`` float data, the sample time and the names."""
+    if isinstance(data, MarkovParameters):
+        if sample_time is not None and data.sample_time is not None \
+                and float(sample_time) != data.sample_time:
+            raise ValueError(f"sample_time {sample_time!r} conflicts with the data's sample time "
+                             f"{data.sample_time!r}; give one of them.")
+        sample_time = data.sample_time if sample_time is None else sample_time
+        inputs = data.inputs if inputs is None else inputs
+        outputs = data.outputs if outputs is None else outputs
+        data = data.values
+    try:
+        h = np.array(data, dtype=float)
+    except (TypeError, ValueError):
+        raise ValueError("the impulse response must be an array of real numbers of shape "
+                         "(samples, outputs, inputs).") from None
+    if h.ndim == 1:
+        h = h[:, None, None]
+    if h.ndim != 3:
+        raise ValueError(f"the impulse response has {h.ndim} dimensions; give an array of shape "
+                         "(samples, outputs, inputs), or one of shape (samples,) for one input "
+                         "and one output.")
+    if h.shape[1] == 0 or h.shape[2] == 0:
+        raise ValueError(f"the impulse response has shape {h.shape}; it needs at least one "
+                         "output and one input.")
+    if h.shape[0] < 4:
+        raise ValueError(f"the impulse response has {h.shape[0]} samples; at least 4 are needed "
+                         "(h_0 = D and three more), and about 2 n + 2 for order n.")
+    bad = np.argwhere(~np.isfinite(h))
+    if bad.size:
+        k, i, j = (int(x) for x in bad[0])
+        raise ValueError(f"the impulse response has the non-finite value {float(h[k, i, j])!r} at "
+                         f"sample {k}, output {i}, input {j}; every value must be finite.")
+    if sample_time is not None:
+        if isinstance(sample_time, bool):
+            raise ValueError(f"sample_time must be a positive number, got {sample_time!r}.")
+        sample_time = float(sample_time)
+        if not (math.isfinite(sample_time) and sample_time > 0):
+            raise ValueError(f"sample_time must be a positive finite number, got {sample_time!r}.")
+    return h, sample_time, inputs, outputs
+
+
+def _time_scale(h: np.ndarray) -> float:
+    """``rho`` such that ``h_k / rho^(k-1)`` does not grow: the largest geometric growth rate
+    of ``||h_k||`` from the first nonzero coefficient (continuous time only; 1.0 if none)."""
+    norms = np.linalg.norm(h[1:].reshape(h.shape[0] - 1, -1), axis=1)
+    nonzero = np.flatnonzero(norms > 0)
+    if nonzero.size < 2:
+        return 1.0
+    k0 = nonzero[0]
+    later = nonzero[1:]
+    rates = (norms[later] / norms[k0]) ** (1.0 / (later - k0))
+    rho = float(rates.max())
+    return rho if math.isfinite(rho) and rho > 0 else 1.0
+
+
+def _noise_spectra(L: int, p: int, m: int, q: int, r: int) -> np.ndarray:
+    """Singular values of seeded unit-variance white-noise Hankel matrices, one row per draw."""
+    rng = np.random.default_rng(_NOISE_SEED)
+    rows = []
+    for _ in range(_NOISE_DRAWS):
+        e = rng.standard_normal((L + 1, p, m))
+        rows.append(scipy.linalg.svdvals(_block_hankel(e, q, r)))
+    return np.array(rows)
+
+
+def _estimate_noise(s: np.ndarray, unit: np.ndarray) -> float:
+    """Noise level from the trailing half of the Hankel singular values.
+
+    Each trailing value is divided by the mean value of the same index for unit noise; the
+    median ratio is the estimate.  Valid when the order is below half the number of values.
+    """
+    mean = unit.mean(axis=0)
+    half = s.size // 2
+    tail = slice(half, s.size)
+    ok = mean[tail] > 0
+    if not np.any(ok):
+        return 0.0
+    return float(np.median(s[tail][ok] / mean[tail][ok]))
+
+
+def realize_impulse_response(data, *, sample_time=None, order=None, noise_level=None, tol=None,
+                             inputs=None, outputs=None, name=None) -> ImpulseRealization:
+    r"""Build a state-space model from impulse-response data (Markov parameters).
+
+    Parameters
+    ----------
+    data : (K, p, m) array_like, (K,) array_like, or MarkovParameters
+        ``data[0] = D`` (the response at the instant of the pulse) and ``data[k]`` the
+        ``k``-th Markov parameter: for sampled data the response at sample ``k`` to a unit
+        pulse (one entry per output and input), for a continuous model the expansion
+        coefficients ``C A^{k-1} B``.  A flat sequence is one input and one output.
+    sample_time : float, optional
+        The sample time of the data; the model is then discrete time.  Without it (and
+        without one in ``data``) the model is continuous time and the data are read as
+        expansion coefficients at infinity (:mod:`plantcore.reduction.markov`).
+    order : int, optional
+        The order to build, overriding the automatic one (which is still decided and
+        recorded); at most ``min((q - 1) p, r m)`` for a ``q x r`` block Hankel matrix.
+    noise_level : float, optional
+        Standard deviation of the (white) noise on each entry of ``h_1 .. h_L``.  ``0``
+        declares the data exact (only the rounding floor applies).  Default: estimated from
+        the trailing half of the Hankel singular values (see Notes).
+    tol : float, optional
+        Relative rounding floor (relative to the largest Hankel singular value); default
+        the plantcore rank tolerance ``max(5e-11, 20 N eps)`` (:mod:`plantcore.core.rank`),
+        which treats as zero the rounding of Markov parameters computed from a model.
+    inputs, outputs : sequence of str, optional
+        Names for the model.
+    name : str, optional
+        Name of the model.
+
+    Returns
+    -------
+    ImpulseRealization
+
+    Raises
+    ------
+    ValueError
+        For data of the wrong shape, non-finite values, fewer than 4 samples, a bad sample
+        time, noise level or tolerance, or an order the data cannot support.
+
+    Notes
+    -----
+    1. **Hankel matrix.**  With ``L = K - 1`` parameters ``h_1 .. h_L``, ``q = ceil(L / 2)``
+       block rows and ``r = L + 1 - q`` block columns use every sample once on the
+       anti-diagonals.
+    2. **Floor.**  Weyl's inequality bounds every singular value of ``H + E`` that the
+       noise-free rank ``n`` leaves (``sigma_{n+1}``, ...) by ``||E||_2``.  The noise floor
+       is ``1.25`` times the largest spectral norm of 8 seeded draws of a Hankel matrix of
+       the same structure filled with white noise of the noise level (a Monte Carlo bound:
+       ``||E||_2`` of a random matrix concentrates within a few per cent).  When the noise
+       level is not given, it is estimated as the median, over the trailing half of the
+       values, of ``sigma_i`` divided by the mean ``sigma_i`` of unit noise; the estimate
+       is sound when the order is below half the number of values.  The floor is the
+       larger of this noise floor and the rounding floor ``tol sigma_1``.
+    3. **Order.**  The number of values above the floor, recorded as a ``RankDecision``
+       (values relative to ``sigma_1``, the floor as tolerance).  It is fragile when a kept
+       or dropped value lies within a factor 100 of the floor.  With noisy data the dropped
+       values *are* the noise plateau, just below the floor, so every order read from noisy
+       data is marked fragile: it would change if the noise level were under-estimated by
+       a small factor.  Judge such an order by ``gap`` (``sigma_n / sigma_{n+1}``) and
+       ``signal_margin`` (``sigma_n`` over the floor).
+    4. **Realization** (Kung 1978).  ``O = U_n Σ_n^{1/2}``, ``Ctl = Σ_n^{1/2} V_n^T``;
+       ``C`` is the first block row of ``O``, ``B`` the first block column of ``Ctl``, and
+       ``A`` the least-squares solution of the shift equation
+       ``O[p:] = O[:-p] A`` (by the SVD-based solver).  The result is balanced in the sense
+       of the finite Hankel matrix (both factors have Gramian ``Σ_n``), and ``D = h_0``.
+       With exact data of an order-``n`` system and ``q - 1 >= n``, the realization is
+       exact up to rounding (Ho and Kalman 1966).
+    5. **Fit.**  The Markov parameters of the model are compared with the data
+       (``reproduction_error``, ``reproduction_rms``).
+
+    Channels with very different units should be scaled first: the singular values weigh
+    all entries alike.
+
+    References
+    ----------
+    .. [1] B. L. Ho and R. E. Kalman, "Effective construction of linear state-variable
+       models from input/output functions", Regelungstechnik 14(12), 545-548, 1966.
+    .. [2] S.-Y. Kung, "A new identification and model reduction algorithm via singular
+       value decomposition", Proc. 12th Asilomar Conference on Circuits, Systems and
+       Computers, 705-714, 1978.
+    .. [3] J.-N. Juang and R. S. Pappa, "An eigensystem realization algorithm for modal
+       parameter identification and model reduction", Journal of Guidance, Control, and
+       Dynamics 8(5), 620-627, 1985.
+    .. [4] H. Weyl, "Das asymptotische Verteilungsgesetz der Eigenwerte linearer partieller
+       Differentialgleichungen", Mathematische Annalen 71, 441-479, 1912 (the perturbation
+       inequality for singular values; from memory).
+
+    Examples
+    --------
+    The pulse response ``0, 1, 0.5, 0.25, ...`` of ``1 / (z - 0.5)`` gives order 1 and the
+    pole 0.5:
+
+    >>> import numpy as np
+    >>> from plantcore.reduction.impulse_realization import realize_impulse_response
+    >>> h = np.r_[0.0, 0.5 ** np.arange(19)]
+    >>> fit = realize_impulse_response(h, sample_time=0.1, noise_level=0.0)
+    >>> fit.order, bool(np.isclose(fit.model.A[0, 0], 0.5))
+    (1, True)
+    """
+    h, sample_time, inputs, outputs = _validate(data, sample_time, inputs, outputs)
+    K, p, m = h.shape
+    L = K - 1
+    rho = 1.0 if sample_time is not None else _time_scale(h)
+    if rho != 1.0:
+        h = h / rho ** np.maximum(np.arange(K) - 1.0, 0.0)[:, None, None]
+    q = (L + 1) // 2 + (L + 1) % 2
+    r = L + 1 - q
+    H = _block_hankel(h, q, r)
+    U, s, Vt = scipy.linalg.svd(H, full_matrices=False)
+    n_max = int(min((q - 1) * p, r * m, s.size))
+    tol = resolve_tolerance(tol, s.size)
+    sigma1 = float(s[0]) if s.size else 0.0
+    notes = []
+    if noise_level is not None:
+        if isinstance(noise_level, bool):
+            raise ValueError(f"noise_level must be a non-negative number, got {noise_level!r}.")
+        noise_level = float(noise_level)
+        if not (math.isfinite(noise_level) and noise_level >= 0):
+            raise ValueError("noise_level must be a non-negative finite number (a standard "
+                             f"deviation), got {noise_level!r}.")
+    if sigma1 == 0.0:
+        floor_noise, level, source = 0.0, float(noise_level or 0.0), "exact data"
+        unit_norm = 0.0
+    elif noise_level == 0.0:
+        floor_noise, level, source, unit_norm = 0.0, 0.0, "exact data", 0.0
+    else:
+        unit = _noise_spectra(L, p, m, q, r)
+        unit_norm = float(unit[:, 0].max())
+        if noise_level is None:
+            level, source = _estimate_noise(s, unit), "estimated"
+        else:
+            level, source = noise_level, "given"
+        floor_noise = _FLOOR_FACTOR * level * unit_norm
+    floor = max(floor_noise, tol * sigma1)
+    relative_tol = floor / sigma1 if sigma1 > 0 else tol
+    decision = decide_rank(s, sigma1 if sigma1 > 0 else 1.0, relative_tol,
+                           "order from the Hankel singular values")
+    raw = decision.rank
+    automatic = min(raw, n_max)
+    if automatic != raw:
+        decision = RankDecision(decision.label, automatic, decision.size,
+                                float(s[automatic - 1] / sigma1) if automatic else math.inf,
+                                float(s[automatic] / sigma1), decision.tolerance)
+    saturated = sigma1 > 0 and (raw > n_max or raw == s.size)
+    if source == "estimated":
+        notes.append(f"Noise level {level:.3g} estimated from the trailing half of the Hankel "
+                     "singular values (sound when the order is below half their number); give "
+                     "the noise level, or 0 for exact data, to decide it yourself.")
+    if automatic:
+        gap = float(s[automatic - 1] / s[automatic]) if automatic < s.size and s[automatic] > 0 \
+            else math.inf
+        margin = float(s[automatic - 1] / floor) if floor > 0 else math.inf
+    else:
+        gap, margin = math.nan, math.nan
+    notes.append(f"{automatic} of {s.size} Hankel singular values lie above the floor "
+                 f"{floor:.3g} ({'noise' if floor_noise >= tol * sigma1 else 'rounding'}).")
+    if saturated:
+        notes.append("Every Hankel singular value the data allow lies above the floor: the data "
+                     "are too short to show the order; give more samples.")
+    if order is None:
+        chosen = automatic
+    else:
+        if isinstance(order, bool) or not isinstance(order, (int, np.integer)):
+            raise ValueError(f"order must be a whole number of states, got {order!r}.")
+        if not 0 <= order <= n_max:
+            raise ValueError(f"order {order} is impossible with these data: a {q} x {r} block "
+                             f"Hankel matrix supports orders 0 to {n_max}; give more samples "
+                             "for a higher order.")
+        chosen = int(order)
+        if chosen != automatic:
+            notes.append(f"Order {chosen} chosen by the user; the Hankel singular values "
+                         f"suggest {automatic}.")
+    model = _realization(h, U, s, Vt, chosen, p, m, sample_time, inputs, outputs, name)
+    fitted = markov_parameters(model, K).values
+    diff = fitted - h
+    total = float(np.linalg.norm(h))
+    if rho != 1.0:
+        model = StateSpaceModel(rho * model.A, model.B, model.C, model.D, None, inputs=inputs,
+                                outputs=outputs, name=name)
+        notes.append(f"Continuous-time coefficients rescaled by rho^(k-1) with rho = {rho:.6g} "
+                     "(the time scale) before the Hankel matrix was formed; the singular values, "
+                     "floor, noise level and fit refer to the rescaled coefficients.")
+
+    rep_error = float(np.linalg.norm(diff) / total) if total > 0 else float(np.linalg.norm(diff))
+    rep_rms = float(np.sqrt(np.mean(diff[1:] ** 2)))
+    return ImpulseRealization(model, chosen, automatic, s, float(floor), float(level), source,
+                              gap, margin, decision, bool(saturated), q, r, rep_error, rep_rms,
+                              rho, tuple(notes))
+
+
+def _realization(h, U, s, Vt, n, p, m, sample_time, inputs, outputs, name) -> StateSpaceModel:
+    """Kung's realization of order ``n`` from the SVD of the Hankel matrix."""
+    D = h[0]
+    if n == 0:
+        return StateSpaceModel(np.zeros((0, 0)), np.zeros((0, m)), np.zeros((p, 0)), D,
+                               sample_time, inputs=inputs, outputs=outputs, name=name)
+    root = np.sqrt(s[:n])
+    O = U[:, :n] * root[None, :]
+    Ctl = root[:, None] * Vt[:n, :]
+    A = scipy.linalg.lstsq(O[:-p, :], O[p:, :], lapack_driver="gelsd")[0]
+    return StateSpaceModel(A, Ctl[:, :m], O[:p, :], D, sample_time, inputs=inputs,
+                           outputs=outputs, name=name)

@@ -1,0 +1,124 @@
+"""Realization from impulse-response data (Ho-Kalman / Kung) and the evidence for its order."""
+
+import numpy as np
+import pytest
+import scipy.linalg
+
+import plantcore as pc
+from plantcore.reduction.impulse_realization import _block_hankel, realize_impulse_response
+from plantcore.reduction.markov import markov_parameters
+
+
+def _modal(rng, n, m, p, radius=(0.6, 0.9), dt=1.0):
+    """A minimal discrete model of order n with poles of modulus in ``radius`` (known order)."""
+    blocks = []
+    for _ in range(n // 2):
+        r, a = rng.uniform(*radius), rng.uniform(0.2, 2.8)
+        blocks.append(r * np.array([[np.cos(a), np.sin(a)], [-np.sin(a), np.cos(a)]]))
+    if n % 2:
+        blocks.append(np.array([[rng.uniform(*radius)]]))
+    A = scipy.linalg.block_diag(*blocks)
+    return pc.StateSpaceModel(A, rng.standard_normal((n, m)), rng.standard_normal((p, n)),
+                              rng.standard_normal((p, m)), dt=dt)
+
+
+@pytest.mark.parametrize("discrete", [False, True])
+def test_exact_data_give_the_order_and_the_transfer_function(discrete):
+    # Ho and Kalman 1966: exact Markov parameters of a minimal order-n model give order n and
+    # the same transfer function (checked by the equivalence certificate).
+    rng = np.random.default_rng(11)
+    if discrete:
+        model = _modal(rng, 5, 2, 3, dt=0.05)
+    else:
+        A = rng.standard_normal((5, 5))
+        A -= (max(np.linalg.eigvals(A).real) + 0.5) * np.eye(5)
+        model = pc.StateSpaceModel(A, rng.standard_normal((5, 2)), rng.standard_normal((3, 5)),
+                                   rng.standard_normal((3, 2)))
+    data = markov_parameters(model, 24)
+    for level in (None, 0.0):
+        fit = realize_impulse_response(data, noise_level=level)
+        assert fit.order == fit.automatic_order == 5
+        assert not fit.fragile and not fit.saturated
+        assert fit.decision.largest_dropped < 1e-12 and fit.decision.margin > 1e3
+        assert fit.model.dt == model.dt
+        assert fit.reproduction_error < 1e-10
+        assert pc.check_equivalence(model, fit.model).equivalent
+
+
+def test_fibonacci_closed_form():
+    # h_k = Fibonacci numbers F_k (1, 1, 2, 3, 5, ...) satisfy h_{k+2} = h_{k+1} + h_k: the
+    # minimal realization has order 2 and poles (1 +- sqrt 5) / 2 (closed form).
+    F = [0.0, 1.0, 1.0]
+    while len(F) < 16:
+        F.append(F[-1] + F[-2])
+    fit = realize_impulse_response(F, sample_time=1.0, noise_level=0.0)
+    assert fit.order == 2
+    np.testing.assert_allclose(np.sort(np.linalg.eigvals(fit.model.A).real),
+                               [(1 - 5 ** 0.5) / 2, (1 + 5 ** 0.5) / 2], rtol=1e-10)
+
+
+def test_noisy_data_order_gap_and_noise_estimate():
+    # 40 dB signal-to-noise on a model whose Hankel singular values all stand well above the
+    # noise: the order is found, the dropped values form a plateau below the floor, and by
+    # Weyl's inequality every value moves by at most ||E||_2 (Weyl 1912, from memory).
+    rng = np.random.default_rng(12)
+    model = _modal(rng, 4, 2, 2, radius=(0.7, 0.8))
+    exact = markov_parameters(model, 80).values
+    sigma = np.sqrt(np.mean(exact[1:] ** 2)) / 100.0
+    noise = sigma * rng.standard_normal(exact.shape)
+    noise[0] = 0.0
+    fit = realize_impulse_response(exact + noise, sample_time=1.0)
+    assert fit.order == 4 and fit.noise_level_source == "estimated"
+    assert fit.noise_level == pytest.approx(sigma, rel=0.3)
+    s = fit.hankel_singular_values
+    assert s[3] > fit.noise_floor > s[4]
+    assert fit.gap == pytest.approx(s[3] / s[4]) and fit.gap > 3
+    assert fit.signal_margin == pytest.approx(s[3] / fit.noise_floor)
+    # The dropped values are the noise plateau just below the floor: fragile, as documented.
+    assert fit.fragile and fit.decision.fragile
+    q, r = fit.block_rows, fit.block_columns
+    exact_s = scipy.linalg.svdvals(_block_hankel(exact, q, r))
+    e_norm = np.linalg.norm(_block_hankel(noise, q, r), 2)
+    assert np.all(np.abs(s - exact_s) <= e_norm * (1 + 1e-9))
+    assert e_norm <= fit.noise_floor
+    assert fit.reproduction_rms == pytest.approx(sigma, rel=0.3)
+    given = realize_impulse_response(exact + noise, sample_time=1.0, noise_level=sigma)
+    assert given.order == 4 and given.noise_level == sigma
+
+
+def test_white_noise_alone_gives_order_zero():
+    rng = np.random.default_rng(13)
+    data = 0.01 * rng.standard_normal((60, 2, 2))
+    fit = realize_impulse_response(data, sample_time=1.0, noise_level=0.01)
+    assert fit.order == 0 and fit.model.n == 0
+    np.testing.assert_allclose(fit.model.D, data[0])
+
+
+def test_order_override_and_saturation():
+    rng = np.random.default_rng(14)
+    model = _modal(rng, 6, 1, 1)
+    data = markov_parameters(model, 30)
+    low = realize_impulse_response(data, order=2, noise_level=0.0)
+    assert low.order == 2 and low.automatic_order == 6 and low.model.n == 2
+    assert any("chosen by the user" in note for note in low.notes)
+    assert low.reproduction_error > 1e-6
+    with pytest.raises(ValueError, match="supports orders 0 to"):
+        realize_impulse_response(data, order=40)
+    short = realize_impulse_response(data.values[:8], sample_time=1.0, noise_level=0.0)
+    assert short.saturated and short.fragile and short.order < 6
+
+
+def test_bad_input():
+    with pytest.raises(ValueError, match="at least 4"):
+        realize_impulse_response([0.0, 1.0, 0.5])
+    with pytest.raises(ValueError, match="non-finite value nan at sample 2, output 0, input 0"):
+        realize_impulse_response([0.0, 1.0, np.nan, 0.25, 0.1])
+    with pytest.raises(ValueError, match="2 dimensions"):
+        realize_impulse_response(np.ones((5, 2)))
+    with pytest.raises(ValueError, match="noise_level must be a non-negative"):
+        realize_impulse_response(np.ones(6), noise_level=-1.0)
+    with pytest.raises(ValueError, match="sample_time must be a positive"):
+        realize_impulse_response(np.ones(6), sample_time=0.0)
+    data = markov_parameters(pc.StateSpaceModel([[0.5]], [[1.0]], [[1.0]], dt=0.1), 6)
+    with pytest.raises(ValueError, match="conflicts with the data's sample time"):
+        realize_impulse_response(data, sample_time=0.2)
