@@ -16,7 +16,8 @@ import math
 
 import numpy as np
 
-from plantcore.core.wording import SAFETY_CAUTION, describe_direction
+from plantcore.core.wording import SAFETY_CAUTION, counted, describe_direction
+from plantcore.reports.style import html_number, html_page
 from plantcore.reports.text import _num
 
 __all__ = ["audit_html", "audit_text"]
@@ -76,8 +77,8 @@ def audit_text(audit, *, source=None) -> str:
     scale = "scaled states (x / state_scale)" if audit.state_scale is not None else "given units"
     lines = [
         head,
-        (f"horizon {audit.horizon} steps, {audit.n} states, {audit.n_measurements} measurements "
-        f"per step, {scale}"),
+        (f"horizon {counted(audit.horizon, 'step')}, {counted(audit.n, 'state')}, "
+         f"{counted(audit.n_measurements, 'measurement')} per step, {scale}"),
         f"verdict: {_verdict(audit)}",
         (f"rank of the observability matrix: {audit.rank} (the real system allows "
         f"{audit.expected_rank}); expected directions seen: {audit.spurious_dimension}"),
@@ -111,29 +112,6 @@ def audit_text(audit, *, source=None) -> str:
 # ---------------------------------------------------------------------------------------------
 # HTML
 # ---------------------------------------------------------------------------------------------
-
-_CSS = """
-body { font-family: Georgia, 'DejaVu Serif', serif; color: #1d2327; margin: 2.2em auto;
-       max-width: 58em; padding: 0 1.2em; line-height: 1.45; }
-h1 { font-size: 1.45em; border-bottom: 3px double #5b6b73; padding-bottom: .25em; }
-h2 { font-size: 1.1em; margin-top: 1.8em; color: #33454e; letter-spacing: .02em; }
-.verdict { border-left: 6px solid #2b6f8a; background: #eef4f6; padding: .6em .9em; }
-.verdict.seen { border-left-color: #b5562b; background: #f8efe9; }
-table { border-collapse: collapse; margin: .6em 0; font-size: .92em; }
-th, td { border-bottom: 1px solid #c9d1d5; padding: .28em .8em; text-align: left;
-         vertical-align: top; }
-th { font-weight: normal; font-variant: small-caps; color: #4a5a62; }
-td.num { text-align: right; font-family: 'DejaVu Sans Mono', monospace; }
-pre, code { font-family: 'DejaVu Sans Mono', monospace; font-size: .86em; }
-pre { background: #f5f6f7; padding: .6em; white-space: pre-wrap; }
-figure { margin: 1em 0; page-break-inside: avoid; }
-figcaption { font-size: .88em; color: #4a5a62; }
-img { max-width: 100%; }
-.caution { margin-top: 2.4em; border-top: 1px solid #9aa7ad; padding-top: .6em;
-           font-size: .9em; color: #3c4a51; }
-@media print { body { margin: 0; max-width: none; } h2 { page-break-after: avoid; } }
-"""
-
 
 def _png(fig) -> str:
     buf = io.BytesIO()
@@ -241,16 +219,12 @@ def audit_html(audit, *, source=None, title=None) -> str:
     title = title or "Observability audit"
     d = audit.n - audit.expected_rank
     seen = " seen" if audit.spurious_dimension else ""
-    parts = [
-        "<!DOCTYPE html>",
-        '<html lang="en"><head><meta charset="utf-8">',
-        f"<title>{esc(title)}</title>",
-        f"<style>{_CSS}</style></head><body>",
-        f"<h1>{esc(title)}</h1>",
-    ]
+    parts = [(f'<header class="report-head"><h1>{esc(title)}</h1>'
+              f"<p>{counted(audit.horizon, 'step')} &middot; {counted(audit.n, 'state')} &middot; "
+              f"{counted(audit.n_measurements, 'measurement')} per step</p></header>")]
     if source is not None:
         parts.append(f"<p>Jacobian sequences from <code>{esc(str(source))}</code>.</p>")
-    parts.append(f'<p class="verdict{seen}">{esc(_verdict(audit))}</p>')
+    parts.append(f'<p class="verdict{seen}" role="status">{esc(_verdict(audit))}</p>')
     scale = ("scaled states (x / state_scale)" if audit.state_scale is not None
              else "the given units")
     facts = [
@@ -263,41 +237,45 @@ def audit_html(audit, *, source=None, title=None) -> str:
         ("relative rank tolerance", f"{audit.tolerance:.1e}"),
         ("depends on the tolerance (fragile)", "yes" if audit.fragile else "no"),
     ]
-    parts.append("<h2>Summary</h2><table>")
+    parts.append('<section id="summary"><h2>Summary</h2><div class="table-wrap"><table>')
     for key, value in facts:
         parts.append(f"<tr><th>{esc(key)}</th><td>{esc(value)}</td></tr>")
-    parts.append("</table>")
+    parts.append("</table></div></section>")
 
     rows = _direction_rows(audit)
     if rows:
         unit = "" if audit.noise_given else " (unit measurement noise)"
-        parts.append("<h2>Expected unobservable directions</h2>")
-        parts.append("<p>Orthonormalized in the given order; leakage is relative to the largest "
-                     "singular value of the observability matrix.</p><table>")
+        parts.append('<section id="directions"><h2>Expected unobservable directions</h2>')
+        parts.append('<p class="lead">Orthonormalized in the given order; leakage is relative '
+                     "to the largest singular value of the observability matrix.</p>"
+                     '<div class="table-wrap"><table>')
         parts.append(f"<tr><th>#</th><th>direction</th><th>leakage</th><th>implied std{esc(unit)}"
                      "</th><th>reading</th></tr>")
         for i, text, leak, std, roundoff in rows:
             reading = "at round-off" if roundoff else "seen by the model"
-            parts.append(f"<tr><td>{i}</td><td>{esc(text)}</td><td class=\"num\">{_num(leak)}</td>"
-                         f"<td class=\"num\">{_num(std)}</td><td>{reading}</td></tr>")
-        parts.append("</table>")
+            parts.append(f"<tr><td>{i}</td><td><code>{esc(text)}</code></td>"
+                         f"<td class=\"num\">{html_number(leak)}</td>"
+                         f"<td class=\"num\">{html_number(std)}</td><td>{reading}</td></tr>")
+        parts.append("</table></div>")
         if audit.principal_angles.size:
             angles = ", ".join(f"{math.degrees(a):.3g}" for a in audit.principal_angles)
             parts.append(f"<p>Principal angles between the numerical null space and the expected "
                          f"span: {esc(angles)} degrees.</p>")
+        parts.append("</section>")
 
-    parts.append("<h2>Plots</h2>")
+    parts.append('<section id="plots"><h2>Plots</h2>')
     for caption, data in _plots(audit):
         parts.append(f'<figure><img alt="{esc(caption)}" src="data:image/png;base64,{data}">'
                      f"<figcaption>{esc(caption)}</figcaption></figure>")
 
-    parts.append("<h2>Rank decisions</h2><pre>")
+    parts.append("</section>")
+    parts.append('<section id="rank-decisions"><h2>Rank decisions</h2><pre>')
     parts.append(esc("\n".join(dec.describe() for dec in audit.decisions)))
-    parts.append("</pre>")
+    parts.append("</pre></section>")
     if audit.notes:
-        parts.append("<h2>Notes</h2><ul>")
+        parts.append('<section id="notes"><h2>Notes</h2><ul>')
         parts.extend(f"<li>{esc(note)}</li>" for note in audit.notes)
-        parts.append("</ul>")
-    parts.append(f'<p class="caution">{esc(SAFETY_CAUTION)}</p>')
-    parts.append("</body></html>")
-    return "\n".join(parts) + "\n"
+        parts.append("</ul></section>")
+    parts.append(f'<section id="caution"><h2>Validation and safety</h2><p>{esc(SAFETY_CAUTION)}'
+                 "</p></section>")
+    return html_page(title, "\n".join(parts))
