@@ -43,6 +43,7 @@ def _missing(reason: str):
 def browser():
     try:
         from selenium import webdriver
+        from selenium.common.exceptions import WebDriverException
         from selenium.webdriver.chrome.options import Options
         from selenium.webdriver.chrome.service import Service
     except ImportError:
@@ -59,7 +60,7 @@ def browser():
     options.set_capability("goog:loggingPrefs", {"browser": "ALL"})
     try:
         driver = webdriver.Chrome(service=Service(driver_path), options=options)
-    except Exception as exc:  # a browser that is installed but cannot start is a real failure
+    except WebDriverException as exc:  # installed but cannot start: a real failure
         pytest.fail(f"Chromium is installed ({binary}) but could not be started: {exc}")
     yield driver
     driver.quit()
