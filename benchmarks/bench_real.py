@@ -1,0 +1,237 @@
+"""The public calls side by side with the reference routines a user could call instead.
+
+Not a test: a script (issue 17, item 7).  For every model it times, interleaved (one run of
+each call in turn, the order rotated each round, medians over the rounds), the plantcore
+calls and the Fortran reference routines through slycot, and prints the ratio of each call
+to its reference, with one BLAS thread and with two (threadpoolctl):
+
+| plantcore call | reference |
+|---|---|
+| ``kalman_decomposition``, ``minimal_realization`` | ``tb01pd`` (minimal realization) |
+| ``peak_gain``, ``check_equivalence(model, minimal)`` | ``ab13dd`` (L-infinity norm) |
+| ``h2_norm`` (stable models) | ``ab13bd`` (H2 norm) |
+| ``hankel_singular_values``, ``balanced_truncation`` | ``ab09ad`` (stable) / ``ab09md`` (stable part) |
+| ``classify_modes``, ``analyze`` | ``numpy.linalg.eig`` with eigenvectors |
+| ``write_html_report`` | the sum of ``tb01pd``, ``ab13dd``, ``ab09ad``/``ab09md`` and ``eig`` (what a user would run for the same content) |
+
+Every plantcore call starts with the per-model certificate cache emptied, so its cost is in
+the figure.  Models (our own scenarios): random models with 1-4 inputs and outputs, stable
+and with a few unstable modes, of n = 10, 50, 100, 400, 1000 and 2000 states; and a
+clamped-free damped beam (Euler-Bernoulli, Hermite finite elements, Rayleigh damping, a
+force and a displacement sensor at the tip and one at mid-span) of 300 to 1,500 states, the
+size of the models in the public benchmark collections.  Timings are wall-clock seconds;
+on a shared machine they are loaded: read the ratios, which interleaving keeps comparable.
+
+    python benchmarks/bench_real.py --quick                      # n = 10, 50, 100; beam 300
+    python benchmarks/bench_real.py --sizes 400 1000 --beams 348 --threads 1 2
+    python benchmarks/bench_real.py --sizes 2000 --calls hankel_singular_values --repeats 1
+"""
+
+from __future__ import annotations
+
+import argparse
+import gc
+import os
+import statistics
+import tempfile
+import time
+
+import numpy as np
+import slycot
+from threadpoolctl import threadpool_limits
+
+import plantcore as pc
+from plantcore.reports.html import write_html_report
+from plantcore.structure.kalman import _RECENT_CERTIFICATES
+
+
+# --- models -------------------------------------------------------------------------------
+
+def random_model(states: int, ports: int, *, unstable: int = 0, seed: int = 0):
+    """Random model, ``ports`` inputs and outputs; ``unstable`` real unstable modes mixed in
+    by a random orthogonal similarity, the rest stable (largest real part -0.1)."""
+    rng = np.random.default_rng(seed)
+    k = states - unstable
+    S = rng.standard_normal((k, k)) / np.sqrt(max(k, 1))
+    S -= (np.max(np.linalg.eigvals(S).real) + 0.1) * np.eye(k) if k else 0.0
+    A = np.zeros((states, states))
+    A[:k, :k] = S
+    A[k:, k:] = np.diag(0.2 + 0.3 * np.arange(unstable))
+    A[:k, k:] = 0.1 * rng.standard_normal((k, unstable))
+    if unstable:
+        Q, _ = np.linalg.qr(rng.standard_normal((states, states)))
+        A = Q.T @ A @ Q
+    kind = f"{unstable} unstable" if unstable else "stable"
+    return pc.StateSpaceModel(A, rng.standard_normal((states, ports)),
+                              rng.standard_normal((ports, states)),
+                              name=f"random {states}, {ports} in/out, {kind}")
+
+
+def damped_beam(states: int, *, damping: float = 2e-3):
+    """A clamped-free beam of ``states // 4`` Hermite elements (unit length, stiffness and
+    mass per length); states: deflections and rotations, then their rates.  Rayleigh
+    damping ``C = damping (M + K / w1^2)``; inputs: forces at the tip and at mid-span;
+    outputs: deflections there."""
+    elements = max(1, states // 4)
+    h = 1.0 / elements
+    ke = np.array([[12, 6 * h, -12, 6 * h], [6 * h, 4 * h * h, -6 * h, 2 * h * h],
+                   [-12, -6 * h, 12, -6 * h], [6 * h, 2 * h * h, -6 * h, 4 * h * h]]) / h ** 3
+    me = np.array([[156, 22 * h, 54, -13 * h], [22 * h, 4 * h * h, 13 * h, -3 * h * h],
+                   [54, 13 * h, 156, -22 * h], [-13 * h, -3 * h * h, -22 * h, 4 * h * h]]) * h / 420
+    dofs = 2 * (elements + 1)
+    K = np.zeros((dofs, dofs))
+    M = np.zeros((dofs, dofs))
+    for e in range(elements):
+        sl = slice(2 * e, 2 * e + 4)
+        K[sl, sl] += ke
+        M[sl, sl] += me
+    K, M = K[2:, 2:], M[2:, 2:]                  # clamped at the root
+    w1 = 1.875 ** 2                              # first natural frequency (unit beam)
+    D = damping * (M + K / w1 ** 2)
+    Minv = np.linalg.inv(M)
+    f = dofs - 2
+    A = np.block([[np.zeros((f, f)), np.eye(f)], [-Minv @ K, -Minv @ D]])
+    tip, mid = f - 2, 2 * (elements // 2) - 2
+    F = np.zeros((f, 2))
+    F[tip, 0] = F[mid, 1] = 1.0
+    B = np.vstack([np.zeros((f, 2)), Minv @ F])
+    C = np.zeros((2, 2 * f))
+    C[0, tip] = C[1, mid] = 1.0
+    return pc.StateSpaceModel(A, B, C, name=f"damped beam, {2 * f} states")
+
+
+# --- calls --------------------------------------------------------------------------------
+
+def _fresh(call):
+    def run():
+        _RECENT_CERTIFICATES.clear()
+        return call()
+    return run
+
+
+def references(model) -> dict:
+    n, m, p = model.n, model.n_inputs, model.n_outputs
+    A, B, C, D = (np.asfortranarray(X) for X in (model.A, model.B, model.C, model.D))
+    w = max(m, p)
+    Bp = np.zeros((n, w), order="F")
+    Bp[:, :m] = B
+    Cp = np.zeros((w, n), order="F")
+    Cp[:p, :] = C
+    stable = bool(np.max(np.linalg.eigvals(model.A).real) < 0)
+    order = min(10, n // 2)
+    out = {
+        "tb01pd": lambda: slycot.tb01pd(n, m, p, A.copy(order="F"), Bp.copy(order="F"),
+                                        Cp.copy(order="F"), job="M", equil="N", tol=1e-10),
+        "ab13dd": lambda: slycot.ab13dd("C", "I", "N", "D", n, m, p, A.copy(order="F"),
+                                        np.eye(n, order="F"), B.copy(order="F"),
+                                        C.copy(order="F"), D.copy(order="F")),
+        "eig": lambda: np.linalg.eig(model.A),
+    }
+    if stable:
+        out["ab13bd"] = lambda: slycot.ab13bd("C", "H", n, m, p, A.copy(order="F"),
+                                              B.copy(order="F"), C.copy(order="F"),
+                                              D.copy(order="F"))
+        out["ab09"] = lambda: slycot.ab09ad("C", "B", "N", n, m, p, A.copy(order="F"),
+                                            B.copy(order="F"), C.copy(order="F"), nr=order)
+    else:
+        out["ab09"] = lambda: slycot.ab09md("C", "B", "N", n, m, p, A.copy(order="F"),
+                                            B.copy(order="F"), C.copy(order="F"),
+                                            alpha=0.0, nr=order + _unstable_count(model))
+    return out
+
+
+def _unstable_count(model) -> int:
+    return int(np.sum(np.linalg.eigvals(model.A).real >= 0))
+
+
+def ours(model, folder: str) -> dict:
+    """name -> (function, reference names whose sum is the reference)."""
+    stable = _unstable_count(model) == 0
+    order = min(10, model.n // 2) + _unstable_count(model)
+    minimal = pc.minimal_realization(model).model
+    path = os.path.join(folder, "report.html")
+    out = {
+        "kalman_decomposition": (lambda: pc.kalman_decomposition(model), ("tb01pd",)),
+        "minimal_realization": (lambda: pc.minimal_realization(model), ("tb01pd",)),
+        "peak_gain": (lambda: pc.peak_gain(model), ("ab13dd",)),
+        "check_equivalence": (lambda: pc.check_equivalence(model, minimal), ("ab13dd",)),
+        "hankel_singular_values": (lambda: pc.hankel_singular_values(model), ("ab09",)),
+        "balanced_truncation": (lambda: pc.balanced_truncation(model, order=order), ("ab09",)),
+        "classify_modes": (lambda: pc.classify_modes(model), ("eig",)),
+        "analyze": (lambda: pc.analyze(model), ("eig",)),
+        "report": (lambda: write_html_report(model, path),
+                   ("tb01pd", "ab13dd", "ab09", "eig")),
+    }
+    if stable:
+        out["h2_norm"] = (lambda: pc.h2_norm(model), ("ab13bd",))
+    return {k: (_fresh(f), refs) for k, (f, refs) in out.items()}
+
+
+def time_interleaved(fns: dict, repeats: int) -> dict:
+    """Median wall seconds per call; calls interleaved, the order rotated each round."""
+    names = list(fns)
+    wall = {k: [] for k in names}
+    for r in range(repeats):
+        for k in names[r % len(names):] + names[:r % len(names)]:
+            gc.collect()
+            t0 = time.perf_counter()
+            fns[k]()
+            wall[k].append(time.perf_counter() - t0)
+    return {k: statistics.median(v) for k, v in wall.items()}
+
+
+def measure(model, threads: int, repeats: int, selected) -> list[tuple]:
+    with tempfile.TemporaryDirectory() as folder:
+        mine = ours(model, folder)
+        if selected:
+            mine = {k: v for k, v in mine.items() if k in selected}
+        refs = references(model)
+        needed = {r for _, names in mine.values() for r in names}
+        fns = {k: f for k, (f, _) in mine.items()}
+        fns.update({f"ref:{k}": f for k, f in refs.items() if k in needed})
+        with threadpool_limits(threads), np.errstate(all="ignore"):
+            import warnings
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                t = time_interleaved(fns, repeats)
+    rows = []
+    for name, (_, names) in mine.items():
+        ref = sum(t[f"ref:{r}"] for r in names)
+        rows.append((name, t[name], " + ".join(names), ref, t[name] / ref))
+    return rows
+
+
+def main(argv=None) -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--sizes", type=int, nargs="*", default=[10, 50, 100, 400, 1000, 2000])
+    parser.add_argument("--ports", type=int, nargs="+", default=[3],
+                        help="inputs = outputs of the random models (1-4)")
+    parser.add_argument("--beams", type=int, nargs="*", default=[348, 1000])
+    parser.add_argument("--repeats", type=int, default=3)
+    parser.add_argument("--threads", type=int, nargs="+", default=[1, 2])
+    parser.add_argument("--calls", nargs="+", default=None, help="only these plantcore calls")
+    parser.add_argument("--no-unstable", action="store_true", help="stable random models only")
+    parser.add_argument("--quick", action="store_true",
+                        help="n = 10, 50, 100 (2 inputs/outputs), a 300-state beam, one round")
+    args = parser.parse_args(argv)
+    if args.quick:
+        args.sizes, args.ports, args.beams, args.repeats = [10, 50, 100], [2], [300], 1
+    models = []
+    for n in args.sizes:
+        for ports in args.ports:
+            models.append(random_model(n, ports, seed=n))
+            if not args.no_unstable and n >= 10:
+                models.append(random_model(n, ports, unstable=2, seed=n + 1))
+    models += [damped_beam(s) for s in args.beams]
+    print("| model | BLAS threads | call | plantcore (s) | reference | reference (s) | ratio |")
+    print("|---|---:|---|---:|---|---:|---:|")
+    for model in models:
+        for threads in args.threads:
+            for name, mine, ref_name, ref, ratio in measure(model, threads, args.repeats,
+                                                            args.calls):
+                print(f"| {model.name} | {threads} | {name} | {mine:.3g} | {ref_name} | "
+                      f"{ref:.3g} | {ratio:.2f} |", flush=True)
+
+
+if __name__ == "__main__":
+    main()
