@@ -35,6 +35,7 @@ import os
 import statistics
 import tempfile
 import time
+import warnings
 
 import numpy as np
 import slycot
@@ -43,7 +44,6 @@ from threadpoolctl import threadpool_limits
 import plantcore as pc
 from plantcore.reports.html import write_html_report
 from plantcore.structure.kalman import _RECENT_CERTIFICATES
-
 
 # --- models -------------------------------------------------------------------------------
 
@@ -189,11 +189,9 @@ def measure(model, threads: int, repeats: int, selected) -> list[tuple]:
         needed = {r for _, names in mine.values() for r in names}
         fns = {k: f for k, (f, _) in mine.items()}
         fns.update({f"ref:{k}": f for k, f in refs.items() if k in needed})
-        with threadpool_limits(threads), np.errstate(all="ignore"):
-            import warnings
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore")
-                t = time_interleaved(fns, repeats)
+        with threadpool_limits(threads), np.errstate(all="ignore"), warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            t = time_interleaved(fns, repeats)
     rows = []
     for name, (_, names) in mine.items():
         ref = sum(t[f"ref:{r}"] for r in names)
