@@ -1,6 +1,147 @@
-"""The ``plantcore realize`` command (being written; registers nothing yet)."""
+"""The ``plantcore realize`` command: a model file from impulse-response data.
+
+``plantcore realize DATA -o OUT [--order K] [--sample-time T] [--noise-level S]
+[--format text|json]`` reads the data (:mod:`plantcore.files.response_files`: an ``.npz``
+with the array ``impulse_response`` of shape (samples, outputs, inputs), or a ``.csv`` with
+``OUTPUT <- INPUT`` columns), builds a realization with
+:func:`plantcore.reduction.impulse_realization.realize_impulse_response`, writes it as a
+model file that :func:`plantcore.load_model` reads (``.toml``, ``.json`` or ``.npz`` by the
+suffix of ``OUT``), and prints the evidence for the order.  The output is checked before
+anything is computed, written all at once, and never over the data file.  Exit codes: 0
+written (a ``warning:`` line when the order is fragile), 2 bad input, 3 numerical breakdown.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+from plantcore.core.wording import SAFETY_CAUTION
+
+_FORMATS = ("text", "json")
 
 
 def register(subparsers):
-    """Add the subparser and return its handler; None while the command is not written."""
-    return None
+    """Add the ``realize`` subparser; return its handler."""
+    p = subparsers.add_parser(
+        "realize", help="build a state-space model from impulse-response data, with the "
+                        "evidence for its order",
+        description="Build a state-space model from measured or simulated impulse-response "
+                    "samples (Ho-Kalman / Kung realization from the singular value "
+                    "decomposition of the block Hankel matrix) and write it as a model file.",
+        epilog="DATA: an .npz archive with impulse_response (samples, outputs, inputs) and "
+               "optionally sample_time, noise_level, inputs, outputs; or a .csv file whose "
+               "header is 'sample' or 'time' followed by one 'OUTPUT <- INPUT' column per "
+               "channel. Sample 0 holds D. Exit codes: 0 the model was written; 2 bad input; "
+               "3 numerical breakdown.")
+    p.add_argument("data", metavar="DATA", help="impulse-response data (.npz or .csv)")
+    p.add_argument("-o", "--output", required=True, metavar="OUT",
+                   help="model file to write (.toml, .json or .npz)")
+    p.add_argument("--order", type=int, default=None,
+                   help="order of the model (default: read from the Hankel singular values)")
+    p.add_argument("--sample-time", type=float, default=None, dest="sample_time",
+                   help="sample time of the data in seconds (else the file's; without any, "
+                        "the data are read as the expansion coefficients of a continuous-time "
+                        "model)")
+    p.add_argument("--noise-level", type=float, default=None, dest="noise_level",
+                   help="standard deviation of the noise on each sample (0: exact data; "
+                        "default: the file's, else estimated from the data)")
+    p.add_argument("--format", choices=_FORMATS, default="text",
+                   help="what to print: text (default) or json")
+    return _handler
+
+
+def _resolve(given, stored, option: str, key: str, path: str):
+    if given is not None and stored is not None and float(given) != float(stored):
+        raise ValueError(f"{path}: {key}: the file gives {stored!r} but {option} gives {given!r}; "
+                         "give one of them, or the same value.")
+    return given if given is not None else stored
+
+
+def _handler(args) -> int:
+    from plantcore.core.errors import ModelFileError
+    from plantcore.files import check_output_path, save_model
+    from plantcore.files.response_files import load_impulse_response
+    from plantcore.reduction.impulse_realization import realize_impulse_response
+
+    data = load_impulse_response(args.data)
+    check_output_path(args.output, inputs=(args.data,))  # refuse before computing
+    sample_time = _resolve(args.sample_time, data.sample_time, "--sample-time", "sample_time",
+                           args.data)
+    noise_level = _resolve(args.noise_level, data.noise_level, "--noise-level", "noise_level",
+                           args.data)
+    try:
+        fit = realize_impulse_response(data.values, sample_time=sample_time, order=args.order,
+                                       noise_level=noise_level, inputs=data.inputs,
+                                       outputs=data.outputs)
+    except ValueError as exc:  # name the file and the field the problem belongs to
+        field = "--order" if str(exc).startswith("order") else "impulse_response"
+        raise ModelFileError(args.data, field, str(exc)) from None
+    save_model(fit.model, args.output, inputs=(args.data,))
+    if args.format == "json":
+        print(json.dumps(_as_dict(fit, args), indent=2, allow_nan=False))
+    else:
+        print(_as_text(fit, args), end="")
+    return 0
+
+
+def _number(x):
+    return None if not math.isfinite(x) else float(x)
+
+
+def _as_dict(fit, args) -> dict:
+    return {
+        "data": args.data,
+        "output": args.output,
+        "order": fit.order,
+        "automatic_order": fit.automatic_order,
+        "time_domain": "discrete" if fit.model.is_discrete else "continuous",
+        "sample_time": fit.model.dt,
+        "hankel_singular_values": [float(x) for x in fit.hankel_singular_values],
+        "floor": float(fit.noise_floor),
+        "noise_level": float(fit.noise_level),
+        "noise_level_source": fit.noise_level_source,
+        "gap": _number(fit.gap),
+        "signal_margin": _number(fit.signal_margin),
+        "decision": fit.decision.to_dict(),
+        "fragile": fit.fragile,
+        "saturated": fit.saturated,
+        "block_rows": fit.block_rows,
+        "block_columns": fit.block_columns,
+        "time_scale": float(fit.time_scale),
+        "reproduction_error": float(fit.reproduction_error),
+        "reproduction_rms": float(fit.reproduction_rms),
+        "notes": list(fit.notes),
+        "caution": SAFETY_CAUTION,
+    }
+
+
+def _as_text(fit, args) -> str:
+    model = fit.model
+    samples = fit.block_rows + fit.block_columns
+    domain = (f"discrete time, sample time {model.dt:g} s" if model.is_discrete
+              else "continuous time (data read as expansion coefficients)")
+    shown = ", ".join(f"{x:.4g}" for x in fit.hankel_singular_values[:min(fit.order + 5, 40)])
+    more = len(fit.hankel_singular_values) - min(fit.order + 5, 40)
+    lines = [
+        (f"impulse-response realization of {args.data}: {samples} samples, "
+        f"{model.n_outputs} outputs x {model.n_inputs} inputs, {domain}"),
+        f"Hankel matrix: {fit.block_rows} x {fit.block_columns} blocks; singular values: {shown}"
+        + (f" (+{more} more)" if more > 0 else ""),
+        (f"floor: {fit.noise_floor:.4g} (noise level {fit.noise_level:.4g}, "
+        f"{fit.noise_level_source})"),
+        f"order: {fit.order}" + ("" if fit.order == fit.automatic_order
+                                 else f" (chosen; the data suggest {fit.automatic_order})"),
+        (f"evidence: gap sigma_n / sigma_n+1 = {fit.gap:.4g}, "
+        f"sigma_n / floor = {fit.signal_margin:.4g}"),
+        f"decision: {fit.decision.describe()}",
+        (f"fit to the data: relative error {fit.reproduction_error:.3g}, "
+        f"rms deviation {fit.reproduction_rms:.3g}"),
+    ]
+    lines += [f"note: {note}" for note in fit.notes]
+    if fit.fragile:
+        lines.append("warning: the order depends on the floor (a value lies within a factor 100 "
+                     "of it, or the data are too short); judge it by the gap and the margin.")
+    lines.append(f"model written to {args.output}")
+    lines.append(SAFETY_CAUTION)
+    return "\n".join(lines) + "\n"
