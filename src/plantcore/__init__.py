@@ -18,6 +18,8 @@ from plantcore.estimation import (ConstrainedJacobians, NonlinearObservability,
                                   nonlinear_observability)
 from plantcore.examples import example_path, list_examples, load_example
 from plantcore.files import load_model, save_model
+from plantcore.files.response_files import (ImpulseResponseData, load_impulse_response,
+                                            save_impulse_response)
 from plantcore.large import (LowRankFactor, LowRankGramians, LowRankReduction, PeakErrorEstimate,
                              StructuralReduction, low_rank_gramians, structural_reduction)
 from plantcore.reduction import (EquivalenceCertificate, PeakGain, ReducedModel,
@@ -28,6 +30,11 @@ from plantcore.reduction.discretization import (ContinuousFromSampled, SampledMo
                                                 continuous_from_sampled, discretize)
 from plantcore.reduction.gramian_matrices import (Gramian, controllability_gramian,
                                                   observability_gramian)
+from plantcore.reduction.impulse_realization import ImpulseRealization, realize_impulse_response
+from plantcore.reduction.markov import MarkovParameters, markov_parameters
+from plantcore.reduction.singular_perturbation import (EliminatedStates, ResidualizedModel,
+                                                       balanced_residualization,
+                                                       eliminate_states)
 from plantcore.reduction.steady_state_gain import SteadyStateGain, steady_state_gain
 from plantcore.reports import write_html_report
 from plantcore.structure import (ExactPartSizes, KalmanDecomposition, MinimalRealization, Mode,
@@ -114,4 +121,15 @@ __all__ = [
     "compare_sampling",
     "SamplingComparison",
     "SamplingWarning",
+    "balanced_residualization",
+    "ResidualizedModel",
+    "eliminate_states",
+    "EliminatedStates",
+    "markov_parameters",
+    "MarkovParameters",
+    "realize_impulse_response",
+    "ImpulseRealization",
+    "load_impulse_response",
+    "save_impulse_response",
+    "ImpulseResponseData",
 ]
