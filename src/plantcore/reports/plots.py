@@ -1,9 +1,16 @@
 """The report's plots: eigenvalue map, frequency response and Hankel singular values.
 
-Each function draws what a :class:`~plantcore.analysis.report_contents.ReportContents`
-holds and returns the PNG as a ``data:`` address with its alternative text; nothing here
-computes a model quantity.  Model names never enter a plot (matplotlib would read ``$`` as
-mathematics).
+Each ``*_figure`` function draws what a
+:class:`~plantcore.analysis.report_contents.ReportContents` holds on a matplotlib figure;
+the ``*_plot`` functions turn it into the PNG ``data:`` address the HTML report embeds, with
+its alternative text.  Nothing here computes a model quantity.  Model names never enter a
+plot (matplotlib would read ``$`` as mathematics).
+
+For scripts and notebooks, ``plot_eigenvalue_map``, ``plot_frequency_response`` and
+``plot_hankel_singular_values`` (public as ``plantcore.plot_*``) return the same figures
+for a model, an analysis, a report's contents or a written report; a model or an analysis
+is first run through :func:`~plantcore.analysis.report_contents.collect_report` (the
+analysis layer does the numerics, these functions only draw).
 """
 
 from __future__ import annotations
@@ -14,9 +21,10 @@ import math
 
 import numpy as np
 
-from plantcore.core.wording import shown_eigenvalue
+from plantcore.core.wording import counted, shown_eigenvalue
 
-__all__ = ["PART_LABELS", "eigenvalue_plot", "frequency_plot", "hankel_plot"]
+__all__ = ["PART_LABELS", "eigenvalue_plot", "frequency_plot", "hankel_plot",
+           "plot_eigenvalue_map", "plot_frequency_response", "plot_hankel_singular_values"]
 
 #: Plain-language labels of the four Kalman parts, in state order.
 PART_LABELS = {
@@ -209,8 +217,9 @@ def eigenvalue_plot(contents) -> tuple[str, str]:
     return _png(fig), alt + note
 
 
-def frequency_plot(contents) -> tuple[str, str]:
-    """Singular values of original (sampled), minimal and reduced models, overlaid."""
+def frequency_figure(contents):
+    """Singular values of original (sampled), minimal and reduced models, overlaid, as a
+    matplotlib figure, with its alternative text."""
     model = contents.model
     fig = _figure(7.0, 4.2)
     ax = fig.add_subplot()
@@ -220,7 +229,7 @@ def frequency_plot(contents) -> tuple[str, str]:
         label, w = response.label, response.frequencies
         sv = np.where(response.singular_values > 0, response.singular_values, np.nan)
         st = _MODEL_STYLE[label]
-        text = f"{label}, {response.states} states"
+        text = f"{label}, {counted(response.states, 'state')}"
         for j in range(sv.shape[1]):
             name = text if j == 0 else None
             if label == "original":
@@ -248,10 +257,25 @@ def frequency_plot(contents) -> tuple[str, str]:
                              if contents.reduction is not None else "."))
     if min(model.n_inputs, model.n_outputs) > 1:
         alt += " Each model shows all singular values of its transfer matrix."
+    return fig, alt
+
+
+def frequency_plot(contents) -> tuple[str, str]:
+    """The frequency-response figure as a PNG ``data:`` address and its alternative text."""
+    fig, alt = frequency_figure(contents)
     return _png(fig), alt
 
 
 def hankel_plot(contents) -> tuple[str, str] | None:
+    """The Hankel-singular-value figure as a PNG ``data:`` address and its alternative
+    text, or None when there are no values to draw."""
+    drawn = hankel_figure(contents)
+    return None if drawn is None else (_png(drawn[0]), drawn[1])
+
+
+def hankel_figure(contents):
+    """Hankel singular values with the truncation's cut, as a matplotlib figure and its
+    alternative text; None without values."""
     red = contents.reduction
     if red is not None:
         hsv = np.asarray(red.hankel_singular_values, dtype=float)
@@ -286,4 +310,88 @@ def hankel_plot(contents) -> tuple[str, str] | None:
     ax.legend(fontsize=8, loc="lower left", framealpha=0.9)
     alt = ("Hankel singular values of the minimal model, largest first; bars right of the "
            "dashed line are discarded by the balanced truncation.")
-    return _png(fig), alt
+    return fig, alt
+
+
+# =============================================================================================
+# Public plotting functions (notebooks and scripts)
+# =============================================================================================
+
+def _contents(source, **options):
+    """The report contents to draw: given, held by a written report, or collected."""
+    from plantcore.analysis.analyze import Analysis
+    from plantcore.analysis.report_contents import ReportContents, collect_report
+
+    if isinstance(source, ReportContents):
+        if options:
+            raise ValueError(f"the report contents are already collected; "
+                             f"{', '.join(sorted(options))} cannot change them.")
+        return source
+    contents = getattr(source, "contents", None)
+    if isinstance(contents, ReportContents):
+        return _contents(contents, **options)
+    if isinstance(source, Analysis):
+        return collect_report(source.model, tol=source.tolerance, analysis=source,
+                              progress=False, **options)
+    return collect_report(source, progress=False, **options)
+
+
+def plot_frequency_response(source, *, order=None, max_error=None):
+    """Frequency response of a model, its minimal realization and its balanced truncation.
+
+    Parameters
+    ----------
+    source : model, Analysis, ReportContents or WrittenReport
+        What to draw (a model is analysed first; an analysis is reused).
+    order, max_error : optional
+        The truncation, as for :func:`~plantcore.analysis.report_contents.collect_report`.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The original sampled as markers on the minimal model's frequency grid, the minimal
+        and the reduced models as lines (singular values for several inputs and outputs).
+
+    Examples
+    --------
+    >>> fig = plot_frequency_response(([[-1.0]], [[1.0]], [[2.0]]))
+    >>> [line.get_label() for line in fig.axes[0].get_lines()][:2]
+    ['original, 1 state', 'minimal, 1 state']
+    """
+    options = {k: v for k, v in (("order", order), ("max_error", max_error)) if v is not None}
+    return frequency_figure(_contents(source, **options))[0]
+
+
+def plot_hankel_singular_values(source, *, order=None, max_error=None):
+    """Hankel singular values of the minimal model, with the truncation's cut.
+
+    Parameters and the model sources as for :func:`plot_frequency_response`.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Raises
+    ------
+    ValueError
+        When the model has no Hankel singular values to draw (a mode on the stability
+        boundary, or no states); the message says why.
+    """
+    options = {k: v for k, v in (("order", order), ("max_error", max_error)) if v is not None}
+    contents = _contents(source, **options)
+    drawn = hankel_figure(contents)
+    if drawn is None:
+        reason = contents.reduction_problem or contents.analysis.hankel_note or "none computed"
+        raise ValueError(f"no Hankel singular values to draw: {reason}")
+    return drawn[0]
+
+
+def plot_eigenvalue_map(source):
+    """The eigenvalues in the complex plane, marked by Kalman part (integrators at rounding
+    level drawn at 0, signed logarithmic axes for wide spreads, no overlapping labels).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    return eigenvalue_figure(_contents(source))[0]

@@ -26,6 +26,7 @@ ever overwritten, and so neither is the specification file).
 
 from __future__ import annotations
 
+import itertools
 import math
 import os
 import secrets
@@ -38,7 +39,7 @@ import numpy as np
 
 from plantcore.core.wording import SAFETY_CAUTION
 
-__all__ = ["write_sweep_folder", "summary_markdown", "check_output_folder", "OUTPUT_FILES"]
+__all__ = ["OUTPUT_FILES", "check_output_folder", "plot_sweep_map", "summary_markdown", "write_sweep_folder"]
 
 OUTPUT_FILES = ("table.csv", "table.parquet", "margins.png", "structure.png", "summary.md")
 
@@ -327,7 +328,7 @@ def _changes(result) -> list[str]:
     if len(result.parameters) == 1 and numeric:
         p = result.parameters[0]
         ordered = sorted(rows, key=lambda r: r[p])
-        for a, b in zip(ordered, ordered[1:]):
+        for a, b in itertools.pairwise(ordered):
             if _structure_key(a) != _structure_key(b):
                 out.append(f"- between {p} = {_fmt(a[p])} and {_fmt(b[p])}: "
                            f"{_describe_structure(a)} -> {_describe_structure(b)}")
@@ -469,8 +470,16 @@ def _as_grid(rows, p, q):
 def _map(ax, fig, rows, p, q, values, grid, *, label, cmap="viridis", norm=None, ticks=None,
          integer=False):
     if grid is not None:
+        # One equal cell per grid value, labelled with the value: a parameter swept over
+        # {500, 1500, 3000} is three cells, not bands stretched from 0 to 3750.
         xs, ys, index = grid
-        image = ax.pcolormesh(xs, ys, values[index], shading="nearest", cmap=cmap, norm=norm)
+        image = ax.pcolormesh(np.arange(xs.size), np.arange(ys.size), values[index],
+                              shading="nearest", cmap=cmap, norm=norm, edgecolors="white",
+                              linewidth=0.6)
+        for axis, grid_values in ((ax.xaxis, xs), (ax.yaxis, ys)):
+            step = max(1, math.ceil(grid_values.size / 12))
+            places = np.arange(0, grid_values.size, step)
+            axis.set_ticks(places, labels=[_fmt(grid_values[k]) for k in places])
     else:
         x = [float(r[p]) for r in rows]
         y = [float(r[q]) for r in rows]
@@ -541,3 +550,68 @@ def _plot_many(result, folder):
     verdicts = "; ".join(f"{_VERDICT_LABELS[c]}: {codes[c]}" for c in sorted(codes))
     ax.set_title(f"Minimal order over the points ({verdicts})", fontsize=9)
     fig.savefig(folder / "structure.png", dpi=110)
+
+
+def plot_sweep_map(result, quantity="minimal_order", *, x=None, y=None):
+    """One quantity of a sweep over one or two of its parameters, as a matplotlib figure.
+
+    Parameters
+    ----------
+    result : SweepResult
+    quantity : str
+        A numeric column of ``result.rows`` (``"minimal_order"``, a part size,
+        ``"smallest_controllability_margin"``, ...).  Margins and distances are drawn on a
+        logarithmic scale.
+    x, y : str, optional
+        The parameters on the axes; default the sweep's first one or two numeric
+        parameters.  With ``y``, a map: one equal cell per value when the points form a
+        full grid (labelled with the values, never stretched into bands), otherwise a
+        scatter of the points.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Examples
+    --------
+    >>> import plantcore as pc
+    >>> result = pc.sweep(lambda p: ([[-p["a"]]], [[1.0]], [[1.0]]), pc.grid(a=[1.0, 2.0]),
+    ...                   executor="serial")
+    >>> plot_sweep_map(result).axes[0].get_xlabel()
+    'a'
+    """
+    numeric = _numeric_parameters(result)
+    rows = _ok(result)
+    if not rows:
+        raise ValueError("every point of the sweep failed; there is nothing to draw.")
+    if quantity not in rows[0]:
+        raise ValueError(f"quantity {quantity!r} is not a column of the sweep; choose one of "
+                         f"{', '.join(sorted(k for k, v in rows[0].items() if _is_number(v)))}.")
+    for name in (x, y):
+        if name is not None and name not in numeric:
+            raise ValueError(f"{name!r} is not a numeric parameter of the sweep; choose one of "
+                             f"{', '.join(numeric) or '(none)'}.")
+    if x is None:
+        if not numeric:
+            raise ValueError("the sweep has no numeric parameter to put on an axis.")
+        x = numeric[0]
+        if y is None and len(numeric) > 1:
+            y = numeric[1]
+    logarithmic = "margin" in quantity or "distance" in quantity
+    values = np.array([np.nan if r[quantity] is None else float(r[quantity]) for r in rows])
+    if logarithmic:
+        values = np.log10(_positive(values))
+    label = f"log10 {quantity}" if logarithmic else quantity
+    fig, axes = _figure(1, height=4.2)
+    ax = axes[0, 0]
+    if y is None:
+        order = np.argsort([float(r[x]) for r in rows])
+        ax.plot(np.array([float(rows[k][x]) for k in order]), values[order], "o-",
+                color=_COLOURS[0])
+        ax.set_xlabel(x)
+        ax.set_ylabel(label)
+    else:
+        _map(ax, fig, rows, x, y, values, _as_grid(rows, x, y), label=label,
+             integer=not logarithmic)
+    ax.set_title(quantity.replace("_", " "))
+    return fig
