@@ -36,7 +36,9 @@ from plantcore.reduction.singular_perturbation import (EliminatedStates, Residua
                                                        balanced_residualization,
                                                        eliminate_states)
 from plantcore.reduction.steady_state_gain import SteadyStateGain, steady_state_gain
-from plantcore.reports import write_html_report
+from plantcore.reports import (install_rich_display, plot_eigenvalue_map,
+                               plot_frequency_response, plot_hankel_singular_values,
+                               plot_sweep_map, write_html_report)
 from plantcore.structure import (ExactPartSizes, KalmanDecomposition, MinimalRealization, Mode,
                                  PartSizes, StaircaseForm, classify_modes,
                                  controllability_staircase, exact_minimal_order,
@@ -47,6 +49,10 @@ from plantcore.structure.zeros import TransmissionZeros, transmission_zeros
 from plantcore.sweeps import SweepResult, SweepSpec, grid, load_sweep_spec, random_points, sweep
 
 __all__ = [
+    "plot_eigenvalue_map",
+    "plot_frequency_response",
+    "plot_hankel_singular_values",
+    "plot_sweep_map",
     "structural_reduction",
     "StructuralReduction",
     "low_rank_gramians",
@@ -133,3 +139,6 @@ __all__ = [
     "save_impulse_response",
     "ImpulseResponseData",
 ]
+
+# A short repr and a notebook display for every public result (plantcore.reports.display).
+install_rich_display([globals()[name] for name in __all__])
