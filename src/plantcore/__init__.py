@@ -18,6 +18,7 @@ from plantcore.estimation import (ConstrainedJacobians, NonlinearObservability,
                                   nonlinear_observability)
 from plantcore.examples import example_path, list_examples, load_example
 from plantcore.files import load_model, save_model
+from plantcore.files.candidate_files import load_candidates
 from plantcore.files.response_files import (ImpulseResponseData, load_impulse_response,
                                             save_impulse_response)
 from plantcore.large import (LowRankFactor, LowRankGramians, LowRankReduction, PeakErrorEstimate,
@@ -44,7 +45,10 @@ from plantcore.structure import (ExactPartSizes, KalmanDecomposition, MinimalRea
                                  controllability_staircase, exact_minimal_order,
                                  exact_part_sizes, exact_transfer_matrix, kalman_decomposition,
                                  minimal_realization, observability_staircase)
+from plantcore.structure.placement import (PlacementSuggestion, RankedCandidate,
+                                           suggest_actuators, suggest_sensors)
 from plantcore.structure.removed_modes import RemovedMode
+from plantcore.structure.structural_matching import StructuralPlacement, structural_placement
 from plantcore.structure.zeros import TransmissionZeros, transmission_zeros
 from plantcore.sweeps import SweepResult, SweepSpec, grid, load_sweep_spec, random_points, sweep
 
@@ -138,6 +142,13 @@ __all__ = [
     "load_impulse_response",
     "save_impulse_response",
     "ImpulseResponseData",
+    "suggest_actuators",
+    "suggest_sensors",
+    "PlacementSuggestion",
+    "RankedCandidate",
+    "structural_placement",
+    "StructuralPlacement",
+    "load_candidates",
 ]
 
 # A short repr and a notebook display for every public result (plantcore.reports.display).
