@@ -9,7 +9,7 @@ for the method, its references and how it can fail.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from threadpoolctl import threadpool_limits
@@ -78,14 +78,36 @@ _BATCH_ELEMENTS = 1 << 21
 ``O(n^2)`` while small models keep one LAPACK batch per iteration."""
 
 
+_DENSE_SEARCH_SIZE = 300
+
+"""Above this many states the searches measure on the Schur form of ``A`` (see
+:func:`_evaluate_on_schur`) instead of taking a dense SVD per point: ``O(n^2)`` per point
+instead of ``O(n^3)``, so the searches stay below the cost of one eigendecomposition."""
+
+_SEARCH_RTOL = 1e-6
+
+"""Lanczos residual tolerance of a measure taken during a search on the Schur form: the
+value is attained (an upper bound) at any tolerance, and the direction of the next move
+needs no more."""
+
+
 @dataclass(frozen=True)
 class _Search:
-    """One local search for ``min_λ sigma_min([A - λI, M])`` (internal)."""
+    """One local search for ``min_λ sigma_min([A - λI, M])`` (internal).
+
+    With ``measures`` (large models), the points are measured on the Schur form held there,
+    ``[A - λI, X]`` (side ``"c"``, ``A`` the state matrix) or ``[A^T - λI, X^T]`` read as
+    ``[A_0 - λI; X]`` (side ``"o"``, ``A = A_0^T``); ``state`` keeps the last vector as the
+    start of the next measure."""
 
     A: np.ndarray         # (n, n) real
     M: np.ndarray         # (n, w) real
     start: complex        # in the closed upper half-plane
     radius: float         # length of a move along negative curvature; sets the move tolerance
+    measures: object = None
+    X: np.ndarray | None = None
+    side: str = "c"
+    state: dict = field(default_factory=dict)
 
 
 class _Evaluation:
@@ -168,10 +190,64 @@ class _Evaluation:
         return move, newton, predicted
 
 
+def _evaluate_on_schur(searches: list[_Search], idx: np.ndarray, lam: np.ndarray) -> _Evaluation:
+    """:class:`_Evaluation` of large searches, measured on the Schur form (internal).
+
+    ``sigma_min`` and the left singular vector ``u_0`` come from
+    :meth:`plantcore.structure.pbh_measures.PBHMeasures.smallest_with_vector` (``O(n^2 m)``
+    per point, started from the previous vector of the same search); the gradient is the
+    exact ``2 (λ - ρ)``.  The Hessian, which would need every singular vector, is replaced
+    by a secant (BFGS) model built from the gradients along the search
+    (:func:`_secant_hessian`), starting from ``2 I``, the Hessian of the majorizing
+    quadratic: the first move is the majorization move ``λ -> ρ`` and the next ones
+    quasi-Newton moves, safeguarded as in :func:`_descend`.
+    """
+    sigma = np.empty(idx.size)
+    rho = np.empty(idx.size, dtype=complex)
+    hessians = np.empty((idx.size, 2, 2))
+    for row, (j, point) in enumerate(zip(idx, lam)):
+        search = searches[j]
+        value, vector, state = search.measures.smallest_with_vector(
+            search.X, point, search.side, start=search.state.get("z"), rtol=_SEARCH_RTOL)
+        search.state["z"] = state
+        u = vector if search.side == "c" else np.conj(vector)
+        sigma[row] = value
+        rho[row] = np.vdot(u, search.A @ u)
+        hessians[row] = _secant_hessian(search.state, complex(point), 2.0 * (point - rho[row]))
+    ev = object.__new__(_Evaluation)
+    ev.sigma, ev.rho = sigma, rho
+    ev.gradient = 2.0 * (lam - rho)
+    ev.hxx, ev.hxy, ev.hyy = hessians[:, 0, 0], hessians[:, 0, 1], hessians[:, 1, 1]
+    return ev
+
+
+def _secant_hessian(state: dict, point: complex, gradient: complex) -> np.ndarray:
+    """The 2 x 2 Hessian model of ``phi`` in ``(Re λ, Im λ)`` of one search, updated by the
+    BFGS secant formula from the gradient at the previous point it was measured at
+    (Nocedal and Wright 2006, ch. 6); it starts from ``2 I``, the Hessian of the
+    majorizing quadratic, and an update that would lose positive definiteness is skipped."""
+    H = state.get("H", 2.0 * np.eye(2))
+    if "x" in state:
+        step = point - state["x"]
+        change = gradient - state["g"]
+        s = np.array([step.real, step.imag])
+        y = np.array([change.real, change.imag])
+        sy = float(s @ y)
+        Hs = H @ s
+        sHs = float(s @ Hs)
+        if sy > 1e-12 * np.linalg.norm(s) * np.linalg.norm(y) and sHs > 0:
+            H = H - np.outer(Hs, Hs) / sHs + np.outer(y, y) / sy
+    state["H"], state["x"], state["g"] = H, point, gradient
+    return H
+
+
 def _evaluate(searches: list[_Search], idx: np.ndarray, lam: np.ndarray) -> _Evaluation:
     """:class:`_Evaluation` of the searches ``idx`` at the points ``lam``, in batches of at
     most :data:`_BATCH_ELEMENTS` entries (every ``M`` padded with zero columns to the widest,
-    which leaves the singular values and left singular vectors unchanged)."""
+    which leaves the singular values and left singular vectors unchanged); on the Schur
+    form for large searches (:func:`_evaluate_on_schur`)."""
+    if searches[0].measures is not None:
+        return _evaluate_on_schur(searches, idx, lam)
     n = searches[0].A.shape[0]
     w = max(s.M.shape[1] for s in searches)
     eye = np.eye(n)
@@ -288,7 +364,9 @@ def _distances_of(problems) -> list[DistanceEstimate]:
     results: list = [None] * len(problems)
     searches, owners = [], []
     prepared = []
-    for i, (A, M, scale, values, kind, known, measure) in enumerate(problems):
+    for i, problem in enumerate(problems):
+        A, M, scale, values, kind, known, measure = problem[:7]
+        on_schur = problem[7] if len(problem) > 7 and A.shape[0] > _DENSE_SEARCH_SIZE else None
         n = A.shape[0]
         if n == 0:
             results[i] = DistanceEstimate(
@@ -316,9 +394,13 @@ def _distances_of(problems) -> list[DistanceEstimate]:
         freq = float(np.linalg.norm(A)) / max(1, n)
         for _, lam in tried:
             radius = 0.05 * max(abs(lam), 0.1 * freq, 1e-300)
-            searches.append(_Search(A, M, lam, radius))
+            if on_schur is None:
+                searches.append(_Search(A, M, lam, radius))
+            else:
+                searches.append(_Search(A, M, lam, radius, *on_schur))
             owners.append(i)
-        prepared.append((scale, kind, len(scored), len(tried), best_value, best_at))
+        prepared.append((scale, kind, len(scored), len(tried), best_value, best_at,
+                         on_schur is not None))
     if searches:
         # small models: many small batched SVDs per iteration, faster on one BLAS thread
         if searches[0].A.shape[0] <= _FEW_THREADS_SIZE:
@@ -327,18 +409,20 @@ def _distances_of(problems) -> list[DistanceEstimate]:
         else:
             found = _descend(searches)
         for i, (value, at) in zip(owners, found):
-            scale, kind, n_scored, n_tried, best_value, best_at = prepared[i]
+            scale, kind, n_scored, n_tried, best_value, best_at, large = prepared[i]
             if value < best_value:
                 best_value, best_at = value, at
-            prepared[i] = (scale, kind, n_scored, n_tried, best_value, best_at)
+            prepared[i] = (scale, kind, n_scored, n_tried, best_value, best_at, large)
     for i, item in enumerate(prepared):
         if item is None:
             continue
-        scale, kind, n_scored, n_tried, best_value, best_at = item
+        scale, kind, n_scored, n_tried, best_value, best_at, large = item
+        search = ("a safeguarded quasi-Newton (secant) search measured on the Schur form"
+                  if large else "a safeguarded Newton search")
         method = (f"smallest singular value evaluated at each of the {n_scored} distinct "
                   f"eigenvalue(s) (up to conjugation), then refined from the {n_tried} lowest "
                   f"(those within a factor {_START_FACTOR:g} of the least, at most "
-                  f"{_MAX_STARTS}) by a safeguarded Newton search in the complex plane; the "
+                  f"{_MAX_STARTS}) by {search} in the complex plane; the "
                   "value is a singular value computed at the point reported and the search is "
                   "local, hence an upper bound on the true distance")
         results[i] = DistanceEstimate(float(best_value / scale), best_at, kind, method)
@@ -393,9 +477,9 @@ def _distances(p, modes=None, whole=None) -> tuple[DistanceEstimate, DistanceEst
     on_A = PBHMeasures(p.A) if whole is None else whole
     return tuple(_distances_of([
         (p.A, p.B_dec, p.scale, values, "uncontrollability", known_c,
-         lambda points: on_A.smallest(p.B_dec, points, "c")),
+         lambda points: on_A.smallest(p.B_dec, points, "c"), (on_A, p.B_dec, "c")),
         (p.A.T, p.C_dec.T, p.scale, values, "unobservability", known_o,
-         lambda points: on_A.smallest(p.C_dec, points, "o"))]))
+         lambda points: on_A.smallest(p.C_dec, points, "o"), (on_A, p.C_dec, "o"))]))
 
 
 def distance_to_uncontrollability(model) -> DistanceEstimate:

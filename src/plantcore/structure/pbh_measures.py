@@ -119,9 +119,30 @@ class PBHMeasures:
                 out[i] = self._one(X, lam, side)
         return out
 
-    def _one(self, X, lam: complex, side: str) -> float:
+    def smallest_with_vector(self, X, lam: complex, side: str, *, start=None,
+                             rtol: float = _RESIDUAL):
+        """``(sigma, vector, state)`` at one point: ``sigma`` as :meth:`smallest` (attained,
+        so an upper bound on ``sigma_min`` at any ``rtol``), ``vector`` the unit vector
+        attaining it in the model's coordinates (side ``"c"``: ``u`` with
+        ``||u^H [A - lambda I, X]|| = sigma``; side ``"o"``: ``v`` with
+        ``||[A - lambda I; X] v|| = sigma``), and ``state``, to be handed back as ``start``
+        at a nearby point (the iteration then starts from the previous vector)."""
+        if not any(X is held for held in self._held):
+            self._held.append(X)
+        lam = complex(lam)
+        with threadpool_limits(1):
+            value, z, real = self._one(X, lam, side, start=start, rtol=rtol, vector=True)
+        schur = self.schur
+        Q = schur.Q if real else schur.complex[1]
+        vector = Q @ z[::-1] if side == "c" else Q @ np.conj(z)
+        return value, vector, (real, z)
+
+    def _one(self, X, lam: complex, side: str, *, start=None, rtol: float = _RESIDUAL,
+             vector: bool = False):
         schur = self.schur
         real = lam.imag == 0.0 and not np.any(np.diag(schur.T, -1))
+        if start is not None and start[0] != real:
+            start = None
         T, bottom = schur.pair(X, side, real)
         n = T.shape[0]
         top = np.array(T, order="F")
@@ -132,12 +153,15 @@ class PBHMeasures:
                               overwrite_a=1, overwrite_b=1)
         if info != 0:   # pragma: no cover - LAPACK argument error
             raise np.linalg.LinAlgError(f"?tpqrt failed (info={info})")
-        return _triangle_smallest(R)
+        value, z = _triangle_smallest(R, None if start is None else start[1], rtol)
+        return (value, z, real) if vector else value
 
 
-def _triangle_smallest(R) -> float:
+def _triangle_smallest(R, start=None, rtol: float = _RESIDUAL):
     """Smallest singular value of the upper triangle ``R`` (overwritten on zero pivots), by
-    Golub-Kahan bidiagonalization of ``R^{-1}`` (module notes, steps 2 and 3)."""
+    Golub-Kahan bidiagonalization of ``R^{-1}`` (module notes, steps 2 and 3), and the unit
+    vector ``z`` attaining it (``||R z||``).  ``start``: the first Lanczos vector (a
+    previous ``z``: the right singular vector of ``R^{-H}``'s top triplet is then close)."""
     n = R.shape[0]
     cplx = np.iscomplexobj(R)
     trsv = blas.ztrsv if cplx else blas.dtrsv
@@ -154,10 +178,14 @@ def _triangle_smallest(R) -> float:
     Qk = np.empty((n, steps), dtype=dtype)
     alpha = np.zeros(steps)
     beta = np.zeros(steps)
-    rng = np.random.default_rng(_SEED)
-    p = rng.standard_normal(n)
-    if cplx:
-        p = p + 1j * rng.standard_normal(n)
+    if start is not None and np.linalg.norm(start) > 0:
+        # R^{-1} p_0 = q_0 ~ z when p_0 ~ R z / ||R z||
+        p = trmv(R, np.asarray(start, dtype=dtype))
+    else:
+        rng = np.random.default_rng(_SEED)
+        p = rng.standard_normal(n)
+        if cplx:
+            p = p + 1j * rng.standard_normal(n)
     P[:, 0] = p / np.linalg.norm(p)
     u_top = np.ones(1)
     used = 0
@@ -181,15 +209,15 @@ def _triangle_smallest(R) -> float:
             Bk = np.diag(alpha[:used]) + np.diag(beta[:used - 1], 1)
             U, s, _ = np.linalg.svd(Bk)
             u_top = U[:, 0]
-            if not np.isfinite(beta[j]) or beta[j] * abs(u_top[-1]) <= _RESIDUAL * s[0]:
+            if not np.isfinite(beta[j]) or beta[j] * abs(u_top[-1]) <= rtol * s[0]:
                 break
             P[:, j + 1] = p / beta[j]
     if used == 0:
         # R^{-1} overflows: singular to working precision
-        return float(floor)
+        return float(floor), P[:, 0]
     z = Qk[:, :used] @ u_top
     z /= np.linalg.norm(z)
     Rz = trmv(R, z)
     if idx.size:                            # back to the true triangle for the value
         Rz[idx] -= (floor - d[idx]) * z[idx]
-    return float(np.linalg.norm(Rz))
+    return float(np.linalg.norm(Rz)), z
