@@ -13,13 +13,13 @@ import pytest
 
 import plantcore as pc
 from plantcore.cli import main
+from plantcore.core.wording import SAFETY_CAUTION
 from plantcore.reports.html import (
     DEFAULT_RELATIVE_ERROR,
     collect_report,
     render_html,
     write_html_report,
 )
-from plantcore.core.wording import SAFETY_CAUTION
 
 SECTION_IDS = ("model", "verdicts", "part-sizes", "rank-decisions", "modes", "eigenvalues",
                "frequency-response", "hankel-singular-values", "certificate", "caution")
@@ -43,7 +43,7 @@ def _images(text):
 class _TagBalance(HTMLParser):
     """Checks that every element is closed, in order (the standard library's HTML parser)."""
 
-    VOID = {"meta", "img", "br", "hr", "input", "col", "wbr", "source"}
+    VOID = frozenset({"meta", "img", "br", "hr", "input", "col", "wbr", "source"})
 
     def __init__(self):
         super().__init__(convert_charrefs=True)
@@ -274,3 +274,149 @@ def test_stable_model_report_has_no_hidden_mode_alert(thermal_report):
     assert contents.analysis.removed_unstable_modes == ()
     assert 'class="alert"' not in text
     assert re.search(r'Removed modes not stable</div><div class="a">0<', text)
+
+
+# --- issue 21: what a user sees -----------------------------------------------------------
+
+def _rotated_rigid_body():
+    """A rigid body and one flexible mode in rotated coordinates (integrators computed at
+    rounding level; our own scenario)."""
+    w, z = 12.0, 0.02
+    A = np.array([[0, 1, 0, 0], [0, 0, 0, 0], [0, 0, 0, 1], [0, 0, -w * w, -2 * z * w]], float)
+    T = np.linalg.qr(np.random.default_rng(3).standard_normal((4, 4)))[0]
+    return pc.StateSpaceModel(T.T @ A @ T, T.T @ np.array([[0.0], [1.0], [0.0], [1.0]]),
+                              np.array([[1.0, 0.0, 1.0, 0.0]]) @ T)
+
+
+@pytest.fixture(scope="module")
+def rigid_contents():
+    return collect_report(_rotated_rigid_body(), progress=False)
+
+
+def _section_html(text, sid):
+    start = text.index(f'<section id="{sid}">')
+    return text[start:text.index("</section>", start)]
+
+
+def test_rounding_level_values_are_shown_as_zero(rigid_contents):
+    # the raw values are at rounding level (about 1e-15) and stay so in the results
+    raw = [m.value for m in rigid_contents.analysis.modes if m.marginal]
+    assert len(raw) == 2 and all(0 < abs(v) < 1e-12 for v in raw)
+    modes = _section_html(render_html(rigid_contents, progress=False), "modes")
+    first_cells = re.findall(r'<tr><td class="n">\d+</td><td class="n">([^<]*)</td>', modes)
+    assert first_cells[:2] == ["0", "0"]
+    assert "10<sup>&minus;1" not in modes          # no 1e-15 or 1e-16 anywhere in the table
+    text = rigid_contents.analysis.to_text()
+    assert "e-16" not in text.split("Modes (margin")[1].split("Hankel")[0]
+    assert "not available: Hankel singular values not available" not in text
+
+
+def test_mode_table_names_the_subsystem_of_each_margin_and_the_nearest_zero(rigid_contents):
+    modes = _section_html(render_html(rigid_contents, progress=False), "modes")
+    assert "on the controllable part of the model for a controllable mode" in modes
+    assert "Nearest transmission zero" in modes
+    # the zeros of this model are a lightly damped pair near -0.12 +- 8.48j (antiresonance)
+    assert "8.484j" in modes
+
+
+def test_a_long_mode_table_opens_with_a_summary_and_collapses_the_rest():
+    n = 60
+    rng = np.random.default_rng(5)
+    model = (np.diag(-np.geomspace(0.1, 100.0, n)), rng.standard_normal((n, 2)),
+             rng.standard_normal((2, n)))
+    text = render_html(collect_report(model, progress=False), progress=False)
+    modes = _section_html(text, "modes")
+    summary_at, details_at = modes.index("deserve a look"), modes.index('<details class="all-modes">')
+    assert summary_at < details_at
+    assert '<details class="all-modes" open' not in modes
+    full = modes[details_at:]
+    assert len(re.findall(r"<tr><td class=\"n\">\d+</td>", full)) == n
+    assert len(re.findall(r"<tr><td class=\"n\">\d+</td>", modes[:details_at])) == 12
+
+
+def test_fragment_is_one_scoped_div():
+    contents = collect_report(MODEL_FOR_FRAGMENT, progress=False)
+    fragment = render_html(contents, progress=False, fragment=True)
+    assert fragment.startswith('<div class="plantcore-report">')
+    assert "<html" not in fragment and "<body" not in fragment
+    css = re.search(r"<style>(.*?)</style>", fragment, re.DOTALL).group(1)
+    css = re.sub(r"@media[^{]*\{", "", css)
+    selectors = [sel.strip() for block in re.findall(r"([^{}]+)\{[^{}]*\}", css)
+                 for sel in block.split(",") if sel.strip()]
+    assert selectors and all(sel.startswith(".plantcore-report") for sel in selectors), \
+        [s for s in selectors if not s.startswith(".plantcore-report")]
+
+
+MODEL_FOR_FRAGMENT = ([[-1.0, 0.0], [0.0, -2.0]], [[1.0], [1.0]], [[1.0, 0.0]])
+
+
+def test_contents_bar_can_wrap():
+    text = render_html(collect_report(MODEL_FOR_FRAGMENT, progress=False), progress=False)
+    nav = re.search(r'<nav class="contents"[^>]*>(.*?)</nav>', text, re.DOTALL).group(1)
+    assert nav.count("</a> <a") == len(SECTION_IDS) - 1        # whitespace between the links
+    assert "nowrap" not in re.search(r"nav\.contents[^{]*\{[^}]*\}", text).group(0)
+
+
+def _label_boxes(fig, axis):
+    renderer = fig.canvas.get_renderer()
+    lo, hi = sorted(axis.get_view_interval())
+    return [t.label1.get_window_extent(renderer) for t in axis.get_major_ticks()
+            if t.label1.get_visible() and t.label1.get_text() and lo <= t.get_loc() <= hi]
+
+
+@pytest.mark.filterwarnings("ignore::plantcore.AccuracyWarning")  # such a spread is ill-conditioned
+def test_eigenvalue_map_is_readable_over_twelve_decades():
+    # lightly damped modes from 1e-5 to 1e7 rad/s in the imaginary part, with real parts
+    # from 1e-7 to 1e5: one model, twelve decades
+    from scipy.linalg import block_diag
+
+    from plantcore.reports.plots import eigenvalue_figure
+
+    blocks = [np.array([[-0.01 * w, w], [-w, -0.01 * w]]) for w in 10.0 ** np.arange(-5, 8, 2)]
+    A = block_diag(*blocks)
+    n = A.shape[0]
+    contents = collect_report((A, np.ones((n, 1)), np.ones((1, n))), progress=False)
+    fig, note = eigenvalue_figure(contents)
+    ax = fig.axes[0]
+    assert ax.get_yscale() == "symlog" and "logarithmic" in note
+    fig.canvas.draw()
+    for axis in (ax.xaxis, ax.yaxis):
+        boxes = _label_boxes(fig, axis)
+        assert len(boxes) >= 3
+        assert not any(a.overlaps(b) for i, a in enumerate(boxes) for b in boxes[i + 1:])
+
+
+def test_integrators_are_drawn_at_zero(rigid_contents):
+    from plantcore.reports.plots import eigenvalue_figure, plotted_eigenvalues
+
+    drawn = plotted_eigenvalues(rigid_contents.model, rigid_contents.analysis.modes)
+    assert np.count_nonzero(drawn == 0) == 2
+    fig, _ = eigenvalue_figure(rigid_contents)
+    assert fig.axes[0].get_xscale() == "linear"       # no scale set by 1e-15
+
+
+def test_every_public_result_has_a_short_repr_and_a_rich_display():
+    import dataclasses
+
+    analysis = pc.analyze(MODEL_FOR_FRAGMENT)
+    assert len(repr(analysis)) <= 320 and repr(analysis).startswith("Analysis(")
+    page = analysis._repr_html_()
+    assert page.startswith('<div class="plantcore-report">') and "<details>" in page
+    for name in pc.__all__:
+        obj = getattr(pc, name)
+        if isinstance(obj, type) and dataclasses.is_dataclass(obj):
+            assert callable(getattr(obj, "_repr_html_", None)), name
+    assert len(repr(pc.minimal_realization(MODEL_FOR_FRAGMENT))) <= 320
+
+
+def test_plotting_functions_return_figures(rigid_contents):
+    from matplotlib.figure import Figure
+
+    figures = [pc.plot_frequency_response(MODEL_FOR_FRAGMENT),
+               pc.plot_hankel_singular_values(MODEL_FOR_FRAGMENT),
+               pc.plot_eigenvalue_map(rigid_contents)]
+    assert all(isinstance(f, Figure) for f in figures)
+    labels = [line.get_label() for line in figures[0].axes[0].get_lines()]
+    assert "original, 2 states" in labels and "minimal, 1 state" in labels
+    with pytest.raises(ValueError, match="imaginary axis"):
+        pc.plot_hankel_singular_values(rigid_contents)

@@ -89,3 +89,61 @@ def test_grid_ignores_integrators_at_rounding_level(discrete):
     ok = np.isfinite(at) & np.isfinite(original.singular_values[:, 0])
     assert ok.sum() > 30
     assert np.max(np.abs(np.log(at[ok] / original.singular_values[ok, 0]))) < 0.05
+
+
+# --- issue 21: plots that hold on integrators; issue 22: distance to the nearest zero ---------
+
+def _rotated_rigid_body():
+    """A rigid body (double integrator) and one flexible mode at 12 rad/s, damping 0.02, in
+    rotated coordinates so that the integrator pair is computed at rounding level (our own
+    scenario; the answer is known by construction)."""
+    w, z = 12.0, 0.02
+    A = np.array([[0, 1, 0, 0], [0, 0, 0, 0], [0, 0, 0, 1], [0, 0, -w * w, -2 * z * w]], float)
+    B = np.array([[0.0], [1.0], [0.0], [1.0]])
+    C = np.array([[1.0, 0.0, 1.0, 0.0]])
+    T = np.linalg.qr(np.random.default_rng(3).standard_normal((4, 4)))[0]
+    return pc.StateSpaceModel(T.T @ A @ T, T.T @ B, C @ T)
+
+
+def test_integrators_set_no_frequency_and_the_plotted_curves_coincide():
+    contents = report_contents.collect_report(_rotated_rigid_body(), progress=False)
+    assert contents.certificate.equivalent
+    original, minimal = contents.responses[:2]
+    # the grid spans the flexible mode (12 rad/s) with a decade of margin, not 1e-18
+    assert original.frequencies.min() == pytest.approx(1.2, rel=1e-3)
+    assert minimal.frequencies.max() == pytest.approx(120.0, rel=1e-3)
+    # the original is sampled on the minimal model's grid: at every plotted point the two
+    # curves agree to the certificate's accuracy (here far below the tolerance 1e-9)
+    shared = np.isin(minimal.frequencies, original.frequencies)
+    assert shared.sum() == original.frequencies.size
+    np.testing.assert_allclose(original.singular_values, minimal.singular_values[shared],
+                               rtol=1e-9, atol=0)
+
+
+def test_no_suggested_option_that_would_fail_for_a_boundary_mode():
+    contents = report_contents.collect_report(_rotated_rigid_body(), progress=False)
+    assert contents.reduction is None
+    assert "--order" not in contents.reduction_problem
+    assert "imaginary axis" in contents.reduction_problem
+
+
+def test_each_mode_knows_its_nearest_transmission_zero():
+    # G(s) = (s + 1.001) / ((s + 1)(s + 2)): closed form, the zero -1.001 lies 0.001 from the
+    # pole -1 and 0.999 from the pole -2; relative distances divide by max(|lambda|, 2) = 2.
+    model = pc.from_transfer_function([1.0, 1.001], [1.0, 3.0, 2.0])
+    contents = report_contents.collect_report(model, progress=False)
+    assert contents.zeros.finite_zeros.size == 1
+    by_pole = {round(m.value.real): d for m, d in zip(contents.analysis.modes,
+                                                        contents.mode_zero_distances)}
+    assert by_pole[-1].nearest_zero.real == pytest.approx(-1.001, rel=1e-9)
+    assert by_pole[-1].distance == pytest.approx(0.001, rel=1e-6)
+    assert by_pole[-2].distance == pytest.approx(0.999, rel=1e-9)
+    assert by_pole[-1].relative_distance == pytest.approx(0.0005, rel=1e-6)
+
+
+def test_a_model_without_finite_zeros_has_infinite_distances():
+    contents = report_contents.collect_report(([[-1.0, 1.0], [0.0, -2.0]], [[0.0], [1.0]],
+                                               [[1.0, 0.0]]), progress=False)
+    assert contents.zeros.finite_zeros.size == 0 and contents.zeros.infinite_zero_count == 2
+    assert all(d.nearest_zero is None and d.distance == np.inf
+               for d in contents.mode_zero_distances)
