@@ -33,4 +33,14 @@ def test_notebook_executes(run_notebook, tmp_path):
     assert "still closed-loop poles: True" in text
     assert any(o.output_type == "display_data" and "image/png" in o.get("data", {})
                for o in outputs)
+    # the rich display of a result and a figure returned by a plotting function (issue 21)
+    rich = [o["data"]["text/html"] for o in outputs if o.output_type == "execute_result"
+            and "text/html" in o.get("data", {})]
+    assert any(page.startswith('<div class="plantcore-report">') and "Analysis" in page
+               for page in rich)
+    assert any(o.output_type == "execute_result" and "image/png" in o.get("data", {})
+               for o in outputs)
+    line = next(ln for ln in text.splitlines() if ln.startswith("Analysis(model=<model"))
+    assert "11 states>" in line and len(line) <= 320        # a short repr, not kilobytes
+    assert "StateSpace 11 states -> StateSpace 3 states" in text
     assert os.listdir(tmp_path) == []
