@@ -83,13 +83,16 @@ def plotted_eigenvalues(model, modes) -> np.ndarray:
                      for m in modes], dtype=complex)
 
 
-def _decade_ticks(magnitudes, most: int = 4) -> np.ndarray:
-    """Powers of ten spanning ``magnitudes`` (positive), at most ``most`` of them, evenly
-    strided so labels never crowd."""
-    lo = math.floor(math.log10(float(magnitudes.min())))
-    hi = math.ceil(math.log10(float(magnitudes.max())))
+def _decade_ticks(magnitudes, most: int = 5) -> np.ndarray:
+    """Powers of ten inside the range of ``magnitudes`` (positive), at most ``most`` of them,
+    evenly strided so labels never crowd (the decade just outside is used when the range
+    holds no power of ten)."""
+    lo = math.ceil(math.log10(float(magnitudes.min())))
+    hi = math.floor(math.log10(float(magnitudes.max())))
+    if hi < lo:
+        lo = hi = round(math.log10(float(np.sqrt(magnitudes.min() * magnitudes.max()))))
     stride = max(1, math.ceil((hi - lo + 1) / most))
-    return 10.0 ** np.arange(lo, hi + 1, stride)
+    return 10.0 ** np.arange(hi, lo - 1, -stride)[::-1]
 
 
 def _power_label(x, _pos=None) -> str:

@@ -47,13 +47,15 @@ def _num(x, digits: int = 3) -> str:
 
 
 def decision_method(decision) -> str:
-    """Which method made a rank decision, in words (from its label and kind)."""
+    """Which method made a rank decision, in a few words (from its label and kind): an
+    orthogonal staircase step, the modal certificate (mode by mode; a check of the
+    staircase when it decides nothing itself), or the reduction of the system pencil."""
     if decision.label.startswith("modal certificate"):
-        return "modal certificate, mode by mode" + (" (a check)" if decision.check_only else "")
+        return "modal certificate" + (" (check)" if decision.check_only else "")
     if decision.label.startswith("zeros"):
-        return "system pencil reduction"
+        return "pencil reduction"
     if "step" in decision.label:
-        return "orthogonal staircase"
+        return "staircase"
     return "singular values"
 
 
