@@ -139,3 +139,19 @@ def test_loader_reads_time_column(tmp_path):
     data = load_impulse_response(path)
     assert data.sample_time == 0.5 and data.values.shape == (3, 1, 1)
     assert data.outputs == ("y",) and data.inputs == ("u",)
+
+
+def test_existing_output_kept_unless_force(tmp_path, capsys):
+    data = tmp_path / "pulse.npz"
+    save_impulse_response(data, np.r_[0.0, 0.5 ** np.arange(9)], sample_time=0.1)
+    out = tmp_path / "model.toml"
+    out.write_text("kept\n")
+    assert main(["realize", str(data), "-o", str(out)]) == 2
+    _one_line_error(capsys, "model.toml", "already exists", "--force")
+    assert out.read_text() == "kept\n"
+    assert main(["realize", str(data), "-o", str(out), "--force"]) == 0
+    assert pc.load_model(out).n == 1
+    assert main(["realize", str(data), "-o", str(tmp_path / "model.txt")]) == 2
+    _one_line_error(capsys, "model.txt", "suffix")
+    assert main(["realize", str(data), "-o", str(data), "--force"]) == 2
+    _one_line_error(capsys, "pulse.npz")

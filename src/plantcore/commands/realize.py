@@ -7,7 +7,8 @@ with the array ``impulse_response`` of shape (samples, outputs, inputs), or a ``
 :func:`plantcore.reduction.impulse_realization.realize_impulse_response`, writes it as a
 model file that :func:`plantcore.load_model` reads (``.toml``, ``.json`` or ``.npz`` by the
 suffix of ``OUT``), and prints the evidence for the order.  The output is checked before
-anything is computed, written all at once, and never over the data file.  Exit codes: 0
+anything is read or computed (its suffix; an existing file is kept unless ``--force``),
+written all at once, and never over the data file, even with ``--force``.  Exit codes: 0
 written (a ``warning:`` line when the order is fragile), 2 bad input, 3 numerical breakdown.
 """
 
@@ -32,8 +33,9 @@ def register(subparsers):
         epilog="DATA: an .npz archive with impulse_response (samples, outputs, inputs) and "
                "optionally sample_time, noise_level, inputs, outputs; or a .csv file whose "
                "header is 'sample' or 'time' followed by one 'OUTPUT <- INPUT' column per "
-               "channel. Sample 0 holds D. Exit codes: 0 the model was written; 2 bad input; "
-               "3 numerical breakdown.")
+               "channel. Sample 0 holds D. An existing output file is kept unless --force is "
+               "given; the data file is never overwritten. Exit codes: 0 the model was "
+               "written; 2 bad input; 3 numerical breakdown.")
     p.add_argument("data", metavar="DATA", help="impulse-response data (.npz or .csv)")
     p.add_argument("-o", "--output", required=True, metavar="OUT",
                    help="model file to write (.toml, .json or .npz)")
@@ -48,6 +50,9 @@ def register(subparsers):
                         "default: the file's, else estimated from the data)")
     p.add_argument("--format", choices=_FORMATS, default="text",
                    help="what to print: text (default) or json")
+    from plantcore.cli import _add_force
+
+    _add_force(p)
     return _handler
 
 
@@ -59,13 +64,17 @@ def _resolve(given, stored, option: str, key: str, path: str):
 
 
 def _handler(args) -> int:
+    from plantcore.cli import _check_output_first
     from plantcore.core.errors import ModelFileError
-    from plantcore.files import check_output_path, save_model
+    from plantcore.files import save_model
+    from plantcore.files.layout import MODEL_FILE_SUFFIXES
     from plantcore.files.response_files import load_impulse_response
     from plantcore.reduction.impulse_realization import realize_impulse_response
 
+    _check_output_first(args.output, inputs=(args.data,), force=args.force,
+                        suffixes=MODEL_FILE_SUFFIXES, kind="model file format",
+                        suffix_selects_format=True)  # refuse before reading or computing
     data = load_impulse_response(args.data)
-    check_output_path(args.output, inputs=(args.data,))  # refuse before computing
     sample_time = _resolve(args.sample_time, data.sample_time, "--sample-time", "sample_time",
                            args.data)
     noise_level = _resolve(args.noise_level, data.noise_level, "--noise-level", "noise_level",
@@ -77,7 +86,7 @@ def _handler(args) -> int:
     except ValueError as exc:  # name the file and the field the problem belongs to
         field = "--order" if str(exc).startswith("order") else "impulse_response"
         raise ModelFileError(args.data, field, str(exc)) from None
-    save_model(fit.model, args.output, inputs=(args.data,))
+    save_model(fit.model, args.output, inputs=(args.data,), overwrite=args.force)
     if args.format == "json":
         print(json.dumps(_as_dict(fit, args), indent=2, allow_nan=False))
     else:
