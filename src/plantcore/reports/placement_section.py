@@ -9,7 +9,7 @@ from __future__ import annotations
 from plantcore.core.wording import SAFETY_CAUTION, counted, short_number, shown_value
 from plantcore.reports.style import escape, html_number
 
-__all__ = ["placement_html", "placement_lead", "placement_markdown", "placement_text"]
+__all__ = ["placement_html", "placement_markdown", "placement_report_html", "placement_text"]
 
 _HEADERS = ("rank", "candidate", "restores", "margin", "goal margin", "restored margin",
             "minimal order", "reaches goal")
@@ -159,9 +159,19 @@ def placement_html(s, *, max_rows: int = 12) -> str:
             f"{more}{notes}")
 
 
-def placement_lead() -> str:
-    """The lead sentence of the report section (HTML)."""
-    return ("Some mode is not controllable, not observable, or only barely. Each candidate "
+def placement_report_html(contents) -> str:
+    """The report's placement section (after the modes), or ``""`` when every mode passes
+    both PBH tests clearly: reads ``contents.placement`` (computed by
+    :func:`plantcore.analysis.collect_report`)."""
+    suggestions = getattr(contents, "placement", ())
+    if not suggestions:
+        return ""
+    body = "".join(placement_html(s) for s in suggestions)
+    return ('<section id="placement">\n<h2><span class="num">&#8627;</span>Where to add an '
+            f'actuator or sensor</h2>\n<p class="lead">{_LEAD}</p>\n{body}\n</section>\n')
+
+
+_LEAD = ("Some mode is not controllable, not observable, or only barely. Each candidate "
             "below is one actuator (a unit input at a state) or one sensor (a measurement of a "
             "state) added to the model; its margin is the smallest singular value of "
             "[A &minus; &lambda;I, B, b] (or [A &minus; &lambda;I; C; c]) over the modes, the "

@@ -84,13 +84,19 @@ from plantcore.structure.pbh_measures import PBHMeasures
 from plantcore.structure.staircase_kernels import reduce_staircase
 from plantcore.structure.structural_matching import StructuralPlacement, structural_placement
 
-__all__ = ["EXHAUSTIVE_SUBSETS", "PlacementSuggestion", "RankedCandidate", "suggest_actuators",
-           "suggest_sensors"]
+__all__ = ["EXHAUSTIVE_SUBSETS", "REPORT_STATES_LIMIT", "PlacementSuggestion", "RankedCandidate",
+           "report_placement", "suggest_actuators", "suggest_sensors"]
 
 EXHAUSTIVE_SUBSETS = 4096
 
 """Most subsets tried by the exhaustive search for a set smaller than the greedy one (about
 0.1 ms each for the structure; the margins only for subsets that pass it)."""
+
+REPORT_STATES_LIMIT = 200
+
+"""A report suggests placements (one candidate at each state) only up to this many states;
+beyond it ``plantcore suggest`` with a candidate file is the tool (its cost grows with the
+number of candidates times the modes each must be measured at)."""
 
 _GOALS = {"actuator": ("controllable", "stabilizable"), "sensor": ("observable", "detectable")}
 _CHUNK = 8          # modes measured per call while pruning
@@ -738,3 +744,26 @@ def suggest_sensors(model, candidates=None, *, target_margin=None, max_count=Non
     """
     return _suggest(model, candidates, "sensor", target_margin=target_margin,
                     max_count=max_count, goal=goal, tol=tol)
+
+
+def report_placement(model, modes, *, tol=None) -> tuple:
+    """The suggestions a model report shows (internal to the reports, public for them).
+
+    An actuator suggestion when some mode of ``modes`` (the model's mode table) is not
+    controllable or passes with a margin below :data:`~plantcore.structure.modes.NARROW_MARGIN`
+    (then that margin is the target), a sensor suggestion likewise; one candidate at each
+    state.  Empty when every mode passes both tests clearly, or when the model has more than
+    :data:`REPORT_STATES_LIMIT` states.
+    """
+    model = as_model(model)
+    if model.n == 0 or model.n > REPORT_STATES_LIMIT:
+        return ()
+    out = []
+    for kind, ok, margin in (("actuator", "controllable", "controllability_margin"),
+                             ("sensor", "observable", "observability_margin")):
+        missing = any(not getattr(m, ok) for m in modes)
+        narrow = any(getattr(m, ok) and getattr(m, margin) < NARROW_MARGIN for m in modes)
+        if missing or narrow:
+            out.append(_suggest(model, None, kind, target_margin=NARROW_MARGIN if narrow else None,
+                                max_count=None, goal=None, tol=tol))
+    return tuple(out)
