@@ -22,6 +22,7 @@ from plantcore.core.rank import DEFAULT_RELATIVE_TOLERANCE
 from plantcore.reduction.balanced import balanced_truncation
 from plantcore.reduction.equivalence import check_equivalence
 from plantcore.reduction.norms import peak_gain as _peak_gain
+from plantcore.structure.placement import report_placement
 from plantcore.structure.zeros import transmission_zeros
 
 __all__ = ["DEFAULT_RELATIVE_ERROR", "ModeZeroDistance", "ReportContents", "SampledResponse",
@@ -190,6 +191,9 @@ class ReportContents:
         The file the model came from, shown in the header.
     created : str
         Local date and time the report was made (ISO format, minutes).
+    placement : tuple of PlacementSuggestion
+        Actuator and sensor suggestions when some mode is uncontrollable, unobservable or
+        below the near-cancellation margin (see :func:`plantcore.structure.placement.report_placement`).
     """
 
     analysis: object
@@ -206,6 +210,7 @@ class ReportContents:
     mode_zero_distances: tuple = field(default=(), repr=False)
     zeros_problem: str = ""
     created: str = field(default_factory=lambda: _dt.datetime.now().isoformat(timespec="minutes"))
+    placement: tuple = field(default=(), repr=False)
 
     @property
     def model(self):
@@ -336,4 +341,5 @@ def collect_report(model, *, tol=None, order=None, max_error=None, source=None,
                           reduced_certificate, gain, responses,
                           None if source is None else os.fsdecode(os.fspath(source)),
                           zeros=zeros, mode_zero_distances=_zero_distances(analysis.modes, zeros),
-                          zeros_problem=zeros_problem)
+                          zeros_problem=zeros_problem,
+                          placement=report_placement(model, analysis.modes, tol=analysis.tolerance))
