@@ -43,6 +43,7 @@ from plantcore.analysis.report_contents import (
 from plantcore.core.version import __version__
 from plantcore.core.wording import SAFETY_CAUTION, counted, shown_eigenvalue, shown_value
 from plantcore.files.safe_write import atomic_write_text
+from plantcore.reports.placement_section import placement_report_html
 from plantcore.reports.plots import PART_LABELS, eigenvalue_plot, frequency_plot, hankel_plot
 from plantcore.reports.style import escape, html_fragment, html_number, html_page
 from plantcore.reports.text import decision_method
@@ -562,6 +563,7 @@ def render_html(contents: ReportContents, *, progress=None, fragment: bool = Fal
                     if c.reduction is not None else ".")),
         _hankel_section(c, hank),
         _certificate_section(c),
+        placement_report_html(c),
         _section("caution", f"<p>{_e(SAFETY_CAUTION)}</p>"),
         "<footer>This report is self-contained: it loads nothing from any network.</footer>",
     ]
