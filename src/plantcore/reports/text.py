@@ -460,7 +460,14 @@ def certificate_text(cert, *, caution: bool = True, labels=None) -> str:
         else:
             where = ""
         method = f"; {cert.peak_error_method}" if cert.peak_error_method else ""
-        lines.append(f"  Peak error:            {short_number(cert.peak_error)}{where}{method}")
+        peak = short_number(cert.peak_error)
+        if (cert.criterion == "exact rational arithmetic" and not cert.equivalent
+                and cert.peak_error <= cert.attainable_accuracy * max(cert.reference_gain, 0.0)):
+            # the exact comparison found a difference that floating point cannot resolve:
+            # say so, so that "0" is not read as "no difference"
+            peak = (f"{peak} in floating point (below what floating point resolves; the exact "
+                    "comparison finds a difference)")
+        lines.append(f"  Peak error:            {peak}{where}{method}")
         lines.append(f"  Relative error:        {short_number(cert.relative_error)} "
                      f"(of the reference gain {short_number(cert.reference_gain)})")
         lines.append(f"  Markov parameters:     {cert.compared_markov_parameters} compared, "
