@@ -341,7 +341,8 @@ class StateSpaceModel:
         ``point`` is ``s`` in continuous time and ``z`` in discrete time.  Returns a complex
         ``(p, m)`` array; raises ``ValueError`` when the point is an eigenvalue of ``A``.
         A sparse model is evaluated with one sparse LU factorization of ``point I - A``
-        (scipy.sparse.linalg.splu), never a dense ``n x n`` array.
+        in real arithmetic (:mod:`plantcore.core.sparse_solve`), never a dense ``n x n``
+        array.
         """
         s = complex(point)
         n = self.n
@@ -357,23 +358,15 @@ class StateSpaceModel:
         return self._C @ X + self._D
 
     def _sparse_transfer_at(self, s: complex, point) -> np.ndarray:
-        import warnings
+        from plantcore.core.sparse_solve import sparse_lu
 
-        import scipy.sparse.linalg
-
-        identity = scipy.sparse.identity(self.n, dtype=complex, format="csc")
-        M = (s * identity - self._A.astype(complex)).tocsc()
+        identity = scipy.sparse.identity(self.n, format="csc")
         try:
-            with warnings.catch_warnings():
-                warnings.simplefilter("error", scipy.sparse.linalg.MatrixRankWarning)
-                # minimum degree on A^T + A: about half the fill of the default ordering
-                # on 5-point grids (plantcore.large.low_rank_gramians)
-                X = scipy.sparse.linalg.splu(M, permc_spec="MMD_AT_PLUS_A").solve(
-                    self._B.astype(complex))
-        except (RuntimeError, scipy.sparse.linalg.MatrixRankWarning):
+            lu = sparse_lu(s.real * identity - self._A, s.imag * identity if s.imag else None)
+        except ValueError:
             raise ValueError(f"the transfer matrix is not defined at {point}: it is an "
                              "eigenvalue of A.") from None
-        return self._C @ X + self._D
+        return self._C @ lu.solve(self._B) + self._D
 
     def to_control(self):
         """Convert to a ``control.StateSpace`` object (python-control); dense models only."""
