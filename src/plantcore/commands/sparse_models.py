@@ -19,7 +19,17 @@ def register(subparsers) -> None:
     """Nothing to register: the handlers serve the existing commands."""
 
 
+def _tolerance_note(args) -> None:
+    if getattr(args, "tol", None) is not None:
+        import sys
+
+        print("note: --tol (the rank tolerance of the dense route) does not apply to a sparse "
+              "model: its structural decisions are exact and the Gramians stop on their "
+              "residual.", file=sys.stderr)
+
+
 def inspect_sparse(args, model) -> int:
+    _tolerance_note(args)
     from plantcore.large.summary import summarize_sparse
     from plantcore.reports.sparse_report import (
         sparse_summary_dict,
@@ -39,6 +49,7 @@ def inspect_sparse(args, model) -> int:
 
 
 def reduce_sparse(args, model) -> int:
+    _tolerance_note(args)
     from plantcore.files import save_model
     from plantcore.large.low_rank_balanced import low_rank_balanced_truncation
     from plantcore.reports.sparse_report import sparse_reduction_lines
@@ -55,6 +66,7 @@ def reduce_sparse(args, model) -> int:
 
 
 def report_sparse(args, model) -> int:
+    _tolerance_note(args)
     from plantcore.large.summary import sparse_report_contents
     from plantcore.reports.sparse_report import write_sparse_html_report
 
