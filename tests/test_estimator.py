@@ -563,7 +563,7 @@ def test_reports_text_and_html(demo):
 def test_cli_audit_text_and_html(tmp_path, demo, capsys):
     path = _save_audit_file(tmp_path / "jac.npz", demo)
     report = tmp_path / "report.html"
-    assert main(["audit", str(path), "-o", str(report)]) == 0
+    assert main(["audit", str(path), "-o", str(report)]) == 1   # spurious: exit 1 (issue 21)
     out = capsys.readouterr().out
     assert "SPURIOUS OBSERVABILITY" in out and "Caution" in out and "report written" in out
     page = report.read_text(encoding="utf-8")

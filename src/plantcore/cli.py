@@ -22,6 +22,7 @@ EXIT_HIDDEN_UNSTABLE = 1   # reduce: a removed mode is not stable and was not ac
 EXIT_BAD_INPUT = 2
 EXIT_INTERNAL = 3
 EXIT_UNDECIDED = 4         # compare, reduce: undecided at the attainable accuracy
+EXIT_SPURIOUS = 1          # audit: the linearized model sees a direction the system cannot
 EXIT_TERMINATED = 143      # SIGTERM (128 + 15), after temporaries and partial folders are removed
 
 _ACKNOWLEDGE = "--accept-hidden-unstable"
@@ -42,6 +43,22 @@ _COMPARE_EXIT_CODES = (
     "tolerance and clearly above rounding, or models that cannot be compared); 2 bad input; "
     "3 numerical breakdown; 4 UNDECIDED (a difference above the tolerance and the attainable "
     "accuracy, but not clearly above rounding).")
+
+
+_TOL_HELP = ("relative rank tolerance (default 5e-11 of the model's scale, 20 n eps above "
+             "11,000 states; see the README's 'Trust of the rank decisions')")
+_EXIT_CODES = {
+    "inspect": "exit codes: 0 analysed (read the verdicts); 2 bad input; 3 numerical breakdown.",
+    "report": "exit codes: 0 report written; 2 bad input or refused output; 3 numerical "
+              "breakdown.",
+    "audit": "exit codes: 0 consistent (no expected unobservable direction is seen); 1 "
+             "SPURIOUS OBSERVABILITY (the linearized model sees a direction the real system "
+             "cannot; the report is still written); 2 bad input; 3 numerical breakdown.",
+    "sweep": "exit codes: 0 swept (points that failed are listed in the table); 2 bad input; "
+             "3 numerical breakdown.",
+    "demo": "exit codes: 0 demo completed; 2 bad input or refused folder; 3 numerical "
+            "breakdown.",
+}
 
 
 class _UsageError(Exception):
@@ -250,6 +267,7 @@ def _cmd_audit(args) -> int:
         _check_output_first(args.output, inputs=(args.jacobians, args.expected),
                             force=args.force, suffixes=_HTML_SUFFIXES, kind="report")
     audit = audit_from_file(args.jacobians, expected_unobservable=args.expected, tol=args.tol)
+    verdict = EXIT_SPURIOUS if audit.spurious_dimension else EXIT_OK
     if args.output:  # written before anything is printed: a refused output prints one line only
         from plantcore.files import atomic_write
 
@@ -260,7 +278,7 @@ def _cmd_audit(args) -> int:
     print(audit_text(audit, source=args.jacobians))
     if args.output:
         print(f"report written to {args.output}")
-    return EXIT_OK
+    return verdict
 
 
 # --- sweep ---
@@ -310,12 +328,18 @@ def _build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="plantcore",
                      description="Controllability, observability, Kalman decomposition and "
                                  "certified reduction of linear state-space models.")
+    from plantcore.core.version import __version__
+
+    parser.add_argument("--version", action="version", version=f"plantcore {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
-    p = sub.add_parser("inspect", help="part sizes, rank decisions and verdicts of a model")
+    p = sub.add_parser("inspect", help="part sizes, rank decisions and verdicts of a model",
+                       epilog=_EXIT_CODES["inspect"])
     p.add_argument("model", help="model file (.toml, .json or .npz)")
-    p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
-    p.add_argument("--format", choices=("text", "markdown", "json"), default="text")
+    p.add_argument("--tol", type=float, default=None, help=_TOL_HELP)
+    p.add_argument("--format", choices=("text", "markdown", "json"), default="text",
+                   help="how to print the analysis (default text; json keeps every value "
+                        "unrounded, text and markdown show values at rounding level as 0)")
 
     p = sub.add_parser("reduce", help="write a minimal (or balanced-truncated) model",
                        description="Write a minimal (or balanced-truncated) model and print "
@@ -325,10 +349,12 @@ def _build_parser() -> argparse.ArgumentParser:
     p.add_argument("-o", "--output", required=True, help="file for the reduced model")
     group = p.add_mutually_exclusive_group()
     group.add_argument("--order", type=int, default=None,
-                       help="balanced truncation to this order after minimal realization")
+                       help="balanced truncation to this order after minimal realization "
+                            "(default: the minimal realization, untruncated)")
     group.add_argument("--max-error", type=float, default=None, dest="max_error",
-                       help="balanced truncation to the lowest order whose error bound is below this")
-    p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
+                       help="balanced truncation to the lowest order whose error bound is below "
+                            "this (default: none)")
+    p.add_argument("--tol", type=float, default=None, help=_TOL_HELP)
     p.add_argument(_ACKNOWLEDGE, action="store_true", dest="accept_hidden_unstable",
                    help="write the reduced model even when the minimal realization removes a "
                         "mode that is unstable or on the stability boundary (no controller "
@@ -352,19 +378,21 @@ def _build_parser() -> argparse.ArgumentParser:
                         "(small models; file numbers are taken at their exact binary value)")
     # --- report ---
     p = sub.add_parser("report", help="write a self-contained HTML report with plots",
-                       epilog=_OVERWRITE_POLICY)
+                       epilog=_EXIT_CODES["report"] + " " + _OVERWRITE_POLICY)
     p.add_argument("model", help="model file (.toml, .json or .npz)")
     p.add_argument("-o", "--output", required=True, help="HTML file to write")
-    p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
+    p.add_argument("--tol", type=float, default=None, help=_TOL_HELP)
     group = p.add_mutually_exclusive_group()
     group.add_argument("--order", type=int, default=None,
-                       help="order of the balanced truncation shown in the report")
+                       help="order of the balanced truncation shown in the report (default: "
+                            "chosen by --max-error)")
     group.add_argument("--max-error", type=float, default=None, dest="max_error",
                        help="truncate to the lowest order whose error bound is below this "
                             "(default: a tenth of the peak gain)")
     _add_force(p)
     # --- demo ---
-    p = sub.add_parser("demo", help="run inspect, reduce, compare and report on a packaged example")
+    p = sub.add_parser("demo", help="run inspect, reduce, compare and report on a packaged example",
+                       epilog=_EXIT_CODES["demo"])
     p.add_argument("-o", "--output", default=None, metavar="FOLDER",
                    help="new (or empty) folder for the results; default "
                         "plantcore-demo-YYYYMMDD-HHMMSS in the working directory")
@@ -372,7 +400,8 @@ def _build_parser() -> argparse.ArgumentParser:
                    help="packaged example to use (default thermal_process; also motion_axis)")
     # --- audit ---
     p = sub.add_parser("audit", help="observability audit of the Jacobians a linearized "
-                                     "estimator used", epilog=_OVERWRITE_POLICY)
+                                     "estimator used (exit 1 on spurious observability)",
+                       epilog=_EXIT_CODES["audit"] + " " + _OVERWRITE_POLICY)
     p.add_argument("jacobians", metavar="JACOBIANS.npz",
                    help="archive with transition_jacobians (K, n, n), measurement_jacobians "
                         "(K, p, n) and optionally expected_unobservable (n, d), "
@@ -381,11 +410,11 @@ def _build_parser() -> argparse.ArgumentParser:
                    help="expected unobservable basis (n, d); overrides the one in the archive")
     p.add_argument("-o", "--output", default=None, metavar="REPORT.html",
                    help="also write a self-contained HTML report with plots")
-    p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
+    p.add_argument("--tol", type=float, default=None, help=_TOL_HELP)
     _add_force(p)
     # --- sweep ---
     p = sub.add_parser("sweep", help="analyze a model family over a grid or random draws of "
-                                     "its parameters")
+                                     "its parameters", epilog=_EXIT_CODES["sweep"])
     p.add_argument("spec", help="sweep specification (.toml) with expressions in parameters")
     p.add_argument("-o", "--output", required=True,
                    help="new (or empty) folder for the table, plots and summary")
@@ -395,8 +424,9 @@ def _build_parser() -> argparse.ArgumentParser:
     p.add_argument("--scheduler", default=None,
                    help="Dask scheduler address, e.g. tcp://127.0.0.1:8786")
     p.add_argument("--reduced-order", type=int, default=None, dest="reduced_order",
-                   help="also measure the error of a balanced truncation to this order")
-    p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
+                   help="also measure the error of a balanced truncation to this order "
+                        "(default: the spec's [analysis] reduced_order, else none)")
+    p.add_argument("--tol", type=float, default=None, help=_TOL_HELP)
     # --- commands in modules of their own (plantcore.commands) ---
     import importlib
 

@@ -1,0 +1,51 @@
+"""Command-line conventions of issue 21 item 4 (plantcore.cli): --version, an exit-code
+table in every command's help, the default of every option shown, and ``audit`` exiting 1
+on a spurious-observability verdict so scripts can gate on it (common practice for
+command-line tools: a verdict a script must act on is an exit code)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from plantcore.cli import main
+from plantcore.core.version import __version__
+
+
+def test_version(capsys):
+    with pytest.raises(SystemExit) as exc:
+        main(["--version"])
+    assert exc.value.code == 0
+    assert capsys.readouterr().out.strip() == f"plantcore {__version__}"
+
+
+@pytest.mark.parametrize("command", ["inspect", "reduce", "compare", "report", "demo", "audit",
+                                     "sweep"])
+def test_help_has_exit_codes_and_defaults(command, capsys):
+    with pytest.raises(SystemExit):
+        main([command, "--help"])
+    text = " ".join(capsys.readouterr().out.split())
+    assert "exit codes: 0" in text and "2 bad input" in text
+    if "--tol" in text:
+        assert "default" in text.split("--tol", 2)[-1].split("--", 1)[0]
+
+
+def _jacobians(tmp_path, H):
+    path = tmp_path / "jacobians.npz"
+    K = 5
+    np.savez(path, transition_jacobians=np.repeat(np.eye(2)[None], K, axis=0),
+             measurement_jacobians=np.repeat(np.asarray(H, float)[None], K, axis=0),
+             expected_unobservable=np.array([[1.0], [1.0]]))
+    return path
+
+
+def test_audit_exit_code_is_the_verdict(tmp_path, capsys):
+    # the common shift of both states is unobservable by construction: H = [-1, 1] cannot see
+    # it (exit 0); H = [1, 0] sees it, a spurious observability (exit 1)
+    assert main(["audit", str(_jacobians(tmp_path, [[-1.0, 1.0]]))]) == 0
+    assert "Consistent" in capsys.readouterr().out
+    report = tmp_path / "spurious.html"
+    assert main(["audit", str(_jacobians(tmp_path, [[1.0, 0.0]])), "-o", str(report),
+                 "--force"]) == 1
+    assert "SPURIOUS OBSERVABILITY" in capsys.readouterr().out
+    assert report.stat().st_size > 0        # the report is still written
