@@ -474,8 +474,9 @@ def _hankel_section(c: ReportContents, plot) -> str:
             f"<tr><td class=\"n\">{i + 1}</td><td class=\"n\">{_num(v, 4)}</td>"
             f"<td>{'kept' if i < red.stable_order else 'discarded'}</td></tr>"
             for i, v in enumerate(hsv)]
-        parts.append(f"<details open><summary>All {hsv.size} values</summary>"
-                     f"{_table(('#', 'Value', ''), cells)}</details>")
+        is_open = " open" if hsv.size <= FULL_MODE_TABLE_LIMIT else ""
+        parts.append(f'<details class="all-hankel"{is_open}><summary>All {hsv.size} values'
+                     f"</summary>{_table(('#', 'Value', ''), cells, tall=not is_open)}</details>")
     else:
         parts.append(f"<p>No reduced model: {_e(c.reduction_problem or c.analysis.hankel_note)}</p>")
     lead = ("A balanced truncation of the minimal realization keeps the states with the largest "
