@@ -193,8 +193,10 @@ def draw_eigenvalue_map(ax, model, modes) -> str:
     narrow = np.array([k for k, m in enumerate(modes) if m.narrow], dtype=int)
     if narrow.size:
         z = values[narrow]
-        ax.scatter(z.real, z.imag, s=22 ** 2, marker="o", facecolors="none",
-                   edgecolors="#262626", linewidths=0.9, linestyle=(0, (2, 2)), zorder=4,
+        ring = 22 if narrow.size <= 30 else 14      # many rings would black out the map
+        ax.scatter(z.real, z.imag, s=ring ** 2, marker="o", facecolors="none",
+                   edgecolors="#262626", linewidths=0.9 if narrow.size <= 30 else 0.5,
+                   linestyle=(0, (2, 2)), zorder=4,
                    label=f"near cancellation ({narrow.size})")
     if not len(modes):
         ax.text(0.5, 0.5, "the model has no states", transform=ax.transAxes, ha="center")

@@ -92,7 +92,7 @@ REPORT_CSS = f"""
 {_R} .bar {{ display: inline-block; height: 0.6rem; background: var(--slate);
        vertical-align: middle; }}
 {_R} .bar.fragile {{ background: var(--brick); }}
-{_R} .flag {{ color: var(--warn); font-weight: 600; }}
+{_R} .flag {{ color: var(--warn); font-weight: 600; white-space: nowrap; }}
 {_R} .ok {{ color: var(--good); font-weight: 600; }}
 {_R} .verdict {{ border-left: 0.4rem solid var(--slate); background: var(--band);
        padding: 0.6rem 0.9rem; font-weight: 600; }}
