@@ -122,3 +122,32 @@ def test_bad_input():
     data = markov_parameters(pc.StateSpaceModel([[0.5]], [[1.0]], [[1.0]], dt=0.1), 6)
     with pytest.raises(ValueError, match="conflicts with the data's sample time"):
         realize_impulse_response(data, sample_time=0.2)
+
+
+def test_weak_state_near_the_rounding_floor_is_fragile():
+    # A mode whose contribution is 1e-10 of the other's: its Hankel singular value lies
+    # within a factor 100 of the rounding floor (5e-11 relative), so the order is fragile.
+    model = pc.StateSpaceModel(np.diag([0.5, -0.3]), [[1.0], [1e-5]], [[1.0, 1e-5]], dt=1.0)
+    fit = realize_impulse_response(markov_parameters(model, 30), noise_level=0.0)
+    assert fit.decision.fragile and fit.fragile
+    clear = pc.StateSpaceModel(np.diag([0.5, -0.3]), [[1.0], [1e-2]], [[1.0, 1e-2]], dt=1.0)
+    fit = realize_impulse_response(markov_parameters(clear, 30), noise_level=0.0)
+    assert fit.order == 2 and not fit.fragile
+
+
+def test_seeded_slice_of_the_noisy_study():
+    # A small slice of benchmarks/impulse_realization_study.py ("separated" family, low
+    # orders, 40 dB): the true order is found, never too high, never wrong and unflagged.
+    rng = np.random.default_rng(2027)
+    for _ in range(6):
+        n = int(rng.integers(2, 9))
+        model = _modal(rng, n, int(rng.integers(1, 4)), int(rng.integers(1, 4)),
+                       radius=(0.9, 0.97))
+        exact = markov_parameters(model, 200).values
+        sigma = np.sqrt(np.mean(exact[1:] ** 2)) / 100.0
+        noise = sigma * rng.standard_normal(exact.shape)
+        noise[0] = 0.0
+        fit = realize_impulse_response(exact + noise, sample_time=1.0)
+        assert fit.order <= n
+        assert fit.order == n or fit.fragile
+        assert fit.order == n
