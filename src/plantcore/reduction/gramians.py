@@ -19,7 +19,7 @@ from plantcore.core.errors import NumericalBreakdown
 from plantcore.core.model import as_model
 from plantcore.structure.kalman import _prepare
 from plantcore.structure.modes import _stability, _stability_data
-from plantcore.structure.pbh_measures import _Schur
+from plantcore.structure.pbh_measures import _Schur, one_blas_thread
 
 __all__ = ["GramianFactors", "gramian_factors"]
 
@@ -159,11 +159,16 @@ def _schur_factor(schur, X: np.ndarray, discrete: bool, side: str) -> np.ndarray
         return np.zeros((0, 0))
     real = not np.any(np.diag(schur.T, -1))
     S, Z = (schur.T, schur.Q) if real else schur.complex
+    # the recursion is a loop of level-2 solves: one BLAS thread (item 6 of issue 17)
     if side == "c":
-        U = _hammarling(S, _compressed(Z.conj().T @ X), discrete)
+        M = _compressed(Z.conj().T @ X)
+        with one_blas_thread():
+            U = _hammarling(S, M, discrete)
     else:
         flipped = np.conj(S.T[::-1, ::-1])
-        U = _hammarling(flipped, _compressed((X @ Z).conj().T[::-1, :]), discrete)[::-1, :]
+        M = _compressed((X @ Z).conj().T[::-1, :])
+        with one_blas_thread():
+            U = _hammarling(flipped, M, discrete)[::-1, :]
     return _realified(U if real else _to_real_schur_basis(schur, U))
 
 

@@ -12,11 +12,10 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from threadpoolctl import threadpool_limits
 
 from plantcore.structure.kalman import _prepare
 from plantcore.structure.modes import _CLUSTER_FACTOR, _EPS, _clustered_eigenvalues, _upper
-from plantcore.structure.pbh_measures import PBHMeasures
+from plantcore.structure.pbh_measures import PBHMeasures, one_blas_thread
 
 __all__ = ["DistanceEstimate", "distance_to_uncontrollability", "distance_to_unobservability"]
 
@@ -65,11 +64,6 @@ _CURVATURE_FLOOR = 1e-3
 _ZERO_LEVEL = 1e3 * _EPS
 
 _ADJECTIVE = {"uncontrollability": "uncontrollable", "unobservability": "unobservable"}
-
-_FEW_THREADS_SIZE = 300
-
-"""Up to this many states the searches run with one BLAS thread (threadpoolctl): their
-iterations are many small LAPACK calls, which more threads only slow down."""
 
 _BATCH_ELEMENTS = 1 << 21
 
@@ -402,11 +396,9 @@ def _distances_of(problems) -> list[DistanceEstimate]:
         prepared.append((scale, kind, len(scored), len(tried), best_value, best_at,
                          on_schur is not None))
     if searches:
-        # small models: many small batched SVDs per iteration, faster on one BLAS thread
-        if searches[0].A.shape[0] <= _FEW_THREADS_SIZE:
-            with threadpool_limits(1):
-                found = _descend(searches)
-        else:
+        # many small batched SVDs (small models) or level-2 measures on the Schur form
+        # (large models) per iteration: faster on one BLAS thread
+        with one_blas_thread():
             found = _descend(searches)
         for i, (value, at) in zip(owners, found):
             scale, kind, n_scored, n_tried, best_value, best_at, large = prepared[i]

@@ -49,11 +49,11 @@ import math
 import numpy as np
 import scipy.linalg
 from scipy.linalg import blas, lapack
-from threadpoolctl import threadpool_limits
+from threadpoolctl import ThreadpoolController
 
 from plantcore.structure.certificate import _Schur
 
-__all__ = ["MAX_STEPS", "PBHMeasures", "schur_from_form"]
+__all__ = ["MAX_STEPS", "PBHMeasures", "one_blas_thread", "schur_from_form"]
 
 _EPS = np.finfo(float).eps
 
@@ -63,6 +63,19 @@ MAX_STEPS = 80
 
 _RESIDUAL = 1e-8    # stop when beta_k |u_k| <= _RESIDUAL * theta
 _SEED = 20240917      # fixed start vectors: the same answer on every run
+
+
+_CONTROLLER: list = []
+
+
+def one_blas_thread():
+    """A context that runs BLAS and LAPACK on one thread, around loops of small (level-2)
+    operations, which more threads only slow down.  One threadpoolctl controller is made on
+    first use and kept: entering its limit costs microseconds, where a fresh
+    ``threadpool_limits`` inspects every loaded library (milliseconds) each time."""
+    if not _CONTROLLER:
+        _CONTROLLER.append(ThreadpoolController())
+    return _CONTROLLER[0].limit(limits=1)
 
 
 class _GivenSchur(_Schur):
@@ -117,7 +130,7 @@ class PBHMeasures:
             return out
         if not any(X is held for held in self._held):
             self._held.append(X)
-        with threadpool_limits(1):
+        with one_blas_thread():
             for i, lam in enumerate(lams):
                 out[i] = self._one(X, lam, side)
         return out
@@ -133,7 +146,7 @@ class PBHMeasures:
         if not any(X is held for held in self._held):
             self._held.append(X)
         lam = complex(lam)
-        with threadpool_limits(1):
+        with one_blas_thread():
             value, z, real = self._one(X, lam, side, start=start, rtol=rtol, vector=True)
         schur = self.schur
         Q = schur.Q if real else schur.complex[1]
