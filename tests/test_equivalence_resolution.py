@@ -160,3 +160,63 @@ def test_certificate_study_slice_has_no_false_not_equivalent():
     s = study.summary(study.run(1, spreads=(12,))[0])         # eigenvalues over 12 decades
     assert s["false_not_equivalent"] == 0 and s["false_equivalent"] == 0
     assert s["pairs"] >= 12
+
+
+# --- large models: Schur-form evaluation, no realization of the difference (issue 17) ------------
+
+def _large(n=160, m=2, p=2, seed=17):
+    rng = np.random.default_rng(seed)
+    A = rng.standard_normal((n, n)) / math.sqrt(n) - 1.5 * np.eye(n)
+    return pc.StateSpaceModel(A, rng.standard_normal((n, m)), rng.standard_normal((p, n))), rng
+
+
+def test_schur_evaluator_agrees_with_a_dense_solve_and_its_bound_holds():
+    # the Schur-form response of a 160-state model against numpy's dense solve
+    # (transfer_at); the bound must cover the difference of the two computed values
+    from plantcore.reduction.equivalence_resolution import DENSE_LIMIT, ResponseEvaluator
+    from plantcore.reduction.norms import _equilibrated
+
+    model, _ = _large()
+    assert model.n > DENSE_LIMIT
+    evaluate = ResponseEvaluator(_equilibrated(model), False)
+    assert not evaluate.dense
+    for w in (0.0, 0.3, 1.7, 40.0):
+        G, bound = evaluate(w)
+        dense = model.transfer_at(1j * w)
+        assert np.linalg.norm(G - dense, 2) <= bound
+        assert bound <= 1e-11 * np.linalg.norm(dense, 2)
+
+
+def test_large_models_are_compared_without_a_realization_of_the_difference():
+    """A 160-state model against a similarity transform of itself (cond(T) = 10) and against
+    a copy whose outputs are scaled by 1 + 1e-4, whose difference is exactly 1e-4 G (so the
+    relative peak error is 1e-4, at the peak of G; derived here)."""
+    model, rng = _large()
+    U, _ = np.linalg.qr(rng.standard_normal((model.n, model.n)))
+    T = U @ np.diag(np.geomspace(1.0, 10.0, model.n)) @ U.T
+    Ti = np.linalg.inv(T)
+    copy = model.replace(A=Ti @ model.A @ T, B=Ti @ model.B, C=model.C @ T)
+    cert = check_equivalence(model, copy)
+    assert cert.verdict == "equivalent" and cert.difference_order is None
+    assert cert.difference_order_method.startswith("not formed")
+    assert "Schur forms" in cert.peak_error_method
+    assert any("local search" in r for r in cert.reasons)
+    scaled = model.replace(C=model.C * (1 + 1e-4))
+    cert = check_equivalence(model, scaled)
+    assert cert.verdict == "not equivalent"
+    assert cert.relative_error == pytest.approx(1e-4, rel=1e-6)
+
+
+def test_difference_realized_only_when_small_or_asked():
+    rng = np.random.default_rng(3)
+    small = stiff(rng, 1e-1, 1e1, n=5)
+    assert check_equivalence(small, small).difference_order == 0          # 10 states: realized
+    assert check_equivalence(small, small, realize_difference=False).difference_order is None
+    model, _ = _large(n=30, m=1, p=1)                                     # 60 states
+    cert = check_equivalence(model, model)
+    assert cert.difference_order is None and "block form" in cert.peak_error_method
+    asked = check_equivalence(model, model, realize_difference=True)
+    # realized on request; the staircase of a generic 60-state difference need not see the
+    # cancellation (the order is counted, capped at 60), while the verdict is the same
+    assert asked.equivalent and 0 <= asked.difference_order <= 60
+    assert asked.difference_order_method.startswith("minimal realization of the 60-state")

@@ -22,11 +22,13 @@ from plantcore.core.rendering import render
 from plantcore.core.wording import counted, frequency_phrase, short_number
 from plantcore.reduction.equivalence_resolution import (
     ATTAINABLE_LIMIT,
+    DENSE_LIMIT,
     RESOLUTION_MARGIN,
     FrequencyCheck,
+    ResponseEvaluator,
     compare_responses,
-    defective_poles,
     examined_frequencies,
+    refine_largest_difference,
     resolution_verdict,
 )
 from plantcore.reduction.norms import PeakGain, _equilibrated, _peak_gain, peak_gain
@@ -75,7 +77,9 @@ class EquivalenceCertificate:
     difference_order : int or None
         Order of a minimal realization of ``a - b``; 0 when the transfer functions agree up
         to the feedthrough; never more than ``n_a + n_b``.  None when the models cannot be
-        compared.  States that carry only a difference below the attainable accuracy are
+        compared, or when the difference has more than ``REALIZE_LIMIT`` (40) states and
+        ``realize_difference`` was not set (the reduction is then not computed; the verdict
+        never depended on it).  States that carry only a difference below the attainable accuracy are
         counted: on stiff models the rank decisions may not see the cancellation that the
         frequency responses show.
     difference_order_method : str
@@ -235,8 +239,8 @@ class EquivalenceCertificate:
 
 
 def _validate_tol(tol) -> float:
-    if isinstance(tol, bool):
-        raise ValueError(f"tol must be a positive number below 1, got {tol!r}.")
+    if isinstance(tol, bool):   # one error type for every bad tol
+        raise ValueError(f"tol must be a positive number below 1, got {tol!r}.")  # noqa: TRY004
     try:
         value = float(tol)
     except (TypeError, ValueError):
@@ -387,8 +391,22 @@ def _incomparable(a, b, tol, reasons) -> EquivalenceCertificate:
 
 # --- public function --------------------------------------------------------------------------
 
+#: Above this many states in total, the difference ``a - b`` is not reduced to a minimal
+#: realization unless asked (``realize_difference=True``): on two models with shared
+#: eigenvalues that reduction is the most expensive step by far, and the verdict rests on
+#: the measured differences anyway.
+REALIZE_LIMIT = 40
+
+#: Up to this many states in total, the peak of the difference is located by the peak-gain
+#: level-set test on the difference in block form; above, by a local search from the largest
+#: measured difference (a level-set test on ``n_a + n_b`` states costs eight times the one
+#: on ``a``).
+BLOCK_PEAK_LIMIT = 200
+
+
 def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
-                      reference_peak_gain=None) -> EquivalenceCertificate:
+                      reference_peak_gain=None,
+                      realize_difference: bool | None = None) -> EquivalenceCertificate:
     """Certify whether two models have the same transfer matrix.
 
     Parameters
@@ -533,34 +551,61 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
         mr = None
         order, decisions = 0, ()
         order_method = "no inputs or no outputs: the transfer matrices are empty"
-    else:
+    elif realize_difference or (realize_difference is None and total <= REALIZE_LIMIT):
         mr = minimal_realization(_difference(ma, mb))
         order, decisions = min(mr.order, total), tuple(mr.decisions)
         order_method = (f"minimal realization of the {total}-state difference A - B in block "
                         "form (orthogonal staircase rank decisions, default tolerance)")
         if mr.order > total:
             order_method += f"; it reported {mr.order}, capped at the {total} states there are"
+    else:
+        mr = None
+        order, decisions = None, ()
+        order_method = (f"not formed: the {total}-state difference is not reduced to a minimal "
+                        f"realization above {REALIZE_LIMIT} states unless "
+                        "realize_difference=True; the verdict rests on the measured "
+                        "differences")
     fragile = any_fragile(decisions)
 
+    # Judge "pole on the boundary" against the scale of the two models, not of the small
+    # minimal difference (whose shared-integrator remnant may be 1e-26).
+    scale = max(float(np.linalg.norm(m.A)) for m in (ma, mb))
     difference_peak = None
-    if order > 0:
-        # Judge "pole on the boundary" against the scale of the two models, not of the
-        # small minimal difference (whose shared-integrator remnant may be 1e-26).
-        scale = max(float(np.linalg.norm(m.A)) for m in (ma, mb))
+    if order == 0 and mr is None:
+        located = "no peak of the difference to locate (the transfer matrices are empty)"
+    elif mr is not None and order > 0:
         difference_peak = _peak_gain(mr.model, 1e-10, scale)
+        located = "the peak of the minimal difference (level-set test)"
+    elif mr is None and total <= BLOCK_PEAK_LIMIT:
+        difference_peak = _peak_gain(_difference(ma, mb), 1e-10, scale)
+        located = (f"the peak of the {total}-state difference in block form (level-set test, "
+                   "no realization of it reduced)")
+    elif mr is None:
+        located = ("the largest measured difference refined by a local search (no level-set "
+                   f"test on the {total}-state difference above {BLOCK_PEAK_LIMIT} states)")
+    else:
+        located = "no peak of the difference to locate (its minimal realization has order 0)"
     ref_peak = peak_gain(ma) if reference_peak_gain is None else reference_peak_gain
 
     first, second = _equilibrated(ma), _equilibrated(mb)
-    poles = np.concatenate([_eigenvalues(first[0]), _eigenvalues(second[0])])
+    evaluate_a = ResponseEvaluator(first, discrete)
+    evaluate_b = ResponseEvaluator(second, discrete)
+    poles = np.concatenate([evaluate_a.poles, evaluate_b.poles])
     extra = [ref_peak.frequency] + ([difference_peak.frequency] if difference_peak else [])
     state_scale = max(float(np.linalg.norm(m[0])) if m[0].size else 0.0 for m in (first, second))
-    defective = np.concatenate([defective_poles(first[0]), defective_poles(second[0])])
+    defective = np.concatenate([evaluate_a.defective(), evaluate_b.defective()])
     frequencies = examined_frequencies(poles, discrete, extra, scale=state_scale,
                                        defective=defective)
-    checks = compare_responses(first, second, frequencies, discrete)
-    peak_method = (f"measured at {len(checks)} frequencies (both responses "
-                   "evaluated; the grid includes the pole frequencies and the peak of the "
-                   "minimal difference)")
+    checks = compare_responses(evaluate_a, evaluate_b, frequencies, discrete)
+    if mr is None and difference_peak is None and checks:
+        refined = refine_largest_difference(evaluate_a, evaluate_b, checks, discrete)
+        if refined is not None and refined not in checks:
+            checks = checks + (refined,)
+    peak_method = (f"measured at {len(checks)} frequencies (both responses evaluated, "
+                   + ("each by a dense LU factorization" if evaluate_a.dense and evaluate_b.dense
+                      else "on Schur forms where a model has more than "
+                      f"{DENSE_LIMIT} states")
+                   + f"); the grid includes the pole frequencies and {located}")
 
     threshold = tol * ref_peak.value if math.isfinite(ref_peak.value) else math.inf
     judged = resolution_verdict(checks, threshold, limit=_limit(ref_peak.value, checks))
@@ -592,18 +637,23 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
             "where the difference is largest.")
     relative_error = _relative(peak_error, reference)
 
-    if order == 0:
+    if order is None:
+        reasons.append(f"The {total}-state difference A - B was compared by its measured "
+                       "frequency responses in block form; no minimal realization of it was "
+                       "computed.")
+    elif order == 0:
         reasons.append("A minimal realization of the difference A - B has order 0: the "
                        "dynamics agree" + (f", and the feedthrough matrices differ by "
                                            f"{short_number(d_error)}." if d_error > 0 else "."))
     else:
         reasons.append(f"A minimal realization of the difference A - B has order {order}.")
+    reasons.append(f"The peak error was located at {located}.")
     if boundary_pole:
         reasons.append(
             f"The difference has a pole on the {where} at "
             f"{frequency_phrase(peak_frequency, discrete, dt)}: the models differ without "
             "bound there.")
-    elif peak_error > 0 and order > 0:
+    elif peak_error > 0 and order != 0:
         reasons.append(
             f"The transfer functions differ most at "
             f"{frequency_phrase(peak_frequency, discrete, dt)}, where the measured difference "
@@ -619,7 +669,7 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
     else:
         reasons.append(f"The first {markov_count} Markov parameters (impulse-response "
                        f"coefficients, D first) differ by up to {short_number(markov_error)} relative.")
-    if d_error > 0 and order > 0:
+    if d_error > 0 and order != 0:
         reasons.append(f"The feedthrough matrices D differ by {short_number(d_error)} (spectral norm).")
 
     if unconfirmed_pole:
@@ -676,7 +726,8 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
                        "a factor 100 of its tolerance: its order depends on the tolerance.")
 
     return EquivalenceCertificate(
-        equivalent=verdict == "equivalent", difference_order=int(order),
+        equivalent=verdict == "equivalent",
+        difference_order=None if order is None else int(order),
         peak_error=float(peak_error), relative_error=float(relative_error),
         peak_frequency=float(peak_frequency), markov_error=float(markov_error),
         reasons=tuple(reasons), tolerance=tol, criterion=criterion,
@@ -687,13 +738,6 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
         verdict=verdict, verdict_basis=basis, attainable_accuracy=float(attainable),
         decision_frequency=float(decision_frequency), difference_order_method=order_method,
         peak_error_method=peak_method, frequency_checks=checks)
-
-
-def _eigenvalues(A) -> np.ndarray:
-    if A.shape[0] == 0:
-        return np.zeros(0, dtype=complex)
-    with np.errstate(all="ignore"):
-        return np.linalg.eigvals(A)
 
 
 def _limit(reference: float, checks) -> float:
@@ -727,10 +771,10 @@ def _verdict_reasons(verdict, basis, check, reference, tol, attainable, relative
     at = frequency_phrase(check.frequency, discrete, dt)
     measured = _relative(check.difference, reference)
     if basis == "tolerance":
-        out = [f"Equivalent: the relative peak error {short_number(relative_error)} is within "
+        out = [(f"Equivalent: the relative peak error {short_number(relative_error)} is within "
                f"the tolerance {short_number(tol)} (the attainable accuracy at the peak is "
-               f"{short_number(attainable)})."]
-        if order > 0:
+               f"{short_number(attainable)}).")]
+        if order:
             out.append(f"The {order} state(s) left in the difference carry only a difference "
                        "below the tolerance.")
         if markov_error > tol:
@@ -739,26 +783,26 @@ def _verdict_reasons(verdict, basis, check, reference, tol, attainable, relative
                        "coordinates or fast modes, and deserves a look.")
         return out
     if basis == "attainable accuracy":
-        out = [f"Equivalent to the attainable accuracy {short_number(attainable)}: the relative "
+        out = [(f"Equivalent to the attainable accuracy {short_number(attainable)}: the relative "
                f"peak error {short_number(relative_error)} exceeds the tolerance "
                f"{short_number(tol)}, but at every frequency the difference is within what "
                "floating point can resolve for these two models (first-order rounding bound "
-               f"of evaluating and storing them; largest needed at {at})."]
-        if order > 0:
+               f"of evaluating and storing them; largest needed at {at}).")]
+        if order:
             out.append(f"The {order} state(s) left in the difference carry only a difference "
                        "below the attainable accuracy.")
         return out
     if basis == "resolved":
         ratio = (short_number(check.difference / check.attainable) if check.attainable > 0
                  else "infinitely many")
-        return [f"Not equivalent: at {at} the difference {short_number(measured)} (relative) "
+        return [(f"Not equivalent: at {at} the difference {short_number(measured)} (relative) "
                 f"exceeds the tolerance {short_number(tol)} and is "
                 f"{ratio}"
                 f" times the attainable accuracy {short_number(attainable)} there (the margin "
-                f"is {RESOLUTION_MARGIN:g}): rounding cannot explain it."]
-    return [f"Undecided: at {at} the difference {short_number(measured)} (relative) exceeds "
+                f"is {RESOLUTION_MARGIN:g}): rounding cannot explain it.")]
+    return [(f"Undecided: at {at} the difference {short_number(measured)} (relative) exceeds "
             f"the tolerance {short_number(tol)} and the attainable accuracy "
             f"{short_number(attainable)} there, but by less than the margin "
             f"{RESOLUTION_MARGIN:g} that would tell it from rounding; neither equivalence nor "
             "a difference is proven. Compare with exact=True, or in better-conditioned "
-            "coordinates (a balanced or modal realization)."]
+            "coordinates (a balanced or modal realization).")]

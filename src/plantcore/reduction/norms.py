@@ -62,6 +62,9 @@ _MAX_POLE_FREQUENCIES = 64
 _GRID_POINTS = 16
 #: Sampled local maxima refined before the first level-set test.
 _REFINED_PEAKS = 3
+#: Relative gain differences up to this are rounding: a frequency is replaced by another
+#: only for a larger gain than that (8 eps).
+_FLAT = 8 * np.finfo(float).eps
 
 
 @dataclass(frozen=True)
@@ -208,6 +211,8 @@ class _FrequencyResponse:
             self.C = C @ Z
             self._index = np.diag_indices(self.n)
             self.schur_residual = _schur_residual(A, T, Z)
+            self.Z = Z
+            self.data = (A, B, C)
         else:
             self.poles = np.zeros(0, dtype=complex)
             self.schur_residual = 0.0
@@ -270,8 +275,23 @@ class _FrequencyResponse:
         and ``sigma_max`` moves by no more than the spectral norm of the change.  ``inf``
         at a pole and 0 for a static gain.
         """
+        evaluated = self.response_with_rounding(w)
+        return math.inf if evaluated is None else evaluated[1]
+
+    def response_with_rounding(self, w: float, *, data: bool = False):
+        """``(G, bound)`` at ``w``: the response and the bound of :meth:`rounding_bound`;
+        None at a pole.
+
+        With ``data=True`` the bound also covers a relative rounding ``u`` of every stored
+        entry of ``A, B, C, D`` (the first-order change ``Y dA X + dC X + Y dB + dD`` in the
+        original coordinates, the componentwise condition of the response), as when the
+        model was itself computed in floating point from another one.
+        """
         if self.n == 0 or math.isinf(w):
-            return _UNIT_ROUNDOFF * float(np.linalg.norm(np.abs(self.D), 2)) if self.D.size else 0.0
+            G = self.D.astype(complex)
+            return G, (_UNIT_ROUNDOFF * float(np.linalg.norm(np.abs(self.D), 2))
+                       if self.D.size else 0.0)
+        self.evaluations += 1
         point = self._point(w)
         X = self._solve(point, self.B)
         T = self.T
@@ -285,17 +305,26 @@ class _FrequencyResponse:
         finally:
             T[self._index] = self.diagonal
         if X is None or W is None or not np.all(np.isfinite(W)):
-            return math.inf
+            return None
         Y = -W.T
+        G = self.C @ X + self.D
         g_n = _probabilistic_gamma(self.n)
         absX = np.abs(X)
-        solve = np.abs(Y) @ (shifted @ absX)
-        product = np.abs(self.C) @ absX + np.abs(self.D)
         with np.errstate(all="ignore"):
+            solve = np.abs(Y) @ (shifted @ absX)
+            product = np.abs(self.C) @ absX + np.abs(self.D)
             bound = (float(np.linalg.norm(Y, 2)) * self.schur_residual * float(np.linalg.norm(X, 2))
                      + g_n * float(np.linalg.norm(solve, 2))
                      + 1.01 * g_n * float(np.linalg.norm(product, 2)))
-        return bound if math.isfinite(bound) else math.inf
+            if data:
+                A0, B0, C0 = self.data
+                Xo, Yo = np.abs(self.Z @ X), np.abs(Y @ self.Z.conj().T)
+                change = (Yo @ (np.abs(A0) @ Xo) + np.abs(C0) @ Xo + Yo @ np.abs(B0)
+                          + np.abs(self.D))
+                bound += _UNIT_ROUNDOFF * float(np.linalg.norm(change, 2))
+        if not (np.all(np.isfinite(G)) and math.isfinite(bound)):
+            return None
+        return G, bound
 
     def gain_and_slope(self, w: float):
         """``sigma_max(G)`` at ``w`` and its derivative with respect to ``w``.
@@ -337,6 +366,31 @@ def _probabilistic_gamma(n: int) -> float:
     return 4.0 * ROUNDING_LAMBDA * math.sqrt(max(n, 1)) * _UNIT_ROUNDOFF
 
 
+_SHARED: dict = {}
+_SHARED_SIZE = 4
+
+
+def shared_response(A, B, C, D, discrete: bool) -> _FrequencyResponse:
+    """The :class:`_FrequencyResponse` of ``(A, B, C, D)``, computed once for a few recent
+    models (keyed by a digest of the arrays), so that the peak gain of a model and the
+    certificate that compares it with another share one Schur form."""
+    import hashlib
+
+    digest = hashlib.blake2b(digest_size=16)
+    for M in (A, B, C, D):
+        M = np.ascontiguousarray(M, dtype=float)
+        digest.update(repr(M.shape).encode())
+        digest.update(M.tobytes())
+    key = (digest.hexdigest(), bool(discrete))
+    response = _SHARED.get(key)
+    if response is None:
+        response = _FrequencyResponse(A, B, C, D, discrete)
+        while len(_SHARED) >= _SHARED_SIZE:
+            _SHARED.pop(next(iter(_SHARED)))
+        _SHARED[key] = response
+    return response
+
+
 def _schur_residual(A, T, Z, probes: int = 4) -> float:
     """Twice an estimate of ``||A Z - Z T||_F`` from ``probes`` random vectors.
 
@@ -355,7 +409,7 @@ def _schur_residual(A, T, Z, probes: int = 4) -> float:
 
 
 def _local_maximum(response: _FrequencyResponse, lo: float, w0: float, hi: float,
-                   g0: float):
+                   g0: float, flat: float = 0.0):
     """Refine a sampled maximum ``g0`` at ``w0`` inside ``[lo, hi]``; returns (gain, w).
 
     A safeguarded secant iteration (regula falsi, Illinois variant) on the derivative of
@@ -364,20 +418,40 @@ def _local_maximum(response: _FrequencyResponse, lo: float, w0: float, hi: float
     Minimization without Derivatives*, 1973); finished by two secant steps on the
     derivative, so that the frequency of a simple peak is found to about ``1e-10``
     relative rather than the ``sqrt(eps)`` that gain values alone allow.  The result is
-    never below ``g0``.
+    never below ``g0``.  A gain counts as larger only by more than ``flat`` (absolute, the
+    rounding of the evaluation) or ``8 eps`` relative, so that a flat maximum keeps its
+    frequency instead of wandering with the rounding noise.
     """
     best_g, best_w = g0, w0
+    flat = max(flat, _FLAT * abs(g0))
     if not (math.isfinite(lo) and math.isfinite(hi) and hi > lo):
         return best_g, best_w
 
+    gains = {}
+
     def consider(w, g):
+        # a move is taken only for a gain larger by more than rounding, so that a flat
+        # maximum (at w = 0, say) keeps its frequency instead of wandering by noise
         nonlocal best_g, best_w
-        if math.isfinite(g) and g > best_g:
+        gains[w] = g
+        if math.isfinite(g) and g > best_g + flat:
             best_g, best_w = g, w
+
+    def settle(w):
+        # the stationary point found from the derivative is the frequency, when its gain
+        # is the best up to rounding
+        nonlocal best_g, best_w
+        g = gains.get(w, -math.inf)
+        flatter = abs(slopes.get(w, math.inf)) < abs(slopes.get(best_w, math.inf))
+        if math.isfinite(g) and g >= best_g - flat and flatter:
+            best_g, best_w = max(best_g, g), w
+
+    slopes = {}
 
     def slope_at(w):
         g, d = response.gain_and_slope(w)
         consider(w, g)
+        slopes[w] = abs(d) if math.isfinite(d) else math.inf
         return d
 
     a, b = lo, hi
@@ -404,6 +478,7 @@ def _local_maximum(response: _FrequencyResponse, lo: float, w0: float, hi: float
                 side = -1
             if b - a <= 1e-13 * max(scale, 1e-300):
                 break
+        settle(c)
         return best_g, best_w
     result = scipy.optimize.minimize_scalar(
         lambda w: -response.sigma_max([w])[0], bounds=(lo, hi), method="bounded",
@@ -423,6 +498,7 @@ def _local_maximum(response: _FrequencyResponse, lo: float, w0: float, hi: float
             break
         d3 = slope_at(w3)
         w1, d1, h = w3, d3, max(abs(w3 - w1), 1e-15 * max(abs(w3), 1e-300))
+        settle(w3)
     return best_g, best_w
 
 
@@ -564,13 +640,17 @@ def _refine_samples(response, freqs, vals, count: int, discrete: bool):
     """Refine the ``count`` best sampled local maxima; returns the best (gain, frequency)."""
     k = int(np.argmax(vals))
     best_g, best_w = float(vals[k]), float(freqs[k])
+    flat = response.rounding_bound(best_w) if math.isfinite(best_w) else 0.0
+    flat = max(flat if math.isfinite(flat) else 0.0, _FLAT * best_g)
     for i in _local_maxima(freqs, vals, count):
+        if vals[i] < best_g * (1.0 - 1e-3) and i != k:
+            continue         # a lower local maximum: refining it cannot win
         lo = float(freqs[i - 1]) if i > 0 else float(freqs[i])
         hi = float(freqs[i + 1]) if i + 1 < freqs.size else float(freqs[i])
         if math.isinf(hi):
             hi = 10.0 * float(freqs[i]) if freqs[i] > 0 else 1.0
-        g, w = _local_maximum(response, lo, float(freqs[i]), hi, float(vals[i]))
-        if g > best_g:
+        g, w = _local_maximum(response, lo, float(freqs[i]), hi, float(vals[i]), flat)
+        if g > best_g + flat or (i == k and g >= best_g):
             best_g, best_w = g, w
     if discrete:
         best_w = min(max(best_w, 0.0), math.pi)
@@ -581,11 +661,12 @@ def _iterate(A, B, C, D, discrete: bool, rel_tol: float, response=None):
     """The level-set iteration; returns (value, frequency, upper, iterations, message,
     evaluations, rounding bound at the peak)."""
     response = response or _FrequencyResponse(A, B, C, D, discrete)
+    start = response.evaluations      # the response may be shared with earlier calls
     freqs = _initial_frequencies(response.poles, discrete)
     vals = response.sigma_max(freqs)
     k = int(np.argmax(vals))
     if math.isinf(vals[k]):
-        return (float(vals[k]), float(freqs[k]), math.inf, 0, "unbounded", response.evaluations,
+        return (float(vals[k]), float(freqs[k]), math.inf, 0, "unbounded", response.evaluations - start,
                 math.inf)
     if vals[k] == 0.0:
         # Zero at 0, infinity and the pole frequencies; try a grid of 2n + 2 distinct
@@ -598,7 +679,7 @@ def _iterate(A, B, C, D, discrete: bool, rel_tol: float, response=None):
         k = int(np.argmax(vals))
         if vals[k] == 0.0:
             return (0.0, 0.0, 0.0, 0, "The transfer matrix is zero at every frequency tested.",
-                    response.evaluations, 0.0)
+                    response.evaluations - start, 0.0)
         freqs = grid
     g_low, w_low = _refine_samples(response, freqs, vals, _REFINED_PEAKS, discrete)
     test = _CrossingTest(A, B, C, D, discrete, response.poles)
@@ -612,7 +693,7 @@ def _iterate(A, B, C, D, discrete: bool, rel_tol: float, response=None):
         if cand.size == 0:
             return (g_low, w_low, gamma, it,
                     "Converged: no frequency has a gain above the upper bound.",
-                    response.evaluations, rounding)
+                    response.evaluations - start, rounding)
         edges = np.concatenate([[0.0], cand, [math.pi if discrete else math.inf]])
         mids = 0.5 * (edges[:-1] + edges[1:])
         if not discrete:
@@ -623,9 +704,9 @@ def _iterate(A, B, C, D, discrete: bool, rel_tol: float, response=None):
         if not vals[k] > gamma:
             return (g_low, w_low, gamma, it,
                     ("Converged: no gain above the upper bound was found at the candidate "
-                     "crossing frequencies."), response.evaluations, rounding)
+                     "crossing frequencies."), response.evaluations - start, rounding)
         g, w = _refine_samples(response, pts, vals, 1, discrete)
-        if g > g_low:
+        if g > g_low + rounding:
             g_low, w_low = g, w
     warnings.warn(
         f"the peak-gain iteration did not verify an upper bound within {_MAX_ITERATIONS} "
@@ -633,7 +714,7 @@ def _iterate(A, B, C, D, discrete: bool, rel_tol: float, response=None):
         AccuracyWarning, stacklevel=3)
     return (g_low, w_low, math.nan, _MAX_ITERATIONS,
             "Stopped at the iteration limit without verifying an upper bound.",
-            response.evaluations, math.nan)
+            response.evaluations - start, math.nan)
 
 
 # --- public functions -------------------------------------------------------------------------
@@ -786,7 +867,7 @@ def _peak_gain(model: StateSpaceModel, rel_tol: float, pole_scale: float) -> Pea
         return PeakGain(0.0, 0.0, 0.0, 0.0, 0, False, discrete,
                         "The model has no inputs or no outputs; its gain is zero.")
     A, B, C, D = _equilibrated(model)
-    response = _FrequencyResponse(A, B, C, D, discrete)
+    response = shared_response(A, B, C, D, discrete)
     on_boundary = _boundary_poles(A, discrete, pole_scale, response.poles)
     if on_boundary.size:
         from plantcore.structure.minimal import minimal_realization
