@@ -49,3 +49,14 @@ def test_audit_exit_code_is_the_verdict(tmp_path, capsys):
                  "--force"]) == 1
     assert "SPURIOUS OBSERVABILITY" in capsys.readouterr().out
     assert report.stat().st_size > 0        # the report is still written
+
+
+def test_inspect_progress_on_request_only(tmp_path, capsys):
+    path = tmp_path / "m.toml"
+    path.write_text("A = [[-1.0]]\nB = [[1.0]]\nC = [[1.0]]\n", encoding="utf-8")
+    assert main(["inspect", str(path)]) == 0
+    assert capsys.readouterr().err == ""                      # not a terminal: quiet
+    assert main(["inspect", str(path), "--progress"]) == 0
+    err = capsys.readouterr().err
+    assert "inspect: 1/2 (50%) analysing 1 state (decomposition" in err
+    assert err.rstrip().endswith("inspect: 2/2 (100%) done")

@@ -129,7 +129,15 @@ def _cmd_inspect(args) -> int:
         from plantcore.commands.sparse_models import inspect_sparse
 
         return inspect_sparse(args, model)
-    analysis = analyze(model, tol=args.tol)
+    from plantcore.core.progress import Progress
+    from plantcore.core.wording import counted
+
+    # coarse stages: analyze() itself reports nothing finer (on stderr, terminal only unless
+    # --progress)
+    with Progress("inspect", 2, enabled=True if args.progress else None) as bar:
+        bar.step(f"analysing {counted(model.n, 'state')} (decomposition, modes, distances)")
+        analysis = analyze(model, tol=args.tol)
+        bar.step("formatting")
     if args.format == "json":
         print(json.dumps(analysis.to_dict(), indent=2, allow_nan=False))
     elif args.format == "markdown":
@@ -340,6 +348,9 @@ def _build_parser() -> argparse.ArgumentParser:
     p.add_argument("--format", choices=("text", "markdown", "json"), default="text",
                    help="how to print the analysis (default text; json keeps every value "
                         "unrounded, text and markdown show values at rounding level as 0)")
+    p.add_argument("--progress", action="store_true",
+                   help="show progress on standard error even when it is not a terminal "
+                        "(default: only on a terminal)")
 
     p = sub.add_parser("reduce", help="write a minimal (or balanced-truncated) model",
                        description="Write a minimal (or balanced-truncated) model and print "
