@@ -110,3 +110,20 @@ def test_default_folder_name():
 
     when = datetime.datetime(2031, 2, 3, 4, 5, 6)
     assert default_demo_folder("base", when).as_posix() == "base/plantcore-demo-20310203-040506"
+
+
+def test_demo_suggests_the_heater_that_separates_zones_2_and_3(demo_run):
+    # By construction of the example, zones 2 and 3 are identical and share heater23: the
+    # difference of their temperatures (two modes) is uncontrollable, and a heater of either
+    # zone on its own command restores it; the symmetric booster restores nothing.
+    code, folder, out, err = demo_run
+    text = (folder / "placement.txt").read_text()
+    cells = [re.split(r"\s{2,}", line.strip()) for line in text.splitlines()
+             if re.match(r"  \d+ ", line)]
+    restores = {row[1]: row[2] for row in cells}
+    assert restores["zone 2 heater on its own command"] == "2"
+    assert restores["zone 3 heater on its own command"] == "2"
+    assert restores["booster for zones 2 and 3 on the shared command"] == "0"
+    # the difference of the two identical sensor filters stays out of reach of heaters
+    assert "out of reach of every candidate: -3" in text
+    assert "placement   3 modes the inputs cannot move" in out

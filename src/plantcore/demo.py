@@ -9,7 +9,11 @@
    (:data:`plantcore.reports.html.DEFAULT_RELATIVE_ERROR`);
 3. **compare**: certify that the minimal model has the same transfer function as the
    original, and measure the error of the truncated model against its bound;
-4. **report**: write the self-contained HTML report.
+4. **report**: write the self-contained HTML report;
+5. **suggest**: rank candidate actuators for the modes the heaters cannot move (in the
+   curing oven, zones 2 and 3 share one heater command, so the difference of their
+   temperatures is uncontrollable) and recommend the set that separates them
+   (:func:`plantcore.suggest_actuators`).
 
 Everything is computed before anything is written; the files then go into a folder that did
 not exist (or was empty) through :func:`plantcore.files.atomic_write`, so an existing folder's
@@ -26,7 +30,7 @@ import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
-__all__ = ["DemoResult", "DEMO_FILES", "default_demo_folder", "run_demo"]
+__all__ = ["DEMO_FILES", "SCENARIO_CANDIDATES", "DemoResult", "default_demo_folder", "run_demo"]
 
 #: The files the demo writes, with what each holds.
 DEMO_FILES = {
@@ -38,7 +42,35 @@ DEMO_FILES = {
     "certificate.txt": "the equivalence certificate: original against minimal",
     "certificate.json": "the same certificate, machine-readable",
     "reduced_model_check.txt": "original against the reduced model: measured error",
+    "placement.txt": "where to add an actuator: the candidates ranked, the recommended set",
 }
+
+#: Candidate actuators of our own scenario for a packaged example (state name -> gain, in the
+#: units of B); other examples try one unit input at each state.
+SCENARIO_CANDIDATES = {
+    "thermal_process": {
+        "zone 2 heater on its own command": {"zone2_air_temp_degC": 0.05},
+        "zone 3 heater on its own command": {"zone3_air_temp_degC": 0.05},
+        "booster for zones 2 and 3 on the shared command": {"zone2_air_temp_degC": 0.05,
+                                                            "zone3_air_temp_degC": 0.05},
+        "zone 1 trim heater": {"zone1_air_temp_degC": 0.05},
+    },
+}
+
+
+def _scenario_candidates(example: str, model):
+    """The example's candidate columns (name -> list of n gains), or None for the default."""
+    table = SCENARIO_CANDIDATES.get(example)
+    if table is None:
+        return None
+    position = {name: i for i, name in enumerate(model.states)}
+    out = {}
+    for name, gains in table.items():
+        column = [0.0] * model.n
+        for state, gain in gains.items():
+            column[position[state]] = gain
+        out[name] = column
+    return out
 
 
 @dataclass(frozen=True)
@@ -112,7 +144,27 @@ def _make_folder(folder) -> tuple[Path, bool]:
     raise ValueError(f"{base}: could not find a new folder name; give one with -o.")  # pragma: no cover
 
 
-def _summary(c, example: str, folder: Path, written: dict) -> str:
+def _placement_line(s) -> str:
+    """One line on the actuator suggestion."""
+    from plantcore.core.wording import short_number, shown_value
+
+    if not s.deficient_modes and not s.narrow_modes:
+        return "every mode can be moved by the inputs; no actuator to add"
+    best = s.ranking[0] if s.ranking else None
+    text = f"{len(s.deficient_modes)} modes the inputs cannot move"
+    if best is not None and best.restored:
+        text += (f"; '{best.name}' restores {best.restored} (margin "
+                 f"{short_number(shown_value(best.restored_margin))})")
+    if s.recommended and s.reaches_goal:
+        text += f"; recommended: {', '.join(s.recommended)}"
+    elif s.unreachable_modes:
+        k = len(s.unreachable_modes)
+        text += (f"; {k} {'mode stays' if k == 1 else 'modes stay'} out of reach of these "
+                 "candidates (see placement.txt)")
+    return text
+
+
+def _summary(c, example: str, folder: Path, written: dict, placement=None) -> str:
     from plantcore.reports.html import PART_LABELS
 
     a = c.analysis
@@ -121,15 +173,15 @@ def _summary(c, example: str, folder: Path, written: dict) -> str:
     margins = [d.margin for d in a.decisions]
     smallest = min(margins) if margins else float("inf")
     lines = [f"plantcore demo: {m.name or example}",
-             f"  model       {m.n} states, {m.n_inputs} inputs, {m.n_outputs} outputs, {domain} "
-             f"(packaged example '{example}')",
+             (f"  model       {m.n} states, {m.n_inputs} inputs, {m.n_outputs} outputs, {domain} "
+              f"(packaged example '{example}')"),
              "  parts       " + "; ".join(f"{s} {PART_LABELS[p]}" for p, s in
                                           zip(PART_LABELS, a.sizes)),
              f"  decisions   {len(a.decisions)} rank decisions, smallest margin {smallest:.3g} "
              + ("(FRAGILE: the answer depends on the tolerance)" if a.fragile else "(clear)"),
-             f"  verdicts    stabilizable: {'yes' if a.stabilizable else 'no'}, "
-             f"detectable: {'yes' if a.detectable else 'no'}, "
-             f"near cancellations: {len(a.narrow_modes)}"]
+             (f"  verdicts    stabilizable: {'yes' if a.stabilizable else 'no'}, "
+              f"detectable: {'yes' if a.detectable else 'no'}, "
+              f"near cancellations: {len(a.narrow_modes)}")]
     mr = a.minimal
     cert = c.certificate
     verdict = ("not checked" if cert is None else
@@ -147,6 +199,8 @@ def _summary(c, example: str, folder: Path, written: dict) -> str:
                      f"{'n/a' if measured is None else f'{measured:.3g}'}{gain}")
     else:
         lines.append(f"  reduced     none: {c.reduction_problem}")
+    if placement is not None:
+        lines.append("  placement   " + _placement_line(placement))
     lines.append(f"  written to  {folder}{os.sep}")
     width = max(len(k) for k in written)
     for name in written:
@@ -191,19 +245,22 @@ def run_demo(folder=None, *, example: str = "thermal_process", tol=None, echo=pr
     >>> result.contents.certificate.equivalent
     True
     """
-    from plantcore.examples import example_path
     from plantcore.analysis import collect_report
-    from plantcore.reports.html import render_html
+    from plantcore.examples import example_path
     from plantcore.files import atomic_write_text, load_model, save_model
+    from plantcore.reports.html import render_html
+    from plantcore.structure.placement import suggest_actuators
 
     source = example_path(example)            # ValueError for an unknown example
     model = load_model(source)
     _check_folder(folder)                     # refuse a non-empty folder before any work
     contents = collect_report(model, tol=tol, source=os.path.basename(source), progress=progress)
+    placement = suggest_actuators(model, _scenario_candidates(example, model), tol=tol)
     html_text = render_html(contents, progress=progress)
     inspection = contents.analysis.to_text()
     cert = contents.certificate
-    texts = {"report.html": html_text, "inspection.txt": inspection + "\n"}
+    texts = {"report.html": html_text, "inspection.txt": inspection + "\n",
+             "placement.txt": placement.to_text()}
     if cert is not None:
         texts["certificate.txt"] = cert.to_text() + "\n"
         texts["certificate.json"] = json.dumps(cert.to_dict(), indent=2, allow_nan=False) + "\n"
@@ -233,7 +290,7 @@ def run_demo(folder=None, *, example: str = "thermal_process", tol=None, echo=pr
             except OSError:
                 pass
         raise
-    summary = _summary(contents, example, path, written)
+    summary = _summary(contents, example, path, written, placement)
     if echo is not None:
         echo(summary)
     return DemoResult(path, written, contents, summary)

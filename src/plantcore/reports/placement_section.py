@@ -69,7 +69,11 @@ def _summary_lines(s) -> list:
     else:
         lines.append("recommended: no candidate helps")
     if not s.achievable:
-        lines.append("achievable: NO, no set of these candidates reaches the goal")
+        out_of_reach = ("; out of reach of every candidate: "
+                        + ", ".join(_value(z) for z in s.unreachable_modes[:8])
+                        if s.unreachable_modes else "")
+        lines.append("achievable: NO, no set of these candidates reaches the goal"
+                     + out_of_reach)
     proven = s.smallest_proven and s.recommended and "exhaustive" not in s.search
     lines.append(f"search: {s.search}" + ("; no smaller set exists" if proven else ""))
     st = s.structural

@@ -204,6 +204,9 @@ class PlacementSuggestion:
         100 of the tolerance.
     notes : tuple of str
         Plain sentences: limits of the search, how margins were measured, disagreements.
+    model_name : str or None
+    unreachable_modes : tuple of complex
+        Goal modes that stay uncontrollable (unobservable) even with every candidate added.
     """
 
     kind: str
@@ -226,6 +229,7 @@ class PlacementSuggestion:
     fragile: bool = False
     notes: tuple = ()
     model_name: str | None = None
+    unreachable_modes: tuple = ()
 
     def to_dict(self) -> dict:
         """JSON-safe dictionary."""
@@ -240,7 +244,9 @@ class PlacementSuggestion:
                 "minimal_order": self.minimal_order,
                 "minimal_order_with_recommended": self.minimal_order_with_recommended,
                 "structural": self.structural.to_dict(), "fragile": self.fragile,
-                "notes": list(self.notes), "model_name": self.model_name}
+                "notes": list(self.notes), "model_name": self.model_name,
+                "unreachable_modes": [[float(z.real), float(z.imag)]
+                                      for z in self.unreachable_modes]}
 
     def to_text(self) -> str:
         """Plain-text table (rendered by :mod:`plantcore.reports.placement_section`)."""
@@ -666,7 +672,9 @@ def _suggest(model, candidates, kind, *, target_margin, max_count, goal, tol) ->
         deficient_modes=tuple(problem.modes[i].value for i in problem.deficient),
         narrow_modes=narrow, minimal_order=int(problem.kd.sizes[0]),
         minimal_order_with_recommended=int(order_with), structural=structural,
-        candidate_names=names, fragile=fragile, notes=tuple(notes), model_name=model.name)
+        candidate_names=names, fragile=fragile, notes=tuple(notes), model_name=model.name,
+        unreachable_modes=tuple(problem.modes[i].value for i in everything.remaining
+                                if i in problem.goal_modes))
 
 
 def suggest_actuators(model, candidates=None, *, target_margin=None, max_count=None, goal=None,
