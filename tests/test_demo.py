@@ -116,7 +116,7 @@ def test_demo_suggests_the_heater_that_separates_zones_2_and_3(demo_run):
     # By construction of the example, zones 2 and 3 are identical and share heater23: the
     # difference of their temperatures (two modes) is uncontrollable, and a heater of either
     # zone on its own command restores it; the symmetric booster restores nothing.
-    code, folder, out, err = demo_run
+    _, folder, out, _ = demo_run
     text = (folder / "placement.txt").read_text()
     cells = [re.split(r"\s{2,}", line.strip()) for line in text.splitlines()
              if re.match(r"  \d+ ", line)]
