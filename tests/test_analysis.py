@@ -9,16 +9,17 @@ External references:
 import json
 import math
 
+import catalog
 import control
 import numpy as np
 import pytest
+import scipy.linalg
 from numpy.testing import assert_allclose
 
-import catalog
 import plantcore as pc
 from plantcore.cli import main
-from plantcore.structure.kalman import PART_NAMES
 from plantcore.core.wording import SAFETY_CAUTION
+from plantcore.structure.kalman import PART_NAMES
 
 
 def _walk(obj, path="root"):
@@ -295,3 +296,31 @@ def test_inspect_shows_the_hidden_mode_without_a_python_warning(tmp_path, capsys
     out = capsys.readouterr().out
     assert "WARNING: the minimal realization removed 1 mode" in out
     assert not [w for w in recwarn if issubclass(w.category, pc.HiddenModeWarning)]
+
+
+@pytest.mark.parametrize("unstable", [False, True])
+def test_analyze_takes_one_schur_form_of_the_model_for_its_sections(unstable, monkeypatch):
+    """The mode table, the boundary test, the distance starts and the Hankel values share one
+    real Schur form of the equilibrated A (issue 17): besides the one the rank certificate
+    may take, analyze computes no other Schur form of an n x n matrix, and its Hankel values
+    are those of the public call (which takes its own), to rounding (common practice)."""
+    rng = np.random.default_rng(17)
+    n = 24
+    A = rng.standard_normal((n, n)) / np.sqrt(n) - 1.5 * np.eye(n)
+    if unstable:
+        A[0, 0] += 4.0
+    model = pc.StateSpaceModel(A, rng.standard_normal((n, 2)), rng.standard_normal((2, n)))
+    expected = pc.hankel_singular_values(model)
+    calls = []
+    real_schur = scipy.linalg.schur
+
+    def counting(a, *args, **kwargs):
+        calls.append(np.shape(a))
+        return real_schur(a, *args, **kwargs)
+
+    monkeypatch.setattr(scipy.linalg, "schur", counting)
+    monkeypatch.setattr(pc.structure.kalman, "_RECENT_CERTIFICATES", type(
+        pc.structure.kalman._RECENT_CERTIFICATES)())
+    result = pc.analyze(model)
+    assert 1 <= sum(shape == (n, n) for shape in calls) <= 2
+    assert_allclose(result.hankel_singular_values, expected, rtol=1e-9, atol=1e-14 * expected[0])
