@@ -320,7 +320,7 @@ def test_mode_table_names_the_subsystem_of_each_margin_and_the_nearest_zero(rigi
 
 
 def test_a_long_mode_table_opens_with_a_summary_and_collapses_the_rest():
-    n = 60
+    n = 42                                   # just past FULL_MODE_TABLE_LIMIT (40)
     rng = np.random.default_rng(5)
     model = (np.diag(-np.geomspace(0.1, 100.0, n)), rng.standard_normal((n, 2)),
              rng.standard_normal((2, n)))
