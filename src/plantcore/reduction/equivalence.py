@@ -326,12 +326,16 @@ def _markov_parameters(model: StateSpaceModel, count: int, rho: float) -> list:
     return out
 
 
-def _markov_error(a: StateSpaceModel, b: StateSpaceModel):
-    """Largest relative difference of the first Markov parameters; returns (error, count)."""
-    count = 2 * max(a.n, b.n) + 1
+def _markov_error(a: StateSpaceModel, b: StateSpaceModel, poles=None):
+    """Largest relative difference of the first Markov parameters; returns (error, count).
+    ``poles``: the eigenvalues of both state matrices when already known."""
+    count = min(2 * max(a.n, b.n), 2 * MARKOV_LIMIT) + 1
     if a.n_inputs == 0 or a.n_outputs == 0:
         return 0.0, count
-    rho = max(_spectral_radius(a.A), _spectral_radius(b.A))
+    if poles is not None:
+        rho = float(np.max(np.abs(poles))) if poles.size else 0.0
+    else:
+        rho = max(_spectral_radius(a.A), _spectral_radius(b.A))
     if not rho > 0:
         norms = [np.linalg.norm(m.A) for m in (a, b) if m.n]
         rho = max(norms) if norms and max(norms) > 0 else 1.0
@@ -391,6 +395,12 @@ def _incomparable(a, b, tol, reasons) -> EquivalenceCertificate:
 
 # --- public function --------------------------------------------------------------------------
 
+#: At most ``2 * MARKOV_LIMIT + 1`` Markov parameters are compared: enough to determine the
+#: difference of two models of up to ``MARKOV_LIMIT`` states each; on larger models they are
+#: a check among others (they never decide the verdict), and ``2 n`` products with ``A``
+#: would cost more than the rest of the certificate.
+MARKOV_LIMIT = 64
+
 #: Above this many states in total, the difference ``a - b`` is not reduced to a minimal
 #: realization unless asked (``realize_difference=True``): on two models with shared
 #: eigenvalues that reduction is the most expensive step by far, and the verdict rests on
@@ -429,6 +439,10 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
     reference_peak_gain : PeakGain, optional
         ``peak_gain(a)`` when the caller has already computed it (a report compares one
         model with several others); it is used as given, not recomputed.
+    realize_difference : bool or None, optional
+        Reduce the difference ``a - b`` to a minimal realization to report its order:
+        None (default) does so up to ``REALIZE_LIMIT`` states in all, True always, False
+        never.  The verdict rests on the measured differences either way.
 
     Returns
     -------
@@ -474,19 +488,29 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
        difference.  A difference with a pole on the boundary (infinite peak error, found
        by the minimal realization below) is not equivalent.  With ``exact=True`` exact
        equality decides.
-    4. *Order of the difference.*  The minimal realization of the block difference
+    4. *Order and peak of the difference.*  Up to ``REALIZE_LIMIT`` (40) states in all, or
+       with ``realize_difference=True``, the minimal realization of the block difference
        (:func:`plantcore.minimal_realization`, orthogonal staircase forms, default rank
        tolerance, decisions recorded); it has order 0 when the transfer functions agree up
        to the feedthrough, and never more than ``n_a + n_b``.  On stiff or large models the
        staircase may keep states whose contribution is only rounding, so a nonzero order
-       alone does not mean the models differ.  Its peak gain (:func:`plantcore.peak_gain`,
-       the Hamiltonian level-set method) locates where the difference is largest, and the
-       difference is then measured there as in 1.  The relative error divides by the peak
+       alone does not mean the models differ; on two models that share their eigenvalues
+       it is also the costliest step, which is why larger differences are not reduced
+       (:attr:`~EquivalenceCertificate.difference_order` is then None, and
+       :attr:`~EquivalenceCertificate.difference_order_method` says so).  The peak of the
+       difference is located by the peak-gain level-set method on the minimal difference,
+       or, when it was not formed, on the difference in block form up to
+       ``BLOCK_PEAK_LIMIT`` (200) states; above that, by a local search (Brent's method)
+       around the largest measured difference: a local search, stated in the reasons.
+       The difference is then measured there as in 1.  Models above ``DENSE_LIMIT`` (150)
+       states are evaluated on a Schur form shared with their peak gain (``O(n^2 (m + p))``
+       per frequency), the attainable accuracy then including the measured residual of
+       that Schur form.  The relative error divides by the peak
        gain of ``a``; when that is infinite (``a`` has a pole on the boundary), by the gain
        of ``a`` at the frequency where the measured difference peaks.
     5. *Markov parameters* (impulse-response coefficients) ``D, CB, CAB, ...``: the first
        ``2 max(n_a, n_b) + 1`` of them, enough to determine the difference (its order is
-       at most ``n_a + n_b``).  To avoid overflow and underflow they are those of the
+       at most ``n_a + n_b``), and at most ``2 MARKOV_LIMIT + 1 = 129``.  To avoid overflow and underflow they are those of the
        frequency-scaled models ``G(rho v)``, ``rho`` the larger spectral radius of the two
        state matrices: ``C (A/rho)^k B / rho``, which have the units of ``G``.  The
        error is the largest difference relative to the largest scaled parameter of ``a``.
@@ -662,7 +686,7 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
         reasons.append("Model A has zero gain at every frequency while model B does not, so "
                        "the relative error is infinite.")
 
-    markov_error, markov_count = _markov_error(ma, mb)
+    markov_error, markov_count = _markov_error(ma, mb, poles)
     if markov_error <= tol:
         reasons.append(f"The first {markov_count} Markov parameters (impulse-response "
                        f"coefficients, D first) agree to {short_number(markov_error)} relative.")

@@ -224,6 +224,12 @@ class ResponseEvaluator:
                 break
         return lam[close]
 
+    def batch(self, freqs) -> list:
+        """``self(w)`` for every frequency, the Schur-form products batched."""
+        if self._schur is not None:
+            return self._schur.responses_with_rounding(freqs, data=True)
+        return [self(float(w)) for w in freqs]
+
     def __call__(self, w: float):
         D = self.model[3]
         if math.isinf(w):
@@ -241,7 +247,12 @@ def _check(first, second, w: float):
     """One :class:`FrequencyCheck` at ``w`` from two evaluators, or None."""
     ra = first(w)
     rb = second(w) if ra is not None else None
-    if rb is None:
+    return _paired(w, ra, rb)
+
+
+def _paired(w: float, ra, rb):
+    """The :class:`FrequencyCheck` from two evaluated ``(G, bound)`` pairs, or None."""
+    if ra is None or rb is None:
         return None
     (Ga, Ea), (Gb, Eb) = ra, rb
     with np.errstate(all="ignore"):
@@ -267,8 +278,17 @@ def compare_responses(first, second, frequencies, discrete: bool) -> tuple:
         first = ResponseEvaluator(first, discrete)
     if not isinstance(second, ResponseEvaluator):
         second = ResponseEvaluator(second, discrete)
-    checks = (_check(first, second, float(w)) for w in frequencies)
+    frequencies = [float(w) for w in frequencies]
+    checks = []
+    for start in range(0, len(frequencies), _BATCH):
+        chunk = frequencies[start:start + _BATCH]
+        pairs = zip(chunk, first.batch(chunk), second.batch(chunk))
+        checks.extend(_paired(w, ra, rb) for w, ra, rb in pairs)
     return tuple(c for c in checks if c is not None)
+
+
+#: Frequencies evaluated together (the batch of :meth:`ResponseEvaluator.batch`).
+_BATCH = 32
 
 
 def refine_largest_difference(first, second, checks, discrete: bool):

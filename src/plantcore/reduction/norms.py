@@ -213,6 +213,7 @@ class _FrequencyResponse:
             self.schur_residual = _schur_residual(A, T, Z)
             self.Z = Z
             self.data = (A, B, C)
+            self._abs = None          # |T| off the diagonal and |A|, |B|, |C|, made on demand
         else:
             self.poles = np.zeros(0, dtype=complex)
             self.schur_residual = 0.0
@@ -287,44 +288,81 @@ class _FrequencyResponse:
         original coordinates, the componentwise condition of the response), as when the
         model was itself computed in floating point from another one.
         """
-        if self.n == 0 or math.isinf(w):
-            G = self.D.astype(complex)
-            return G, (_UNIT_ROUNDOFF * float(np.linalg.norm(np.abs(self.D), 2))
-                       if self.D.size else 0.0)
-        self.evaluations += 1
-        point = self._point(w)
-        X = self._solve(point, self.B)
-        T = self.T
-        T[self._index] = self.diagonal - point
-        try:
-            with np.errstate(all="ignore"):
-                W = scipy.linalg.solve_triangular(T, self.C.T, trans="T", check_finite=False)
-                shifted = np.abs(np.triu(T))
-        except (np.linalg.LinAlgError, ValueError):
-            W = None
-        finally:
-            T[self._index] = self.diagonal
-        if X is None or W is None or not np.all(np.isfinite(W)):
-            return None
-        Y = -W.T
-        G = self.C @ X + self.D
-        g_n = _probabilistic_gamma(self.n)
+        return self.responses_with_rounding([w], data=data)[0]
+
+    def _abs_parts(self):
+        if self._abs is None:
+            A0, B0, C0 = self.data
+            self._abs = (np.abs(np.triu(self.T, 1)), np.abs(A0), np.abs(B0), np.abs(C0),
+                         np.abs(self.C), np.abs(self.D), np.ascontiguousarray(self.Z.conj().T))
+        return self._abs
+
+    def responses_with_rounding(self, freqs, *, data: bool = False) -> list:
+        """:meth:`response_with_rounding` at many frequencies: the triangular solves one by
+        one, the products with the ``n x n`` matrices (``|T|``, ``Z``, ``|A|``) batched over
+        the frequencies, so that each of those matrices is read once per batch."""
+        freqs = [float(w) for w in freqs]
+        out = [None] * len(freqs)
+        static = (self.D.astype(complex),
+                  _UNIT_ROUNDOFF * float(np.linalg.norm(np.abs(self.D), 2)) if self.D.size else 0.0)
+        points, Xs, Ys, where = [], [], [], []
+        for i, w in enumerate(freqs):
+            if self.n == 0 or math.isinf(w):
+                out[i] = static
+                continue
+            self.evaluations += 1
+            point = self._point(w)
+            X = self._solve(point, self.B)
+            if X is None:
+                continue
+            T = self.T
+            T[self._index] = self.diagonal - point
+            try:
+                with np.errstate(all="ignore"):
+                    W = scipy.linalg.solve_triangular(T, self.C.T, trans="T", check_finite=False)
+            except (np.linalg.LinAlgError, ValueError):
+                W = None
+            finally:
+                T[self._index] = self.diagonal
+            if W is None or not np.all(np.isfinite(W)):
+                continue
+            points.append(point)
+            Xs.append(X)
+            Ys.append(-W.T)
+            where.append(i)
+        if not where:
+            return out
+        T_off, absA, absB, absC, absCZ, absD, Zh = self._abs_parts()
+        n, m = self.B.shape
+        p = self.C.shape[0]
+        k = len(where)
+        X = np.stack(Xs)                                  # (k, n, m)
+        Y = np.stack(Ys)                                  # (k, p, n)
         absX = np.abs(X)
+        g_n = _probabilistic_gamma(self.n)
         with np.errstate(all="ignore"):
-            solve = np.abs(Y) @ (shifted @ absX)
-            product = np.abs(self.C) @ absX + np.abs(self.D)
-            bound = (float(np.linalg.norm(Y, 2)) * self.schur_residual * float(np.linalg.norm(X, 2))
-                     + g_n * float(np.linalg.norm(solve, 2))
-                     + 1.01 * g_n * float(np.linalg.norm(product, 2)))
+            G = self.C[None] @ X + self.D[None]
+            flatX = absX.transpose(1, 0, 2).reshape(n, k * m)
+            shifted = (T_off @ flatX).reshape(n, k, m).transpose(1, 0, 2)
+            shifted += np.abs(self.diagonal[None, :] - np.asarray(points)[:, None])[:, :, None] * absX
+            solve = np.abs(Y) @ shifted                   # (k, p, m)
+            product = absCZ[None] @ absX + absD[None]
             if data:
-                A0, B0, C0 = self.data
-                Xo, Yo = np.abs(self.Z @ X), np.abs(Y @ self.Z.conj().T)
-                change = (Yo @ (np.abs(A0) @ Xo) + np.abs(C0) @ Xo + Yo @ np.abs(B0)
-                          + np.abs(self.D))
-                bound += _UNIT_ROUNDOFF * float(np.linalg.norm(change, 2))
-        if not (np.all(np.isfinite(G)) and math.isfinite(bound)):
-            return None
-        return G, bound
+                Xo = np.abs((self.Z @ X.transpose(1, 0, 2).reshape(n, k * m))
+                            .reshape(n, k, m).transpose(1, 0, 2))
+                Yo = np.abs((Y.reshape(k * p, n) @ Zh).reshape(k, p, n))
+                AX = (absA @ Xo.transpose(1, 0, 2).reshape(n, k * m)).reshape(n, k, m)
+                change = Yo @ AX.transpose(1, 0, 2) + absC[None] @ Xo + Yo @ absB[None] + absD[None]
+            for j, i in enumerate(where):
+                bound = (float(np.linalg.norm(Y[j], 2)) * self.schur_residual
+                         * float(np.linalg.norm(X[j], 2))
+                         + g_n * float(np.linalg.norm(solve[j], 2))
+                         + 1.01 * g_n * float(np.linalg.norm(product[j], 2)))
+                if data:
+                    bound += _UNIT_ROUNDOFF * float(np.linalg.norm(change[j], 2))
+                if np.all(np.isfinite(G[j])) and math.isfinite(bound):
+                    out[i] = (G[j], bound)
+        return out
 
     def gain_and_slope(self, w: float):
         """``sigma_max(G)`` at ``w`` and its derivative with respect to ``w``.
