@@ -176,16 +176,23 @@ class PBHMeasures:
 def _top_left_singular(d, e):
     """Largest singular value and left singular vector of the upper bidiagonal matrix with
     diagonal ``d`` and superdiagonal ``e``: the top eigenpair of the tridiagonal ``B B^T``
-    (LAPACK ``stebz`` and ``stein`` through scipy), ``O(k)`` instead of a dense SVD per
-    Lanczos step.  Squaring costs nothing in accuracy at the top of the spectrum."""
+    (LAPACK ``stebz`` and ``stein`` through scipy, or numpy's dense symmetric solver for
+    the first steps, whose call overhead is smaller), instead of a dense SVD per Lanczos
+    step.  Squaring costs nothing in accuracy at the top of the spectrum."""
     k = d.size
     if k == 1:
         return float(abs(d[0])), np.ones(1)
     diag = d * d
     diag[:-1] += e * e
+    if k <= _DENSE_TOP:
+        w, v = np.linalg.eigh(np.diag(diag) + np.diag(d[1:] * e, 1) + np.diag(d[1:] * e, -1))
+        return math.sqrt(max(float(w[-1]), 0.0)), v[:, -1]
     w, v = scipy.linalg.eigh_tridiagonal(diag, d[1:] * e, select="i",
                                          select_range=(k - 1, k - 1))
     return math.sqrt(max(float(w[0]), 0.0)), v[:, 0]
+
+
+_DENSE_TOP = 24     # up to this many steps a dense symmetric eigensolver has less overhead
 
 
 def _triangle_smallest(R, start=None, rtol: float = _RESIDUAL):
