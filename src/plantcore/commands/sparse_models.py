@@ -19,6 +19,11 @@ def register(subparsers) -> None:
     """Nothing to register: the handlers serve the existing commands."""
 
 
+def _progress(args):
+    """True with ``--progress`` (where the command has it), else: only on a terminal."""
+    return True if getattr(args, "progress", False) else None
+
+
 def _tolerance_note(args) -> None:
     if getattr(args, "tol", None) is not None:
         import sys
@@ -37,7 +42,7 @@ def inspect_sparse(args, model) -> int:
         sparse_summary_text,
     )
 
-    with Progress("inspect") as bar:
+    with Progress("inspect", enabled=_progress(args)) as bar:
         summary = summarize_sparse(model, progress=bar.step)
     if args.format == "json":
         print(json.dumps(sparse_summary_dict(summary), indent=2, allow_nan=False))
@@ -55,7 +60,7 @@ def reduce_sparse(args, model) -> int:
     from plantcore.reports.sparse_report import sparse_reduction_lines
 
     # the output was checked by the command before the model was read
-    with Progress("reduce") as bar:
+    with Progress("reduce", enabled=_progress(args)) as bar:
         reduction = low_rank_balanced_truncation(model, order=args.order,
                                                  max_error=args.max_error, progress=bar.step)
     for line in sparse_reduction_lines(reduction):
@@ -70,7 +75,7 @@ def report_sparse(args, model) -> int:
     from plantcore.large.summary import sparse_report_contents
     from plantcore.reports.sparse_report import write_sparse_html_report
 
-    with Progress("report") as bar:
+    with Progress("report", enabled=_progress(args)) as bar:
         contents = sparse_report_contents(model, order=args.order, max_error=args.max_error,
                                           progress=bar.step)
     write_sparse_html_report(contents, args.output, source=args.model, inputs=(args.model,),
