@@ -525,7 +525,13 @@ def distance_to_uncontrollability(model) -> DistanceEstimate:
        cost ``O(n^4)`` or more.
 
     A typical 20-state model costs about a dozen SVDs of ``n x (n + m)`` complex matrices
-    for both distances together.
+    for both distances together.  Above 300 states a dense SVD per point would cost more
+    than the whole eigendecomposition, so the searches measure instead on the Schur form
+    of ``A`` that the starts already used (``O(n^2 m)`` per point, the Lanczos iteration of
+    :mod:`plantcore.structure.pbh_measures` started from the previous point's vector), with
+    the exact gradient and a BFGS secant model of the Hessian (Nocedal and Wright 2006,
+    ch. 6) in place of the second-order perturbation formula, which needs every singular
+    vector; the value is still a singular value attained at ``at``, an upper bound.
 
     References
     ----------
