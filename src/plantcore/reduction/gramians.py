@@ -235,10 +235,13 @@ def gramian_factors(model) -> GramianFactors:
     Hammarling's method, in its complex Schur form variant: the factor is computed column by
     column from the triangular Schur form without ever forming ``P`` (so that ``P`` is
     positive semi-definite by construction and its small eigenvalues keep their relative
-    accuracy).  Hammarling works with the real Schur form and 2 x 2 blocks; this
-    implementation uses the complex Schur form and converts the complex factor ``F``
-    (``P = F F^H``) to a real triangular one by a QR factorization of ``[Re F, Im F]^T``.
-    Cost ``O(n^3 + n^2 m)``.
+    accuracy).  One real Schur form of ``A`` serves both Gramians.  When it is triangular
+    (real eigenvalues) the recursion runs on it in real arithmetic; otherwise on its
+    complex form (``O(n^2)`` rotations from the real one), and the complex factor ``F``
+    (``P = F F^H``) becomes a real triangular one by a QR factorization of
+    ``[Re F, Im F]^T``.  (Hammarling works with the real Schur form and 2 x 2 blocks.)
+    Cost: one Schur form, then ``O(n^3 / 3)`` per factor in triangular solves and
+    ``O(n^3)`` in the QR factorizations.
 
     References
     ----------
