@@ -29,7 +29,7 @@ from plantcore.structure.kalman import (
 )
 from plantcore.structure.minimal import MinimalRealization, _minimal_from_decomposition
 from plantcore.structure.modes import NARROW_MARGIN, _mode_table
-from plantcore.structure.pbh_measures import PBHMeasures
+from plantcore.structure.pbh_measures import PBHMeasures, threads_for_size
 from plantcore.structure.removed_modes import removed_from_modes, warn_hidden_modes
 
 __all__ = ["Analysis", "analyze"]
@@ -266,31 +266,33 @@ def analyze(model, tol=None) -> Analysis:
     """
     p = _prepare(model, tol)
     model = p.model
-    kd = kalman_decomposition(model, tol)
-    # One real Schur form of the equilibrated A serves the mode table, the boundary test,
-    # the distance starts and the Gramians (it is computed on first use).
-    whole = PBHMeasures(p.A)
-    modes = tuple(_mode_table(kd, p, NARROW_MARGIN, whole))
-    removed = removed_from_modes(modes)
-    mr = _minimal_from_decomposition(kd, p.s, removed)
-    stabilizable = all(m.stable or m.controllable for m in modes)
-    detectable = all(m.stable or m.observable for m in modes)
-    to_unc, to_unobs = _distances(p, modes, whole)
-    note = ""
-    try:
-        hsv = _hankel_values(_split(model, p, whole.schur), model.is_discrete) if model.n \
-            else np.zeros(0)
-        n_stable = hsv.size
-        if model.n and n_stable == 0:
-            note = "no mode is stable, so there are no Hankel singular values."
-        elif n_stable < model.n:
-            note = (f"{model.n - n_stable} unstable mode(s) have no Hankel singular value; the "
-                    "values are those of the stable part.")
-    except (ValueError, NumericalBreakdown) as exc:
-        # The Hankel stage may give up (e.g. modes on or near the stability boundary); the
-        # structural analysis does not depend on it and is still delivered.
-        hsv = None
-        note = f"Hankel singular values not available: {exc}"
+    # small models: many small BLAS calls, which a second thread only slows down
+    with threads_for_size(model.n):
+        kd = kalman_decomposition(model, tol)
+        # One real Schur form of the equilibrated A serves the mode table, the boundary test,
+        # the distance starts and the Gramians (it is computed on first use).
+        whole = PBHMeasures(p.A)
+        modes = tuple(_mode_table(kd, p, NARROW_MARGIN, whole))
+        removed = removed_from_modes(modes)
+        mr = _minimal_from_decomposition(kd, p.s, removed)
+        stabilizable = all(m.stable or m.controllable for m in modes)
+        detectable = all(m.stable or m.observable for m in modes)
+        to_unc, to_unobs = _distances(p, modes, whole)
+        note = ""
+        try:
+            hsv = _hankel_values(_split(model, p, whole.schur), model.is_discrete) if model.n \
+                else np.zeros(0)
+            n_stable = hsv.size
+            if model.n and n_stable == 0:
+                note = "no mode is stable, so there are no Hankel singular values."
+            elif n_stable < model.n:
+                note = (f"{model.n - n_stable} unstable mode(s) have no Hankel singular value; the "
+                        "values are those of the stable part.")
+        except (ValueError, NumericalBreakdown) as exc:
+            # The Hankel stage may give up (e.g. modes on or near the stability boundary); the
+            # structural analysis does not depend on it and is still delivered.
+            hsv = None
+            note = f"Hankel singular values not available: {exc}"
     warn_hidden_modes(removed, "the minimal realization", stacklevel=2)
     return Analysis(
         model=model,

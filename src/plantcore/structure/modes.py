@@ -48,7 +48,7 @@ import scipy.linalg
 
 from plantcore.structure.certificate import schur_eigenvalues
 from plantcore.structure.kalman import PART_NAMES, _complement, _prepare, kalman_decomposition
-from plantcore.structure.pbh_measures import PBHMeasures
+from plantcore.structure.pbh_measures import PBHMeasures, threads_for_size
 
 __all__ = ["BOUNDARY_TOLERANCE", "NARROW_MARGIN", "Mode", "classify_modes"]
 
@@ -441,10 +441,11 @@ def classify_modes(model, tol=None, *, narrow_margin: float = NARROW_MARGIN) -> 
     >>> [(m.value.real, m.stable, m.controllable, m.part) for m in modes]
     [(-1.0, True, True, 'controllable_observable'), (2.0, False, False, 'uncontrollable_observable')]
     """
-    kd = kalman_decomposition(model, tol)
-    p = _prepare(model, tol)
     _check_narrow(narrow_margin)
-    return _mode_table(kd, p, narrow_margin)
+    p = _prepare(model, tol)
+    with threads_for_size(p.model.n):
+        kd = kalman_decomposition(model, tol)
+        return _mode_table(kd, p, narrow_margin)
 
 
 def _check_narrow(narrow_margin) -> None:

@@ -44,6 +44,7 @@ memory-bound triangular solves and leaves the other core to the caller.
 
 from __future__ import annotations
 
+import contextlib
 import math
 
 import numpy as np
@@ -53,7 +54,8 @@ from threadpoolctl import ThreadpoolController
 
 from plantcore.structure.certificate import _Schur
 
-__all__ = ["MAX_STEPS", "PBHMeasures", "one_blas_thread", "schur_from_form"]
+__all__ = ["MAX_STEPS", "ONE_THREAD_SIZE", "PBHMeasures", "one_blas_thread", "schur_from_form",
+           "threads_for_size"]
 
 _EPS = np.finfo(float).eps
 
@@ -76,6 +78,19 @@ def one_blas_thread():
     if not _CONTROLLER:
         _CONTROLLER.append(ThreadpoolController())
     return _CONTROLLER[0].limit(limits=1)
+
+
+ONE_THREAD_SIZE = 200
+
+"""Up to this many states a whole mode table or analysis runs on one BLAS thread: its
+factorizations are too small for a second thread to pay for its start, and the loops of
+small operations around them only slow down with it (issue 17, item 6)."""
+
+
+def threads_for_size(n: int):
+    """:func:`one_blas_thread` for a model of at most :data:`ONE_THREAD_SIZE` states, else
+    a context that changes nothing (the large factorizations use every BLAS thread)."""
+    return one_blas_thread() if n <= ONE_THREAD_SIZE else contextlib.nullcontext()
 
 
 class _GivenSchur(_Schur):
