@@ -253,3 +253,16 @@ def test_result_is_frozen_and_json_safe():
         s.margin = 1.0
     text = json.dumps(s.to_dict(), allow_nan=False)
     assert '"recommended"' in text and s.structural.kind == "actuator"
+
+
+@pytest.mark.parametrize("seed", [2, 4])
+def test_sensor_recommendation_is_the_dual_of_the_actuator_one(seed):
+    # by duality (Kalman 1963): (A, B, C) with sensor rows c is the transpose of
+    # (A^T, C^T, B^T) with actuator columns c^T
+    rng = np.random.default_rng(seed)
+    A, B, C, cands = _random_case(rng)
+    act = pc.suggest_actuators((A, B, C), cands)
+    sen = pc.suggest_sensors((A.T, C.T, B.T), cands)
+    assert sorted(act.recommended) == sorted(sen.recommended)
+    assert act.achievable == sen.achievable
+    np.testing.assert_allclose(sen.margin, act.margin, rtol=1e-7)
