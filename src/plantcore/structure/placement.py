@@ -88,7 +88,7 @@ EXHAUSTIVE_SUBSETS = 4096
 """Most subsets tried by the exhaustive search for a set smaller than the greedy one (about
 0.1 ms each for the structure; the margins only for subsets that pass it)."""
 
-REPORT_STATES_LIMIT = 200
+REPORT_STATES_LIMIT = 60
 
 """A report suggests placements (one candidate at each state) only up to this many states;
 beyond it ``plantcore suggest`` with a candidate file is the tool (its cost grows with the
