@@ -13,7 +13,7 @@ This is the plug-in pattern of a registry keyed by result type and form (common 
 
 from __future__ import annotations
 
-from typing import Callable
+from collections.abc import Callable
 
 _RENDERERS: dict[tuple[type, str], Callable] = {}
 
