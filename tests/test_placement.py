@@ -266,3 +266,22 @@ def test_sensor_recommendation_is_the_dual_of_the_actuator_one(seed):
     assert sorted(act.recommended) == sorted(sen.recommended)
     assert act.achievable == sen.achievable
     np.testing.assert_allclose(sen.margin, act.margin, rtol=1e-7)
+
+
+def test_exhaustive_search_beats_the_greedy_choice():
+    # Six uncontrollable modes -1..-6 (distinct, decoupled): a candidate restores exactly the
+    # modes its column touches, so choosing a set is a set cover.  The classic greedy trap
+    # (common practice): "wide" touches modes 1, 2, 4, 5; "left" 1-3; "right" 4-6.  Greedy
+    # takes "wide" first and then needs both others (3 picks); "left" + "right" do it in 2.
+    n = 7
+    A = np.diag([-7.0, -1.0, -2.0, -3.0, -4.0, -5.0, -6.0])
+    B = np.eye(n)[:, [0]]
+    C = np.ones((1, n))
+    touch = {"wide": [1, 2, 4, 5], "left": [1, 2, 3], "right": [4, 5, 6]}
+    cands = {name: np.isin(np.arange(n), idx).astype(float) for name, idx in touch.items()}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", HiddenModeWarning)
+        s = pc.suggest_actuators((A, B, C), cands)
+    assert sorted(s.recommended) == ["left", "right"]
+    assert s.search.startswith("exhaustive") and s.smallest_proven and s.reaches_goal
+    assert s.ranking[0].name == "wide" and s.ranking[0].restored == 4
