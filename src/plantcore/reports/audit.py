@@ -33,10 +33,11 @@ def _verdict(audit) -> str:
     d = audit.n - audit.expected_rank
     if audit.spurious_dimension:
         return (f"SPURIOUS OBSERVABILITY: the linearized model sees {audit.spurious_dimension} of "
-                f"the {d} direction(s) the real system cannot see.")
+                f"the {counted(d, 'direction')} the real system cannot see.")
     if d == 0:
         return "No expected unobservable directions were given; only the rank is reported."
-    return (f"Consistent: none of the {d} expected unobservable direction(s) is seen beyond the "
+    return (f"Consistent: none of the {d} expected unobservable "
+            f"{'direction' if d == 1 else 'directions'} is seen beyond the "
             f"tolerance {audit.tolerance:.1e}.")
 
 
