@@ -51,13 +51,18 @@ def register(subparsers):
                    help="suggest sensors (observability) instead of actuators")
     p.add_argument("--target-margin", type=float, default=None, dest="target_margin",
                    metavar="X", help="ask every goal mode for a PBH margin of at least X "
-                                     "(relative to the model's scale, e.g. 1e-4)")
+                                     "(relative to the model's scale, e.g. 1e-4; default: "
+                                     "the structure alone)")
     p.add_argument("--goal", default=None,
                    choices=("controllable", "stabilizable", "observable", "detectable"),
                    help="default controllable (observable with --sensors); stabilizable "
                         "(detectable) asks only the modes that are not stable")
     p.add_argument("--max-count", type=int, default=None, dest="max_count", metavar="K",
-                   help="recommend at most K candidates")
-    p.add_argument("--tol", type=float, default=None, help="relative rank tolerance")
-    p.add_argument("--format", choices=("text", "markdown", "json"), default="text")
+                   help="recommend at most K candidates (default: as many as the goal needs)")
+    p.add_argument("--tol", type=float, default=None,
+                   help="relative rank tolerance (default 5e-11 of the model's scale, as for "
+                        "inspect)")
+    p.add_argument("--format", choices=("text", "markdown", "json"), default="text",
+                   help="how to print the suggestion (default text; json keeps every value "
+                        "unrounded, text and markdown show margins at rounding level as 0)")
     return _handler
