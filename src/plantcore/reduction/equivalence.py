@@ -2,9 +2,12 @@
 
 A reduced model is only useful when a reviewer can see that it behaves like the original.
 :func:`check_equivalence` compares two models through their transfer matrices, never their
-state coordinates: it forms the difference system ``a - b``, reduces it to a minimal
-realization (order 0 means the transfer functions agree), measures the peak gain of the
-difference against the peak gain of ``a``, compares the first Markov parameters (the
+state coordinates: it measures the difference of the two frequency responses (in block
+form, each model evaluated in its own coordinates) against the accuracy floating point can
+attain, locates the peak of the difference (by the peak-gain level-set method on the
+minimal or block-form difference for small models, by a local search for large ones),
+reduces the difference to a minimal realization only when it is small or when asked (order
+0 means the transfer functions agree), compares the first Markov parameters (the
 impulse-response coefficients) and the feedthrough matrices, and writes down in plain
 sentences what was compared and why the verdict is what it is.
 """
