@@ -499,3 +499,16 @@ def test_h2_static_and_empty():
     assert h2_norm(static_c.replace(D=np.zeros((1, 2)))) == 0.0
     static_d = pc.StateSpaceModel(np.zeros((0, 0)), np.zeros((0, 2)), np.zeros((1, 0)), D, dt=1.0)
     assert h2_norm(static_d) == pytest.approx(math.sqrt(5.0), rel=1e-15)
+
+
+@pytest.mark.parametrize("discrete", [False, True])
+@pytest.mark.parametrize("m, p", [(1, 3), (3, 1)])
+def test_h2_of_a_model_above_the_blocking_size_against_slycot(discrete, m, p):
+    # 150 states: the recursive blocked Lyapunov solver splits the Schur form several
+    # times (leaves of 64), both Gramian branches (controllability for m <= p,
+    # observability otherwise); slycot ab13bd is the reference.
+    rng = np.random.default_rng(150 + 10 * m + discrete)
+    model = random_stable(rng, 150, m, p, discrete=discrete)
+    ref = slycot.ab13bd("D" if discrete else "C", "H", model.n, m, p,
+                        model.A, model.B, model.C, model.D)          # slycot ab13bd
+    assert_allclose(h2_norm(model), ref, rtol=1e-9)

@@ -1025,6 +1025,65 @@ def h2_norm(model) -> float:
     return math.hypot(d_part, gramian.output_energy_root())
 
 
+#: Blocks of at most this order are solved by LAPACK's ``dtrsyl`` directly.
+_SYLVESTER_LEAF = 64
+
+
+def _split(T) -> int:
+    """A split point near the middle that does not cut a 2 x 2 diagonal block."""
+    k = T.shape[0] // 2
+    if T[k, k - 1] != 0.0:
+        k += 1
+    return k
+
+
+def _sylvester_quasi_triangular(T1, T2, C):
+    """``X`` with ``T1 X + X T2^T = C`` (``T1``, ``T2`` upper quasi-triangular); returns
+    (X, info), info nonzero when LAPACK perturbed a near-singular leaf.
+
+    The recursive blocked Bartels-Stewart method of Jonsson and Kagstrom (I. Jonsson and
+    B. Kagstrom, "Recursive blocked algorithms for solving triangular systems - Part I:
+    one-sided and coupled Sylvester-type matrix equations", ACM Trans. Mathematical
+    Software 28(4), 392-415, 2002): the larger matrix is split, one half solved, the
+    coupling moved to the right-hand side by a matrix product (level-3 BLAS), the other
+    half solved; leaves of order ``_SYLVESTER_LEAF`` go to ``dtrsyl``.
+    """
+    a, b = T1.shape[0], T2.shape[0]
+    if a == 0 or b == 0:
+        return np.zeros((a, b)), 0
+    if max(a, b) <= _SYLVESTER_LEAF:
+        X, scale, info = scipy.linalg.lapack.dtrsyl(T1, T2, C, trana="N", tranb="T", isgn=1)
+        return X / scale, info
+    if a >= b:
+        k = _split(T1)
+        X2, i2 = _sylvester_quasi_triangular(T1[k:, k:], T2, C[k:])
+        X1, i1 = _sylvester_quasi_triangular(T1[:k, :k], T2, C[:k] - T1[:k, k:] @ X2)
+        return np.vstack([X1, X2]), i1 or i2
+    k = _split(T2)
+    Xb, ib = _sylvester_quasi_triangular(T1, T2[k:, k:], C[:, k:])
+    Xa, ia = _sylvester_quasi_triangular(T1, T2[:k, :k], C[:, :k] - Xb @ T2[:k, k:].T)
+    return np.hstack([Xa, Xb]), ia or ib
+
+
+def _lyapunov_quasi_triangular(T, R):
+    """Symmetric ``X`` with ``T X + X T^T = R`` (``T`` upper quasi-triangular, ``R``
+    symmetric), by the same recursive blocking (Jonsson and Kagstrom 2002, Part II treats
+    the Lyapunov case): ``X22`` first, then the Sylvester equation for ``X12``, then ``X11``
+    with both couplings on the right-hand side.  Returns (X, info)."""
+    n = T.shape[0]
+    if n <= _SYLVESTER_LEAF:
+        X, scale, info = scipy.linalg.lapack.dtrsyl(T, T, R, trana="N", tranb="T", isgn=1)
+        return X / scale, info
+    k = _split(T)
+    T11, T12, T22 = T[:k, :k], T[:k, k:], T[k:, k:]
+    X22, i22 = _lyapunov_quasi_triangular(T22, R[k:, k:])
+    X12, i12 = _sylvester_quasi_triangular(T11, T22, R[:k, k:] - T12 @ X22)
+    coupling = T12 @ X12.T
+    X11, i11 = _lyapunov_quasi_triangular(T11, R[:k, :k] - coupling - coupling.T)
+    X = np.block([[X11, X12], [X12.T, X22]])
+    return X, i11 or i12 or i22
+
+
 def _quasi_triangular_eigenvalues(T) -> np.ndarray:
     """The eigenvalues of a real quasi-triangular (real Schur) matrix, from its 1 x 1 and
     2 x 2 diagonal blocks, in ``O(n)``."""
@@ -1113,14 +1172,18 @@ class _SchurGramian:
         if use_controllability:
             F = Z.T @ (self.Bc / b_size)            # the right-hand side's factor
             Out = C / c_size
-            trana, tranb = "N", "T"
         else:
             F = Z.T @ (self.Cc.T / c_size)
             Out = B.T / b_size
-            trana, tranb = "T", "N"
         R = F @ F.T
-        X, scale, info = scipy.linalg.lapack.dtrsyl(T, T, -R, trana=trana, tranb=tranb, isgn=1)
-        X = X / scale
+        if use_controllability:
+            X, info = _lyapunov_quasi_triangular(T, -R)
+        else:
+            # T^T Y + Y T = -R is the same equation for S = J T^T J (upper quasi-triangular,
+            # J the reversal) and J Y J
+            Xr, info = _lyapunov_quasi_triangular(np.ascontiguousarray(T.T[::-1, ::-1]),
+                                                  -R[::-1, ::-1])
+            X = Xr[::-1, ::-1]
         X = 0.5 * (X + X.T)
         opT = T if use_controllability else T.T
         residual = np.linalg.norm(opT @ X + X @ opT.T + R)
