@@ -22,9 +22,9 @@ import zipfile
 import numpy as np
 
 from plantcore.core.errors import ModelFileError
-from plantcore.core.names import list_problem
 from plantcore.estimation.audit import ObservabilityAudit, audit_linearized_observability
 from plantcore.estimation.validation import _validate_basis, _validate_sequences
+from plantcore.files.array_checks import real_finite_array, unique_names
 from plantcore.files.safe_read import open_input, open_npz, read_npy, read_npz_member
 
 __all__ = ["AUDIT_FILE_KEYS", "MAX_ARRAY_FILE_BYTES", "MAX_AUDIT_FILE_BYTES", "audit_from_file"]
@@ -67,33 +67,13 @@ def _load_npy_safely(path, display, key_label):
                                                      f"({exc.strerror or exc}).") from None
 
 
-def _check_state_names(names: list, display, key: str) -> list:
-    problem = list_problem(names)
-    if problem:
-        raise ModelFileError(display, key, problem + ".")
-    if len(set(names)) != len(names):
-        raise ModelFileError(display, key, "holds a name twice; names must be unique.")
-    return names
-
-
 def _check_member_dtype(array: np.ndarray, display, key: str, *, text: bool = False):
     kind = array.dtype.kind
     if text:
         if array.ndim != 1 or (array.size and kind != "U"):
             raise ModelFileError(display, key, "must be a 1-D array of text (one name per state).")
-        return _check_state_names([str(x) for x in array.tolist()], display, key)
-    if kind not in "iuf":
-        what = {"b": "booleans", "c": "complex numbers", "U": "text", "S": "bytes",
-                "O": "Python objects", "V": "a structured record", "M": "dates",
-                "m": "time spans"}.get(kind, f"dtype {array.dtype}")
-        raise ModelFileError(display, key, f"holds {what}; give an array of real numbers.")
-    out = np.asarray(array, dtype=float)
-    bad = np.argwhere(~np.isfinite(out))
-    if bad.size:
-        where = ", ".join(str(int(i)) for i in bad[0])
-        raise ModelFileError(display, key, f"has the non-finite entry {out[tuple(bad[0])]!r} at "
-                                           f"index [{where}]; every entry must be finite.")
-    return out
+        return unique_names([str(x) for x in array.tolist()], display, key)
+    return real_finite_array(array, display, key)
 
 
 def audit_from_file(path, *, expected_unobservable=None, tol=None) -> ObservabilityAudit:

@@ -44,7 +44,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from plantcore.core.errors import ModelFileError
-from plantcore.core.names import list_problem
+from plantcore.files.array_checks import real_finite_array, unique_names
 from plantcore.files.safe_read import open_input, open_npz, read_capped, read_npz_member
 from plantcore.files.safe_write import atomic_write, atomic_write_text
 
@@ -125,18 +125,6 @@ def load_impulse_response(path) -> ImpulseResponseData:
     return _from_csv(data, display)
 
 
-def _real_array(array: np.ndarray, display: str, key: str) -> np.ndarray:
-    if array.dtype.kind not in "iuf":
-        raise ModelFileError(display, key, f"has dtype {array.dtype}; give real numbers.")
-    out = np.asarray(array, dtype=float)
-    bad = np.argwhere(~np.isfinite(out))
-    if bad.size:
-        where = ", ".join(str(int(i)) for i in bad[0])
-        raise ModelFileError(display, key, f"has the non-finite entry {float(out[tuple(bad[0])])!r}"
-                                           f" at index [{where}]; every entry must be finite.")
-    return out
-
-
 def _names(array: np.ndarray, display: str, key: str, count: int) -> tuple:
     if array.ndim != 1 or (array.size and array.dtype.kind != "U"):
         raise ModelFileError(display, key, "must be a 1-D array of text, one name per channel.")
@@ -145,20 +133,12 @@ def _names(array: np.ndarray, display: str, key: str, count: int) -> tuple:
         what = "outputs" if key == "outputs" else "inputs"
         raise ModelFileError(display, key, f"holds {len(names)} names but the impulse response "
                                            f"has {count} {what}; give one name per {what[:-1]}.")
-    _check_names(names, display, key)
+    unique_names(names, display, key)
     return tuple(names)
 
 
-def _check_names(names: list, display: str, key: str) -> None:
-    problem = list_problem(names)
-    if problem:
-        raise ModelFileError(display, key, problem + ".")
-    if len(set(names)) != len(names):
-        raise ModelFileError(display, key, "holds a name twice; names must be unique.")
-
-
 def _scalar(array: np.ndarray, display: str, key: str, *, positive: bool) -> float:
-    value = _real_array(array, display, key)
+    value = real_finite_array(array, display, key)
     if value.size != 1 or value.ndim > 1:
         raise ModelFileError(display, key, f"must be one number, got an array of shape "
                                            f"{value.shape}.")
@@ -186,7 +166,7 @@ def _from_npz(handle, display: str) -> ImpulseResponseData:
     if "impulse_response" not in arrays:
         raise ModelFileError(display, "impulse_response", "missing; store the samples as an array "
                                                           "of shape (samples, outputs, inputs).")
-    values = _real_array(arrays["impulse_response"], display, "impulse_response")
+    values = real_finite_array(arrays["impulse_response"], display, "impulse_response")
     if values.ndim == 1:
         values = values[:, None, None]
     if values.ndim != 3 or 0 in values.shape:
@@ -253,8 +233,8 @@ def _from_csv(data: bytes, display: str) -> ImpulseResponseData:
             inputs.append(inp)
     if not channels:
         raise ModelFileError(display, "header", "names no channel; add columns 'OUTPUT <- INPUT'.")
-    _check_names(outputs, display, "header (outputs)")
-    _check_names(inputs, display, "header (inputs)")
+    unique_names(outputs, display, "header (outputs)")
+    unique_names(inputs, display, "header (inputs)")
     missing = [f"{o} <- {i}" for o in outputs for i in inputs if (o, i) not in channels]
     if missing:
         raise ModelFileError(display, "header", f"the channel {missing[0]!r} is missing; every "
