@@ -122,7 +122,6 @@ def test_sigterm_during_a_command_unwinds_and_exits_143(model_file, tmp_path, ca
     from plantcore.files import model_files
 
     out = tmp_path / "reduced.toml"
-    original = model_files.atomic_write_text
 
     def write_then_terminate(path, text, **kwargs):
         def writer_that_is_killed(f):
@@ -138,7 +137,6 @@ def test_sigterm_during_a_command_unwinds_and_exits_143(model_file, tmp_path, ca
     assert "terminated" in capsys.readouterr().err
     assert sorted(p.name for p in tmp_path.iterdir()) == ["tank.toml"]  # no temporary left
     assert signal.getsignal(signal.SIGTERM) is signal.SIG_DFL
-    monkeypatch.setattr(model_files, "atomic_write_text", original)
 
 
 def test_an_interrupted_demo_leaves_no_partial_folder(tmp_path, monkeypatch):

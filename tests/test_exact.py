@@ -388,13 +388,13 @@ def test_markov_comparison_agrees_with_rational_functions(n):
 
 
 def test_markov_comparison_finds_a_difference_past_the_first_parameters():
-    # 1/(s+1)^2 against a model whose first three Markov parameters (0, 1, -2) agree with it
-    # but whose fourth does not: 1/(s+1)^2 has 3, the other 3 + 1e-6 ... built exactly
+    # a = 1/(s+1)^2 (Markov parameters 0, 1, -2, ...; by hand).  b adds a third state that
+    # is never driven, so b = a exactly; c drives it, adding 1/(s+1)^3, whose Markov
+    # parameters are 0, 0, 1, ...: the first difference is at k = 2, not at k = 0.
     a = ([[-1, 1], [0, -1]], [[0], [1]], [[1, 0]])
     b = ([[-1, 1, 0], [0, -1, 1], [0, 0, "-1/2"]], [[0], [1], [0]], [[1, 0, 0]])  # b = a
     assert exact_transfer_comparison(a, b).equal
     c = ([[-1, 1, 0], [0, -1, 1], [0, 0, -1]], [[0], [1], [1]], [[1, 0, 0]])
-    # c = a + 1/(s+1)^3 : Markov parameters C A^k B of the extra term are 0, 0, 1, ...
     result = exact_transfer_comparison(a, c)
     assert not result.equal and result.first_difference == 2
 
