@@ -208,6 +208,40 @@ def _summary(c, example: str, folder: Path, written: dict, placement=None) -> st
     return "\n".join(lines)
 
 
+def _written_models(contents):
+    """The minimal and reduced models as written (rounding dust within the backward error
+    as exact zeros, :mod:`plantcore.files.written_zeros`), and the contents with their
+    certificates run on what is written."""
+    import dataclasses
+
+    from plantcore.files.written_zeros import (
+        a_priori_backward_error,
+        clear_rounding_dust,
+        reduction_backward_error,
+    )
+    from plantcore.reduction.equivalence import check_equivalence
+
+    model = contents.model
+    a = contents.analysis
+    eta = max(reduction_backward_error(a.decomposition, model.n),
+              reduction_backward_error(a.minimal, model.n))
+    minimal = clear_rounding_dust(contents.minimal_model, eta, reference=model)
+    models = {"minimal_model.toml": minimal.model}
+    changes = {}
+    if minimal.cleared and contents.certificate is not None:
+        changes["certificate"] = check_equivalence(model, minimal.model,
+                                                   reference_peak_gain=contents.peak_gain)
+    if contents.reduction is not None:
+        reduced = clear_rounding_dust(contents.reduction.model,
+                                      a_priori_backward_error(contents.reduction.model.n),
+                                      reference=model)
+        models["reduced_model.toml"] = reduced.model
+        if reduced.cleared and contents.reduced_certificate is not None:
+            changes["reduced_certificate"] = check_equivalence(
+                model, reduced.model, reference_peak_gain=contents.peak_gain)
+    return dataclasses.replace(contents, **changes), models
+
+
 def run_demo(folder=None, *, example: str = "thermal_process", tol=None, echo=print,
              progress=None) -> DemoResult:
     """Inspect, reduce, certify and report a packaged example, writing every result.
@@ -255,6 +289,7 @@ def run_demo(folder=None, *, example: str = "thermal_process", tol=None, echo=pr
     model = load_model(source)
     _check_folder(folder)                     # refuse a non-empty folder before any work
     contents = collect_report(model, tol=tol, source=os.path.basename(source), progress=progress)
+    contents, written_models = _written_models(contents)
     placement = suggest_actuators(model, _scenario_candidates(example, model), tol=tol)
     html_text = render_html(contents, progress=progress)
     inspection = contents.analysis.to_text()
@@ -266,9 +301,7 @@ def run_demo(folder=None, *, example: str = "thermal_process", tol=None, echo=pr
         texts["certificate.json"] = json.dumps(cert.to_dict(), indent=2, allow_nan=False) + "\n"
     if contents.reduced_certificate is not None:
         texts["reduced_model_check.txt"] = contents.reduced_certificate.to_text() + "\n"
-    models = {"original_model.toml": model, "minimal_model.toml": contents.minimal_model}
-    if contents.reduction is not None:
-        models["reduced_model.toml"] = contents.reduction.model
+    models = {"original_model.toml": model, **written_models}
 
     path, created = _make_folder(folder)
     written = {}
