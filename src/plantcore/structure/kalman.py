@@ -35,6 +35,7 @@ import numpy as np
 import scipy.linalg
 from scipy.linalg import lapack
 
+from plantcore.core.derived_names import derived_state_names
 from plantcore.core.equilibration import equilibrate, io_scaled
 from plantcore.core.errors import AccuracyWarning, NumericalBreakdown
 from plantcore.core.model import StateSpaceModel, as_model
@@ -270,7 +271,7 @@ class KalmanDecomposition:
         sl = self._slice(name)
         m = self.model
         return StateSpaceModel(m.A[sl, sl], m.B[sl, :], m.C[:, sl], m.D, m.dt,
-                               inputs=m.inputs, outputs=m.outputs,
+                               states=m.states[sl], inputs=m.inputs, outputs=m.outputs,
                                name=f"{m.name or 'model'}: {name.replace('_', ' ')}")
 
     def basis(self, name: str) -> np.ndarray:
@@ -540,7 +541,7 @@ def _decomposition(p: _Prepared) -> KalmanDecomposition:
             return _from_spectral(p, spectral, decisions, cert, sizes)
     decisions = decisions + certificate_decisions(cert, sizes)
     _impose_zero_pattern(Az, Bz, Cz, sizes)
-    states = tuple(f"z{i + 1}" for i in range(n))
+    states = derived_state_names(p.model.states, T, T_inv.T)
     new = StateSpaceModel(Az, Bz, Cz, p.model.D, p.model.dt, states=states,
                           inputs=p.model.inputs, outputs=p.model.outputs, name=p.model.name)
     del Az
@@ -632,8 +633,7 @@ def _from_spectral(p: _Prepared, spectral, decisions, cert, staircase_sizes):
     sizes = PartSizes(*spectral.sizes)
     decisions = supersede(decisions) + certificate_decisions(cert, staircase_sizes,
                                                              decided=True)
-    n = p.model.n
-    states = tuple(f"z{i + 1}" for i in range(n))
+    states = derived_state_names(p.model.states, T, T_inv.T)
     new = StateSpaceModel(spectral.A, spectral.B, spectral.C, p.model.D, p.model.dt,
                           states=states, inputs=p.model.inputs, outputs=p.model.outputs,
                           name=p.model.name)

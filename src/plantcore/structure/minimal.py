@@ -6,6 +6,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from plantcore.core.derived_names import derived_state_names
 from plantcore.core.errors import NumericalBreakdown
 from plantcore.core.model import StateSpaceModel
 from plantcore.core.rank import any_fragile
@@ -29,7 +30,9 @@ class MinimalRealization:
     ----------
     model : StateSpaceModel
         The minimal model: ``A = W.T @ A_orig @ V``, ``B = W.T @ B_orig``,
-        ``C = C_orig @ V``, the same ``D`` and the same time domain.
+        ``C = C_orig @ V``, the same ``D`` and the same time domain.  A state that is an
+        original state kept unchanged keeps its name; the others are named
+        ``"combination k"`` by position (:mod:`plantcore.core.derived_names`).
     order : int
         Number of states kept.
     removed_uncontrollable : int
@@ -158,7 +161,7 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
     V = s[:, None] * X
     W = X / s[:, None]
     del X
-    states = tuple(f"z{i + 1}" for i in range(r))
+    states = derived_state_names(p.model.states, V, W)
     name = f"{p.model.name} (minimal)" if p.model.name else None
     new = StateSpaceModel(A_min, B_min, C_min, p.model.D, p.model.dt, states=states,
                           inputs=p.model.inputs, outputs=p.model.outputs, name=name)
@@ -223,7 +226,7 @@ def _minimal_from_decomposition(kd, state_scaling, removed=()) -> MinimalRealiza
     s = np.asarray(state_scaling, dtype=float)
     W = V / (s * s)[:, None]           # X / s with V = s X and X orthonormal
     source = kd.model.name
-    states = tuple(f"z{i + 1}" for i in range(r))
+    states = kd.model.states[:r]       # part 1 comes first: the same names (core.derived_names)
     name = f"{source} (minimal)" if source else None
     model = StateSpaceModel(part.A, part.B, part.C, part.D, part.dt, states=states,
                             inputs=part.inputs, outputs=part.outputs, name=name)
