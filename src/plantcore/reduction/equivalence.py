@@ -22,6 +22,7 @@ import numpy as np
 from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.core.rank import any_fragile
 from plantcore.core.rendering import render
+from plantcore.core.safe_norms import frobenius
 from plantcore.core.wording import counted, frequency_phrase, short_number
 from plantcore.reduction.equivalence_resolution import (
     ATTAINABLE_LIMIT,
@@ -329,19 +330,44 @@ def _markov_parameters(model: StateSpaceModel, count: int, rho: float) -> list:
     return out
 
 
-def _markov_error(a: StateSpaceModel, b: StateSpaceModel, poles=None):
+def _markov_scale(a: StateSpaceModel, b: StateSpaceModel, count: int, tol: float,
+                  poles=None) -> float:
+    """The frequency scale ``rho`` of the Markov check (see :func:`check_equivalence`, 5).
+
+    The larger spectral radius of the two state matrices, but never so far below the norm
+    ``N`` of the equilibrated state matrices that rounding in the powers ``(A/rho)^k`` could
+    reach the tolerance: the first-order rounding error of ``(A/rho)^k`` grows like
+    ``k eps (N/rho)^k`` (N. J. Higham, *Accuracy and Stability of Numerical Algorithms*, 2nd
+    ed., SIAM 2002, chapter 18), so ``N/rho`` is capped at ``kappa`` with
+    ``kappa^(count-1) = tol / (100 eps)`` (at least 1).  Integrators computed at rounding level
+    (a double integrator's eigenvalues near ``1e-16`` or, defective, ``1e-8``) then no longer
+    set the scale, and their Markov parameters cannot blow up.
+    """
+    from plantcore.core.equilibration import equilibrate
+
+    if poles is not None:
+        rho = float(np.max(np.abs(poles))) if poles.size else 0.0
+    else:
+        rho = max(_spectral_radius(a.A), _spectral_radius(b.A))
+    norm = 0.0
+    for m in (a, b):
+        if m.n:
+            A_e = equilibrate(m.A, m.B, m.C).apply(m.A, m.B, m.C)[0]
+            norm = max(norm, float(frobenius(A_e)))
+    if not norm > 0 or not math.isfinite(norm):
+        return rho if rho > 0 else 1.0
+    growth = float(tol) / (100.0 * np.finfo(float).eps)
+    kappa = growth ** (1.0 / (count - 1)) if count > 1 and growth > 1.0 else 1.0
+    return max(rho, norm / kappa)
+
+
+def _markov_error(a: StateSpaceModel, b: StateSpaceModel, poles=None, tol: float = 1e-9):
     """Largest relative difference of the first Markov parameters; returns (error, count).
     ``poles``: the eigenvalues of both state matrices when already known."""
     count = min(2 * max(a.n, b.n), 2 * MARKOV_LIMIT) + 1
     if a.n_inputs == 0 or a.n_outputs == 0:
         return 0.0, count
-    if poles is not None:
-        rho = float(np.max(np.abs(poles))) if poles.size else 0.0
-    else:
-        rho = max(_spectral_radius(a.A), _spectral_radius(b.A))
-    if not rho > 0:
-        norms = [np.linalg.norm(m.A) for m in (a, b) if m.n]
-        rho = max(norms) if norms and max(norms) > 0 else 1.0
+    rho = _markov_scale(a, b, count, tol, poles)
     Ma = _markov_parameters(a, count, rho)
     Mb = _markov_parameters(b, count, rho)
     size_a = max(np.linalg.norm(M, 2) for M in Ma)
@@ -515,7 +541,9 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
        ``2 max(n_a, n_b) + 1`` of them, enough to determine the difference (its order is
        at most ``n_a + n_b``), and at most ``2 MARKOV_LIMIT + 1 = 129``.  To avoid overflow and underflow they are those of the
        frequency-scaled models ``G(rho v)``, ``rho`` the larger spectral radius of the two
-       state matrices: ``C (A/rho)^k B / rho``, which have the units of ``G``.  The
+       state matrices, raised where it lies so far below their norm that rounding in the
+       powers of ``A/rho`` could reach ``tol`` (integrators computed at rounding level, say;
+       see ``_markov_scale``): ``C (A/rho)^k B / rho``, which have the units of ``G``.  The
        error is the largest difference relative to the largest scaled parameter of ``a``.
        For strongly non-normal or stiff ``A`` it may report a rounding-level difference
        above ``tol`` while the transfer functions agree; it does not decide the verdict.
@@ -689,7 +717,7 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
         reasons.append("Model A has zero gain at every frequency while model B does not, so "
                        "the relative error is infinite.")
 
-    markov_error, markov_count = _markov_error(ma, mb, poles)
+    markov_error, markov_count = _markov_error(ma, mb, poles, tol)
     if markov_error <= tol:
         reasons.append(f"The first {markov_count} Markov parameters (impulse-response "
                        f"coefficients, D first) agree to {short_number(markov_error)} relative.")
