@@ -418,5 +418,5 @@ def test_plotting_functions_return_figures(rigid_contents):
     assert all(isinstance(f, Figure) for f in figures)
     labels = [line.get_label() for line in figures[0].axes[0].get_lines()]
     assert "original, 2 states" in labels and "minimal, 1 state" in labels
-    with pytest.raises(ValueError, match="imaginary axis"):
+    with pytest.raises(ValueError, match="stability boundary"):
         pc.plot_hankel_singular_values(rigid_contents)

@@ -512,3 +512,53 @@ def test_h2_of_a_model_above_the_blocking_size_against_slycot(discrete, m, p):
     ref = slycot.ab13bd("D" if discrete else "C", "H", model.n, m, p,
                         model.A, model.B, model.C, model.D)          # slycot ab13bd
     assert_allclose(h2_norm(model), ref, rtol=1e-9)
+
+
+def _rotation(n: int, seed: int) -> np.ndarray:
+    return np.linalg.qr(np.random.default_rng(seed).standard_normal((n, n)))[0]
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3, 4, 5])
+def test_rigid_body_in_any_coordinates_has_infinite_peak_gain(seed):
+    # 1/s^2 (a double integrator, our own rigid-body scenario) with a flexible mode
+    # (12 rad/s, damping 0.02): a controllable and observable pole at exactly 0, so the peak
+    # gain is infinite by definition.  In rotated coordinates the defective pair is computed
+    # about sqrt(eps) from 0 (before: a finite "peak" near 1e14 to 1e18).
+    w, z = 12.0, 0.02
+    A = np.array([[0, 1, 0, 0], [0, 0, 0, 0], [0, 0, 0, 1], [0, 0, -w * w, -2 * z * w]], float)
+    B = np.array([[0.0], [1.0], [0.0], [1.0]])
+    C = np.array([[1.0, 0.0, 1.0, 0.0]])
+    T = _rotation(4, seed)
+    pk = peak_gain((T.T @ A @ T, T.T @ B, C @ T))
+    assert math.isinf(pk.value) and pk.boundary_pole and "imaginary axis" in pk.message
+    assert abs(pk.frequency) <= 1e-12        # the mean of the computed pair, not its spread
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_discrete_double_accumulator_in_any_coordinates_has_infinite_peak_gain(seed):
+    # a sampled rigid body: x+ = [[1, h], [0, 1]] x + [h^2/2, h] u, y = x1 (two poles at
+    # exactly z = 1, controllable and observable; by hand); and the plain accumulator 1/(z - 1)
+    h = 0.1
+    A = np.array([[1.0, h], [0.0, 1.0]])
+    B = np.array([[h * h / 2], [h]])
+    C = np.array([[1.0, 0.0]])
+    T = _rotation(2, seed)
+    pk = peak_gain(pc.StateSpaceModel(T.T @ A @ T, T.T @ B, C @ T, dt=h))
+    assert math.isinf(pk.value) and pk.boundary_pole and "unit circle" in pk.message
+    assert abs(pk.frequency) <= 1e-12
+    accumulator = peak_gain(pc.StateSpaceModel([[1.0]], [[1.0]], [[1.0]], dt=1.0))
+    assert math.isinf(accumulator.value) and accumulator.boundary_pole
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_hidden_rotated_integrators_keep_the_peak_gain_finite(seed):
+    # A double integrator (x1' = x2, x2' = 0) that no input reaches, and x3' = -x3 + u,
+    # y = x1 + x3: G(s) = 1/(s + 1), peak gain 1 at 0 rad/s (by hand), whatever the
+    # coordinates.
+    A = np.array([[0.0, 1.0, 0.0], [0.0, 0.0, 0.0], [0.0, 0.0, -1.0]])
+    B = np.array([[0.0], [0.0], [1.0]])
+    C = np.array([[1.0, 0.0, 1.0]])
+    T = _rotation(3, seed)
+    pk = peak_gain((T.T @ A @ T, T.T @ B, C @ T))
+    assert not pk.boundary_pole
+    assert pk.value == pytest.approx(1.0, rel=1e-8)

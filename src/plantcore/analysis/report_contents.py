@@ -17,8 +17,10 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from plantcore.analysis.analyze import analyze
+from plantcore.core.model import as_model
 from plantcore.core.progress import Progress
 from plantcore.core.rank import DEFAULT_RELATIVE_TOLERANCE
+from plantcore.core.safe_norms import frobenius
 from plantcore.reduction.balanced import balanced_truncation
 from plantcore.reduction.equivalence import check_equivalence
 from plantcore.reduction.norms import peak_gain as _peak_gain
@@ -36,6 +38,29 @@ __all__ = ["DEFAULT_RELATIVE_ERROR", "ModeZeroDistance", "ReportContents", "Samp
 DEFAULT_RELATIVE_ERROR = 0.1
 
 
+#: The highest frequency (rad/s) the report's plot draws: the Nyquist frequency
+#: ``pi / dt`` must not exceed it.  A logarithmic axis pads its range by a few percent of its
+#: decades on each side, so the end of the double range (1.8e308) is kept 2 decades away
+#: (measured: a Nyquist frequency of 1e308 breaks the drawing, 1e306 does not).
+LARGEST_PLOTTED_FREQUENCY = 1e306
+
+
+def _nyquist(dt: float) -> float:
+    """``pi / dt`` in rad/s; ValueError naming the sample time when it is above
+    :data:`LARGEST_PLOTTED_FREQUENCY` (a sample time below about ``3.1e-306``, such as the
+    subnormal ``1e-310``, whose Nyquist frequency is not even a double)."""
+    if dt < math.pi / LARGEST_PLOTTED_FREQUENCY:
+        digits = math.log10(math.pi) - math.log10(dt)
+        power = math.floor(digits)
+        raise ValueError(
+            f"sample_time {dt:.3g} is too small for a report: its frequency axis would run up "
+            f"to pi / sample_time = {10.0 ** (digits - power):.3g}e+{power} rad/s, above the "
+            f"{LARGEST_PLOTTED_FREQUENCY:.0e} rad/s a plot can draw (doubles end at 1.8e+308); "
+            "write the sample time in a larger time unit (the matrices of a sampled model do "
+            "not depend on it)")
+    return math.pi / dt
+
+
 def _frequency_grid(model, modes, points: int) -> np.ndarray:
     """A logarithmic frequency grid around the model's physical modes (rad per time unit).
 
@@ -45,14 +70,15 @@ def _frequency_grid(model, modes, points: int) -> np.ndarray:
     down to ``1e-18``).  The grid spans the other modes with a decade of margin on each side.
     """
     values = np.array([complex(m.value) for m in modes], dtype=complex)
-    norm_A = float(np.linalg.norm(model.A))
+    norm_A = frobenius(model.A)
     rounding = DEFAULT_RELATIVE_TOLERANCE * max(norm_A, np.finfo(float).tiny)
     if model.is_discrete:
         dt = model.dt
-        nyquist = np.pi / dt
+        nyquist = _nyquist(dt)
         physical = values[(np.abs(values) > 0) & (np.abs(values - 1.0) > rounding)]
-        w = np.abs(np.log(physical)) / dt if physical.size else np.array([])
-        w = w[w > 0]
+        with np.errstate(over="ignore"):   # a fast real pole of a tiny sample time: inf, dropped
+            w = np.abs(np.log(physical)) / dt if physical.size else np.array([])
+        w = w[(w > 0) & np.isfinite(w)]
         low = 0.1 * w.min() if w.size else 1e-3 * nyquist
         low = min(low, 1e-2 * nyquist)
         return np.geomspace(low, nyquist, points)
@@ -270,6 +296,9 @@ def collect_report(model, *, tol=None, order=None, max_error=None, source=None,
     if order is not None and (isinstance(order, bool) or not isinstance(order, (int, np.integer))
                               or order < 0):
         raise ValueError(f"order must be a whole number of states, 0 or more, got {order!r}.")
+    given = analysis.model if analysis is not None else as_model(model, allow_sparse=True)
+    if given.is_discrete:
+        _nyquist(given.dt)      # refuse a sample time whose Nyquist frequency is not a double
     bar = _progress(progress, "report", 7)
     try:
         if analysis is None:

@@ -33,7 +33,9 @@ from scipy.linalg import lapack
 
 from plantcore.core.errors import AccuracyWarning, NumericalBreakdown
 from plantcore.core.model import StateSpaceModel, as_model, sparse_model_or_none
+from plantcore.core.safe_norms import frobenius
 from plantcore.reduction.gramians import _fmt, _schur_factors
+from plantcore.reduction.power_of_two_scaling import model_scaling
 from plantcore.structure.certificate import _Schur
 from plantcore.structure.kalman import _prepare
 from plantcore.structure.modes import _stability, _stability_data
@@ -76,7 +78,18 @@ class _Split:
     schur: object = None      # real Schur form of As (A_s = Q T Q^T), computed once
 
 
-def _split(model: StateSpaceModel, p=None, schur=None) -> _Split:
+def _unscaled(value, time_exponent: int):
+    """An eigenvalue (or a distance) of a time-rescaled model in the original time unit."""
+    if not time_exponent:
+        return value
+    with np.errstate(over="ignore"):
+        if isinstance(value, complex):
+            return complex(float(np.ldexp(value.real, time_exponent)),
+                           float(np.ldexp(value.imag, time_exponent)))
+        return float(np.ldexp(value, time_exponent))
+
+
+def _split(model: StateSpaceModel, p=None, schur=None, time_exponent: int = 0) -> _Split:
     """Additive decomposition ``G = G_stable + G_unstable`` (internal).
 
     Works on the equilibrated model (an exact power-of-two similarity; ``p``, its prepared
@@ -87,7 +100,9 @@ def _split(model: StateSpaceModel, p=None, schur=None) -> _Split:
     ``trsyl``, the Bartels-Stewart method on quasi-triangular matrices) decouples the two
     blocks with the similarity ``[[I, X], [0, I]]``.  The stable part keeps its Schur form
     (``T11`` with ``Q = I``), so the Gramians need no further factorization.  Refuses modes
-    on the stability boundary.
+    on the stability boundary.  ``time_exponent`` is the exponent ``t`` of an exact time
+    rescaling (``A = A_original 2^-t``, :mod:`plantcore.reduction.power_of_two_scaling`), so
+    that a refusal names the mode in the original units.
     """
     p = _prepare(model, None) if p is None else p
     discrete = model.is_discrete
@@ -100,10 +115,11 @@ def _split(model: StateSpaceModel, p=None, schur=None) -> _Split:
     if boundary:
         where = "unit circle" if discrete else "imaginary axis"
         raise ValueError(
-            f"the model has a mode at {_fmt(boundary[0])}, on the {where} (boundary tolerance "
-            f"{delta:.2g}); balanced truncation and Hankel singular values need every mode "
-            "strictly stable or strictly unstable. Remove or shift that mode first "
-            "(for example, treat an integrator separately).")
+            f"the model has a mode at {_fmt(_unscaled(boundary[0], time_exponent))}, on the "
+            f"{where} (boundary tolerance {_unscaled(delta, time_exponent):.2g}); balanced "
+            "truncation and Hankel singular values need every mode strictly stable or strictly "
+            "unstable. Remove or shift that mode first (for example, treat an integrator "
+            "separately).")
     stable = np.array([f[0] for f in flags], dtype=bool)
     n_stable = int(stable.sum())
     if n_stable == n:
@@ -130,9 +146,8 @@ def _split(model: StateSpaceModel, p=None, schur=None) -> _Split:
         if info < 0:  # pragma: no cover - argument error
             raise RuntimeError(f"trsyl failed with info={info}")
         X = X / scale
-        resid = np.linalg.norm(T11 @ X - X @ T22 + T12)
-        size = np.linalg.norm(T11) * np.linalg.norm(X) + np.linalg.norm(X) * np.linalg.norm(T22) \
-            + np.linalg.norm(T12)
+        resid = frobenius(T11 @ X - X @ T22 + T12)
+        size = frobenius(T11) * frobenius(X) + frobenius(X) * frobenius(T22) + frobenius(T12)
         if info > 0 or resid > 1e-8 * max(size, np.finfo(float).tiny):
             warnings.warn(
                 "the stable and unstable parts are nearly coupled (a stable and an unstable "
@@ -231,7 +246,11 @@ def hankel_singular_values(model) -> np.ndarray:
     model = as_model(model)
     if model.n == 0:
         return np.zeros(0)
-    return _hankel_values(_split(model), model.is_discrete)
+    # far from unit scale, the values of an exactly rescaled model, multiplied back exactly
+    scaling = model_scaling(model)
+    values = _hankel_values(_split(scaling.apply(model), time_exponent=scaling.time),
+                            model.is_discrete)
+    return values if scaling.is_identity else scaling.restore_gains(values)
 
 
 def _hankel_values(sp: _Split, discrete: bool) -> np.ndarray:
@@ -434,10 +453,15 @@ def balanced_truncation(model, order=None, max_error=None) -> ReducedModel:
         return ReducedModel(model, np.zeros(0), 0.0, 0, 0, 0, 0, 0.0)
     if order is not None and order > n:
         raise ValueError(f"order {order} exceeds the model's {n} states; choose at most {n}.")
-    sp = _split(model)
+    # Far from unit scale the work is done on an exactly rescaled model (powers of two in
+    # the time, input and output units) and the values and the reduced model are brought
+    # back exactly; ``hsv`` and every bound below are in the model's own units.
+    scaling = model_scaling(model)
+    sp = _split(scaling.apply(model), time_exponent=scaling.time)
     nu = sp.Au.shape[0]
     ns = sp.As.shape[0]
-    hsv, Rc, Ro, U, V = _hsv_and_factors(sp, discrete)
+    unit_hsv, Rc, Ro, U, V = _hsv_and_factors(sp, discrete)
+    hsv = unit_hsv if scaling.is_identity else scaling.restore_gains(unit_hsv)
     negligible = _NEGLIGIBLE_FACTOR * max(ns, 1) * _EPS * (hsv[0] if hsv.size else 0.0)
     cuts = _groups(hsv)
     r_max = max([r for r in cuts if r == 0 or hsv[r - 1] > negligible], default=0)
@@ -472,7 +496,7 @@ def balanced_truncation(model, order=None, max_error=None) -> ReducedModel:
     bound = _tail_bound(hsv, r)
     if r:
         # projections in the coordinates of the stable part's Schur form A_s = Q T_s Q^T
-        sig = hsv[:r] ** -0.5
+        sig = unit_hsv[:r] ** -0.5
         T = Rc.T @ V[:, :r] * sig[None, :]
         W = Ro.T @ U[:, :r] * sig[None, :]
         Q = sp.schur.Q
@@ -489,6 +513,7 @@ def balanced_truncation(model, order=None, max_error=None) -> ReducedModel:
     name = f"{model.name} (balanced truncation)" if model.name else None
     reduced = StateSpaceModel(A_new, B_new, C_new, model.D, model.dt, inputs=model.inputs,
                               outputs=model.outputs, name=name)
+    reduced = scaling.restore_balanced(reduced, model.D)
     return ReducedModel(reduced, hsv, float(bound), r + nu, r, nu, n, sp.decoupling_norm)
 
 

@@ -624,7 +624,7 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
 
     # Judge "pole on the boundary" against the scale of the two models, not of the small
     # minimal difference (whose shared-integrator remnant may be 1e-26).
-    scale = max(float(np.linalg.norm(m.A)) for m in (ma, mb))
+    scale = max(frobenius(m.A) for m in (ma, mb))
     difference_peak = None
     if order == 0 and mr is None:
         located = "no peak of the difference to locate (the transfer matrices are empty)"
@@ -647,7 +647,7 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
     evaluate_b = ResponseEvaluator(second, discrete)
     poles = np.concatenate([evaluate_a.poles, evaluate_b.poles])
     extra = [ref_peak.frequency] + ([difference_peak.frequency] if difference_peak else [])
-    state_scale = max(float(np.linalg.norm(m[0])) if m[0].size else 0.0 for m in (first, second))
+    state_scale = max(frobenius(m[0]) for m in (first, second))
     defective = np.concatenate([evaluate_a.defective(), evaluate_b.defective()])
     frequencies = examined_frequencies(poles, discrete, extra, scale=state_scale,
                                        defective=defective)

@@ -20,6 +20,7 @@ machinery, the boundary-pole test and the stability test, and read best together
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import warnings
 from dataclasses import dataclass, field
@@ -32,6 +33,8 @@ from plantcore.core.equilibration import equilibrate
 from plantcore.core.errors import AccuracyWarning
 from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.core.rank import any_fragile
+from plantcore.core.safe_norms import frobenius
+from plantcore.reduction.power_of_two_scaling import model_scaling
 
 __all__ = ["PeakGain", "h2_norm", "peak_gain"]
 
@@ -166,12 +169,57 @@ def _boundary_poles(A: np.ndarray, discrete: bool, pole_scale: float = 0.0,
     if A.shape[0] == 0:
         return np.zeros(0, dtype=complex)
     lam = np.linalg.eigvals(A) if poles is None else poles
-    scale = max(np.linalg.norm(A), pole_scale)
+    scale = max(frobenius(A), pole_scale)
     if discrete:
         tol = BOUNDARY_FACTOR * _EPS * max(1.0, scale)
         return lam[np.abs(np.abs(lam) - 1.0) <= tol]
     tol = BOUNDARY_FACTOR * _EPS * scale
     return lam[np.abs(lam.real) <= tol]
+
+
+#: Poles nearer to the boundary than ``eps^(1/3) ||A_e||_F`` (``max(1, ||A_e||_F)`` for the
+#: unit circle) are checked against their own accuracy by :func:`_poles_within_accuracy`:
+#: the reach of a computed triple eigenvalue (``eps^(1/k)`` for a defective eigenvalue of
+#: multiplicity ``k``).
+_ACCURACY_REACH = _EPS ** (1.0 / 3.0)
+#: Most poles checked against their accuracy (each costs two triangular solves).
+_ACCURACY_CHECKS = 64
+
+
+def _poles_within_accuracy(response: _FrequencyResponse, discrete: bool,
+                           pole_scale: float = 0.0) -> np.ndarray:
+    """Poles whose distance to the boundary is below what their computed value can resolve.
+
+    A pole of condition number ``kappa`` (``||x|| ||y|| / |y^H x|`` for its right and left
+    eigenvectors) is computed by a backward-stable eigenvalue routine to within about
+    ``eps kappa ||A||`` (J. H. Wilkinson, *The Algebraic Eigenvalue Problem*, 1965,
+    chapter 2).  A pole is taken as lying on the boundary when its distance to it is at most
+    ``BOUNDARY_FACTOR * eps * kappa * ||A_e||_F``.  For a simple, well-conditioned pole this
+    is the plain boundary test; for a defective one it is what matters: the double
+    integrator of a rigid body, in any coordinates other than its Jordan form, is computed
+    as a pair about ``sqrt(eps) ||A||`` away from 0 (a finite "peak" of ``1e14`` or more),
+    while its condition number ``~ 1 / sqrt(eps)`` widens the test to cover that distance.
+    ``kappa`` is read from the complex Schur form already held by ``response``
+    (:func:`plantcore.structure.modes._triangle_condition`, two triangular solves per pole)
+    for at most ``_ACCURACY_CHECKS`` poles within ``_ACCURACY_REACH`` of the boundary.
+    """
+    if response.n == 0:
+        return np.zeros(0, dtype=complex)
+    from plantcore.structure.modes import _triangle_condition
+
+    lam = response.poles
+    A = response.data[0]
+    scale = max(frobenius(A), pole_scale)
+    if discrete:
+        scale = max(1.0, scale)
+        distance = np.abs(np.abs(lam) - 1.0)
+    else:
+        distance = np.abs(lam.real)
+    near = np.flatnonzero(distance <= _ACCURACY_REACH * scale)
+    near = near[np.argsort(distance[near], kind="stable")][:_ACCURACY_CHECKS]
+    tol = BOUNDARY_FACTOR * _EPS * scale
+    found = [k for k in near if distance[k] <= tol * _triangle_condition(response.T, int(k))]
+    return lam[np.array(found, dtype=int)]
 
 
 def _pole_frequency(lam: complex, discrete: bool) -> float:
@@ -442,7 +490,7 @@ def _schur_residual(A, T, Z, probes: int = 4) -> float:
     with np.errstate(all="ignore"):
         R = A @ (Z @ V) - Z @ (T @ V)
         estimate = float(np.linalg.norm(R) / math.sqrt(probes))
-    floor = _UNIT_ROUNDOFF * float(np.linalg.norm(A))     # the rounding of A itself
+    floor = _UNIT_ROUNDOFF * frobenius(A)     # the rounding of A itself
     return 2.0 * max(estimate, floor) if math.isfinite(estimate) else math.inf
 
 
@@ -845,10 +893,23 @@ def peak_gain(model, *, rel_tol: float = 1e-10) -> PeakGain:
     relative): an extra candidate only costs one evaluation, while a missed one could end
     the iteration early.
 
-    *How it can fail.*  A pole at a distance from the axis between the boundary tolerance
-    and the accuracy of its computed value (a defective eigenvalue, say a double integrator
-    in rotated coordinates, is known only to about ``sqrt(eps)``) gives a huge finite value
-    instead of ``inf``.  The rounding bound is first order and uses probabilistic
+    A pole nearer to the boundary than ``eps^(1/3) ||A_e||_F`` is also tested against the
+    accuracy of its own computed value, ``1000 eps kappa ||A_e||_F`` with ``kappa`` its
+    eigenvalue condition number (:func:`_poles_within_accuracy`): a defective eigenvalue,
+    say a rigid body's double integrator in rotated coordinates, is computed only to about
+    ``sqrt(eps)`` but has ``kappa`` about ``1 / sqrt(eps)``, so it counts as a boundary pole
+    (value ``inf``, with the reason in :attr:`PeakGain.message`) when the minimal
+    realization keeps it, and is removed (finite value) when it is hidden.
+
+    Models whose norms lie outside ``2^-100 .. 2^100`` (entries near ``1e+-155`` square to
+    beyond the double range) are rescaled exactly by powers of two in their time, input and
+    output units first, and the value and frequency are multiplied back exactly
+    (:mod:`plantcore.reduction.power_of_two_scaling`).
+
+    *How it can fail.*  A pole whose distance from the axis lies just above the accuracy
+    test (a nearly defective, well-separated pair) gives a huge finite value rather than
+    ``inf``; a simple pole of very large condition number within its accuracy of the axis
+    counts as a boundary pole.  The rounding bound is first order and uses probabilistic
     constants (Higham and Mary [5]_); for ill-conditioned ``j w I - A`` (lightly damped poles
     with ill-conditioned eigenvectors) it can exceed ``rel_tol`` by orders of magnitude and
     then dominates :attr:`PeakGain.relative_accuracy`: the interval is honest but wide.
@@ -898,7 +959,25 @@ def _peak_gain(model: StateSpaceModel, rel_tol: float, pole_scale: float) -> Pea
     """:func:`peak_gain` with the boundary tolerance judged against
     ``max(||A_e||_F, pole_scale)``.  A model derived from larger ones (the minimal
     realization of a difference, say) passes the scale of its origin, since a pole of
-    size ``1e-26`` left by rounding in a one-state model says nothing on its own."""
+    size ``1e-26`` left by rounding in a one-state model says nothing on its own.
+
+    A model whose norms lie outside ``2^-100 .. 2^100`` is first rescaled exactly by powers
+    of two (time, input and output units; :mod:`plantcore.reduction.power_of_two_scaling`)
+    and the gains and frequencies are multiplied back exactly."""
+    scaling = model_scaling(model)
+    if scaling.is_identity:
+        return _peak_gain_of(model, rel_tol, pole_scale)
+    result = _peak_gain_of(scaling.apply(model), rel_tol,
+                           math.ldexp(pole_scale, -scaling.time) if pole_scale else 0.0)
+    frequency = result.frequency if model.is_discrete else scaling.restore_frequency(result.frequency)
+    return dataclasses.replace(
+        result, value=scaling.restore_gain(result.value), frequency=frequency,
+        upper_bound=scaling.restore_gain(result.upper_bound),
+        rounding_bound=scaling.restore_gain(result.rounding_bound))
+
+
+def _peak_gain_of(model: StateSpaceModel, rel_tol: float, pole_scale: float) -> PeakGain:
+    """:func:`_peak_gain` on a model of moderate scale."""
     discrete = model.is_discrete
     decisions: tuple = ()
     if model.n_inputs == 0 or model.n_outputs == 0:
@@ -907,24 +986,35 @@ def _peak_gain(model: StateSpaceModel, rel_tol: float, pole_scale: float) -> Pea
     A, B, C, D = _equilibrated(model)
     response = shared_response(A, B, C, D, discrete)
     on_boundary = _boundary_poles(A, discrete, pole_scale, response.poles)
+    if not on_boundary.size:
+        on_boundary = _poles_within_accuracy(response, discrete, pole_scale)
     if on_boundary.size:
         from plantcore.structure.minimal import minimal_realization
 
         mr = minimal_realization(model)
         decisions = tuple(mr.decisions)
-        pole_scale = max(pole_scale, float(np.linalg.norm(A)))   # judge against the origin
+        pole_scale = max(pole_scale, frobenius(A))   # judge against the origin
         model = mr.model
         A, B, C, D = _equilibrated(model)
         response = _FrequencyResponse(A, B, C, D, discrete)
         on_boundary = _boundary_poles(A, discrete, pole_scale, response.poles)
+        how = ""
+        if not on_boundary.size:
+            on_boundary = _poles_within_accuracy(response, discrete, pole_scale)
+            how = (" (within the accuracy of its computed value, which its eigenvalue condition "
+                   "number widens: a repeated pole such as a rigid body's double integrator)")
         if on_boundary.size:
             lam = on_boundary[np.argmin(np.abs(on_boundary))] if not discrete else on_boundary[0]
-            w = _pole_frequency(lam, discrete)
+            # a repeated pole is computed as a cluster (a double integrator as +-1e-8 j):
+            # its frequency is that of the cluster's mean, which is accurate
+            reach = _ACCURACY_REACH * max(frobenius(A), pole_scale, 1.0 if discrete else 0.0)
+            cluster = response.poles[np.abs(response.poles - lam) <= reach]
+            w = _pole_frequency(complex(cluster.mean()) if cluster.size else lam, discrete)
             unit = "rad/sample" if discrete else "rad/s"
             where = "unit circle" if discrete else "imaginary axis"
             return PeakGain(math.inf, w, math.inf, 0.0, 0, True, discrete,
                             f"A pole of the transfer function lies on the {where} at "
-                            f"{w:.6g} {unit}; the gain is unbounded there.",
+                            f"{w:.6g} {unit}{how}; the gain is unbounded there.",
                             decisions, any_fragile(decisions))
     if model.n == 0:
         value = float(np.linalg.norm(D, 2))
@@ -987,7 +1077,10 @@ def h2_norm(model) -> float:
     boundary mode is found the model is first reduced to a minimal realization, since a
     hidden unstable mode does not enter the transfer matrix.  The formulas are those of
     Zhou, Doyle and Glover [2]_, section 4.3.  An :class:`AccuracyWarning` is emitted when
-    the Lyapunov residual is large.
+    the Lyapunov residual is large.  A model far from unit scale (norms outside
+    ``2^-100 .. 2^100``) is first rescaled exactly by powers of two and the norm multiplied
+    back (``b c sqrt(a)``, :mod:`plantcore.reduction.power_of_two_scaling`), so a model with
+    entries near ``1e155`` gets its finite norm (about ``1e232``) rather than ``inf``.
 
     References
     ----------
@@ -1010,18 +1103,28 @@ def h2_norm(model) -> float:
         return 0.0
     if not discrete and np.any(model.D != 0):
         return math.inf
+    # far from unit scale, the norm of an exactly rescaled model is multiplied back exactly
+    scaling = model_scaling(model)
+    if not scaling.is_identity:
+        return scaling.restore_h2(_h2_norm_of(scaling.apply(model)))
+    return _h2_norm_of(model)
+
+
+def _h2_norm_of(model: StateSpaceModel) -> float:
+    """:func:`h2_norm` of a model of moderate scale (continuous time: ``D = 0``)."""
+    discrete = model.is_discrete
     A, B, C, D = _equilibrated(model)
     gramian = _SchurGramian(A, B, C, discrete)
     if not gramian.stable():
         from plantcore.structure.minimal import minimal_realization
 
-        origin_scale = float(np.linalg.norm(A))
+        origin_scale = frobenius(A)
         model = minimal_realization(model).model
         A, B, C, D = _equilibrated(model)
         gramian = _SchurGramian(A, B, C, discrete)
         if not gramian.stable(origin_scale):
             return math.inf
-    d_part = float(np.linalg.norm(D)) if discrete else 0.0
+    d_part = frobenius(D) if discrete else 0.0
     return math.hypot(d_part, gramian.output_energy_root())
 
 
@@ -1151,7 +1254,7 @@ class _SchurGramian:
         if self.n == 0:
             return True
         lam = self.poles
-        scale = max(float(np.linalg.norm(self.A)), pole_scale)
+        scale = max(frobenius(self.A), pole_scale)
         if self.discrete:
             return bool(np.all(np.abs(lam) < 1.0 - BOUNDARY_FACTOR * _EPS * max(1.0, scale)))
         return bool(np.all(lam.real < -BOUNDARY_FACTOR * _EPS * scale))
@@ -1164,7 +1267,7 @@ class _SchurGramian:
         # B and C enter linearly: normalise them so that the Gramian is computed on data of
         # unit size and the magnitudes are put back outside the square root (no overflow or
         # underflow for entries near 1e+-150).
-        b_size, c_size = float(np.linalg.norm(B)), float(np.linalg.norm(C))
+        b_size, c_size = frobenius(B), frobenius(C)
         if b_size == 0.0 or c_size == 0.0:
             return 0.0
         T, Z = self.T, self.Z
@@ -1186,8 +1289,8 @@ class _SchurGramian:
             X = Xr[::-1, ::-1]
         X = 0.5 * (X + X.T)
         opT = T if use_controllability else T.T
-        residual = np.linalg.norm(opT @ X + X @ opT.T + R)
-        size = 2 * np.linalg.norm(T) * np.linalg.norm(X) + np.linalg.norm(R)
+        residual = frobenius(opT @ X + X @ opT.T + R)
+        size = 2 * frobenius(T) * frobenius(X) + frobenius(R)
         if info != 0 or (size > 0 and residual > 1e-8 * size):
             warnings.warn(
                 f"the Lyapunov equation for the H2 norm was solved with relative residual "

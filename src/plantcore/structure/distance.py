@@ -8,11 +8,14 @@ for the method, its references and how it can fail.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass, field
 
 import numpy as np
 
+from plantcore.core.model import as_model
+from plantcore.core.safe_norms import frobenius
 from plantcore.structure.kalman import _prepare
 from plantcore.structure.modes import _CLUSTER_FACTOR, _EPS, _clustered_eigenvalues, _upper
 from plantcore.structure.pbh_measures import PBHMeasures, one_blas_thread
@@ -92,7 +95,11 @@ class _Search:
     With ``measures`` (large models), the points are measured on the Schur form held there,
     ``[A - λI, X]`` (side ``"c"``, ``A`` the state matrix) or ``[A^T - λI, X^T]`` read as
     ``[A_0 - λI; X]`` (side ``"o"``, ``A = A_0^T``); ``state`` keeps the last vector as the
-    start of the next measure."""
+    start of the next measure.  The search runs on the problem divided by ``unit``, an exact
+    power of two near the model's scale, so that ``sigma^2`` and the squared singular values
+    of the Hessian never overflow or underflow (models with entries near ``1e+-155``); the
+    measures on the Schur form, made on the undivided ``A``, are taken at ``unit λ`` and
+    divided by ``unit``."""
 
     A: np.ndarray         # (n, n) real
     M: np.ndarray         # (n, w) real
@@ -102,6 +109,7 @@ class _Search:
     X: np.ndarray | None = None
     side: str = "c"
     state: dict = field(default_factory=dict)
+    unit: float = 1.0     # A, M, start and radius are the problem's divided by this power of 2
 
 
 class _Evaluation:
@@ -202,10 +210,11 @@ def _evaluate_on_schur(searches: list[_Search], idx: np.ndarray, lam: np.ndarray
     for row, (j, point) in enumerate(zip(idx, lam)):
         search = searches[j]
         value, vector, state = search.measures.smallest_with_vector(
-            search.X, point, search.side, start=search.state.get("z"), rtol=_SEARCH_RTOL)
+            search.X, point * search.unit, search.side, start=search.state.get("z"),
+            rtol=_SEARCH_RTOL)
         search.state["z"] = state
         u = vector if search.side == "c" else np.conj(vector)
-        sigma[row] = value
+        sigma[row] = value / search.unit
         rho[row] = np.vdot(u, search.A @ u)
         hessians[row] = _secant_hessian(search.state, complex(point), 2.0 * (point - rho[row]))
     ev = object.__new__(_Evaluation)
@@ -229,7 +238,7 @@ def _secant_hessian(state: dict, point: complex, gradient: complex) -> np.ndarra
         sy = float(s @ y)
         Hs = H @ s
         sHs = float(s @ Hs)
-        if sy > 1e-12 * np.linalg.norm(s) * np.linalg.norm(y) and sHs > 0:
+        if sy > 1e-12 * frobenius(s) * frobenius(y) and sHs > 0:
             H = H - np.outer(Hs, Hs) / sHs + np.outer(y, y) / sy
     state["H"], state["x"], state["g"] = H, point, gradient
     return H
@@ -329,6 +338,11 @@ def _descend(searches: list[_Search]) -> list[tuple[float, complex]]:
     return [(float(sigma[j]), complex(lam[j])) for j in range(k)]
 
 
+def _power_of_two_near(x: float) -> float:
+    """``2^e`` with ``x = f 2^e``, ``0.5 <= f < 1`` (1.0 for 0 or a non-finite ``x``)."""
+    return math.ldexp(1.0, math.frexp(x)[1]) if x > 0 and math.isfinite(x) else 1.0
+
+
 def _scored_starts(measure, values, known) -> list[tuple[float, complex]]:
     """``(sigma_min, λ)`` at the distinct eigenvalues (upper half-plane), least first;
     ``measure`` maps a list of points to ``sigma_min`` at each."""
@@ -385,13 +399,18 @@ def _distances_of(problems) -> list[DistanceEstimate]:
             prepared.append(None)
             continue
         tried = [t for t in scored if t[0] <= _START_FACTOR * best_value][:_MAX_STARTS]
-        freq = float(np.linalg.norm(A)) / max(1, n)
+        # the searches run on the problem divided by an exact power of two near its scale
+        norm_A = frobenius(A)
+        unit = _power_of_two_near(scale if scale > 0 else norm_A)
+        A_u, M_u = A / unit, M / unit
+        freq = norm_A / unit / max(1, n)
         for _, lam in tried:
-            radius = 0.05 * max(abs(lam), 0.1 * freq, 1e-300)
+            lam_u = complex(lam) / unit
+            radius = 0.05 * max(abs(lam_u), 0.1 * freq, 1e-300)
             if on_schur is None:
-                searches.append(_Search(A, M, lam, radius))
+                searches.append(_Search(A_u, M_u, lam_u, radius, unit=unit))
             else:
-                searches.append(_Search(A, M, lam, radius, *on_schur))
+                searches.append(_Search(A_u, M_u, lam_u, radius, *on_schur, unit=unit))
             owners.append(i)
         prepared.append((scale, kind, len(scored), len(tried), best_value, best_at,
                          on_schur is not None))
@@ -400,7 +419,8 @@ def _distances_of(problems) -> list[DistanceEstimate]:
         # (large models) per iteration: faster on one BLAS thread
         with one_blas_thread():
             found = _descend(searches)
-        for i, (value, at) in zip(owners, found):
+        for (i, (value, at)), search in zip(zip(owners, found), searches):
+            value, at = value * search.unit, at * search.unit
             scale, kind, n_scored, n_tried, best_value, best_at, large = prepared[i]
             if value < best_value:
                 best_value, best_at = value, at
@@ -462,7 +482,7 @@ def _distances(p, modes=None, whole=None) -> tuple[DistanceEstimate, DistanceEst
         known_o = [(m.observability_margin, m.value) for m in (uno or modes)]
         values = None
     else:
-        nA = float(np.linalg.norm(p.A))
+        nA = frobenius(p.A)
         values = _clustered_eigenvalues(p.A, _CLUSTER_FACTOR * nA)
     # one Schur form of A serves both sides: [A^T - λI, C^T] is the transpose of
     # [A - λI; C], with the same singular values
@@ -552,8 +572,22 @@ def distance_to_uncontrollability(model) -> DistanceEstimate:
     >>> d.value < 1e-15
     True
     """
-    p = _prepare(model, None)
-    return _distances(p)[0]
+    return _distance_of_model(model, 0)
+
+
+def _distance_of_model(model, which: int) -> DistanceEstimate:
+    """One of the two estimates of a model, computed on the model divided by an exact power
+    of two near ``||A||_F`` (its relative value is unchanged, ``at`` is multiplied back), so
+    that no square overflows or underflows for entries near ``1e+-155`` or beyond."""
+    model = as_model(model)
+    unit = _power_of_two_near(frobenius(model.A))
+    if unit != 1.0:
+        model = model.replace(A=model.A / unit, B=model.B / unit, C=model.C / unit,
+                              D=model.D / unit)
+    estimate = _distances(_prepare(model, None))[which]
+    if unit == 1.0 or estimate.at is None:
+        return estimate
+    return dataclasses.replace(estimate, at=complex(estimate.at) * unit)
 
 
 def distance_to_unobservability(model) -> DistanceEstimate:
@@ -570,5 +604,4 @@ def distance_to_unobservability(model) -> DistanceEstimate:
     >>> 0.0 < d.value <= 1.0
     True
     """
-    p = _prepare(model, None)
-    return _distances(p)[1]
+    return _distance_of_model(model, 1)
