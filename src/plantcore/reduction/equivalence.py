@@ -744,6 +744,7 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
     attainable = _relative(decided_at.attainable, reference) if decided_at else math.nan
     decision_frequency = decided_at.frequency if decided_at else (
         peak_frequency if boundary_pole else math.nan)
+    numeric_start = len(reasons)
     reasons += _verdict_reasons(verdict, basis, decided_at, reference, tol, attainable,
                                 relative_error, order, markov_error, discrete, dt)
 
@@ -764,13 +765,9 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
                 f"In exact rational arithmetic the transfer matrices differ in {len(differing)} "
                 f"of {ma.n_outputs * ma.n_inputs} entries, first from input "
                 f"{ma.inputs[j]!r} to output {ma.outputs[i]!r}.")
-        numeric = verdict
         verdict = "equivalent" if exact_equal else "not equivalent"
         basis = criterion = "exact rational arithmetic"
-        if numeric != verdict:
-            reasons.append(
-                f"The floating-point comparison (relative peak error {short_number(relative_error)}) "
-                f"would have said {numeric}; the exact comparison decides.")
+        reasons[:] = _superseded_by_exact(reasons, numeric_start, exact_equal)
         if exact_equal:
             peak_error, relative_error, peak_frequency = 0.0, 0.0, math.nan
             peak_method = "proven 0 by exact rational arithmetic"
@@ -793,6 +790,39 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
         verdict=verdict, verdict_basis=basis, attainable_accuracy=float(attainable),
         decision_frequency=float(decision_frequency), difference_order_method=order_method,
         peak_error_method=peak_method, frequency_checks=checks)
+
+
+#: How the floating-point verdict sentences begin (see :func:`_verdict_reasons`).
+_NUMERIC_VERDICTS = ("Equivalent to the attainable accuracy", "Not equivalent", "Undecided",
+                     "Equivalent")
+
+
+def _superseded_by_exact(reasons, numeric_start: int, exact_equal: bool) -> list:
+    """The reasons with the floating-point verdict marked as superseded by the exact one.
+
+    With ``exact=True`` the exact comparison decides; the floating-point sentences stay (they
+    say what was measured) but no longer read as a verdict of their own, so the reasons
+    cannot say "Equivalent" and "Not equivalent" side by side.  An order-0 difference that
+    the exact comparison contradicts is qualified in the same way.
+    """
+    out = list(reasons)
+    for k in range(numeric_start, len(out)):
+        line = out[k]
+        for prefix in _NUMERIC_VERDICTS:
+            if line.startswith(prefix):
+                phrase = prefix[0].lower() + prefix[1:]
+                rest = line[len(prefix):]
+                rest = ", since" + rest[1:] if rest.startswith(":") else rest
+                out[k] = ("Superseded by the exact comparison: floating point alone would say "
+                          f"{phrase}{rest}")
+                break
+    if not exact_equal:
+        for k, line in enumerate(out[:numeric_start]):
+            if line.startswith("A minimal realization of the difference A - B has order 0"):
+                out[k] = ("A minimal realization of the difference A - B has order 0 at the "
+                          "rank tolerance: in floating point the dynamics agree to that "
+                          "tolerance; the exact comparison below finds a difference.")
+    return out
 
 
 def _limit(reference: float, checks) -> float:

@@ -451,8 +451,13 @@ def certificate_text(cert, *, caution: bool = True, labels=None) -> str:
             lines.append(f"  Attainable accuracy:   {short_number(cert.attainable_accuracy)} "
                          f"relative, at {at} (first-order rounding bound of evaluating and "
                          "storing both models; Higham 2002)")
+        order_note = ""
+        if (cert.criterion == "exact rational arithmetic" and not cert.equivalent
+                and cert.difference_order == 0):
+            order_note = " at the rank tolerance; the exact comparison finds a difference"
         lines.append(f"  Order of difference:   {cert.difference_order} "
-                     f"({cert.difference_order_method or 'minimal realization of A - B'})")
+                     f"({cert.difference_order_method or 'minimal realization of A - B'}"
+                     f"{order_note})")
         if cert.peak_error > 0 and cert.difference_order == 0 and cert.d_error > 0:
             where = " (a constant: the same at every frequency)"
         elif cert.peak_error > 0:
