@@ -5,7 +5,8 @@ installed by ``.ci/run``), driven by Selenium; nothing is downloaded at test tim
 person sees is checked: every image loaded and drawn with a non-empty size, tables present,
 no horizontal overflow at 1,280 and 800 px, every contents link landing on its section, a
 collapsed table that opens when its summary is clicked, no console errors, and in print
-media the contents bar hidden and no figure split from its caption.
+media the contents bar hidden and no figure split from its caption.  The pages: the demo
+model's report, a 42-mode report, an audit report and a sweep folder's ``index.html``.
 
 The module is skipped, with the reason, only where no Chromium or driver is installed; CI
 sets ``PLANTCORE_REQUIRE_BROWSER=1`` and then a missing browser is a failure.  The checks
@@ -88,6 +89,16 @@ def pages(tmp_path_factory):
     path = folder / "audit.html"
     path.write_text(audit_html(audit, source="survey-boat run 3"), encoding="utf-8")
     out["audit"] = path
+    from plantcore.reports.sweep_folder import write_sweep_folder
+
+    def two_tanks(point):   # a coupling that vanishes at c = 0: the structure changes there
+        c = point["coupling"]
+        return ([[-point["leak"], c], [0.0, -2.0]], [[0.0], [1.0]], [[1.0, 0.0]])
+
+    result = pc.sweep(two_tanks, pc.grid(leak=[0.5, 1.0, 2.0], coupling=[0.0, 0.5, 1.0]),
+                      executor="serial")
+    write_sweep_folder(result, folder / "sweep")
+    out["sweep"] = folder / "sweep" / "index.html"
     return out
 
 
@@ -111,7 +122,7 @@ return Array.from(document.images).map(img => {
 
 
 @pytest.mark.parametrize("width", [1280, 800])
-@pytest.mark.parametrize("key", ["thermal", "many", "audit"])
+@pytest.mark.parametrize("key", ["thermal", "many", "audit", "sweep"])
 def test_page_fits_and_every_image_is_drawn(browser, pages, key, width):
     _open(browser, pages[key], width)
     overflow = browser.execute_script(
@@ -127,11 +138,13 @@ def test_page_fits_and_every_image_is_drawn(browser, pages, key, width):
 
 
 @pytest.mark.parametrize("width", [1280, 800])
-def test_every_contents_link_lands_on_its_section(browser, pages, width):
-    _open(browser, pages["thermal"], width)
+@pytest.mark.parametrize(("key", "count"), [("thermal", 10), ("sweep", 6)])
+def test_every_contents_link_lands_on_its_section(browser, pages, width, key, count):
+    _open(browser, pages[key], width)
     links = browser.execute_script(
         "return Array.from(document.querySelectorAll('nav.contents a')).map(a => a.getAttribute('href'))")
-    assert len(links) == 10
+    # the sweep: findings, where the structure changes, plots, weakest points, files, caution
+    assert len(links) == count
     for href in links:
         browser.execute_script("window.scrollTo(0, 0)")
         link = browser.find_element("css selector", f"nav.contents a[href='{href}']")
@@ -174,7 +187,7 @@ def test_open_details_show_their_tables(browser, pages):
     assert sizes and all(seen and h > 0 for seen, h in sizes)
 
 
-@pytest.mark.parametrize("key", ["thermal", "audit"])
+@pytest.mark.parametrize("key", ["thermal", "audit", "sweep"])
 def test_print_hides_the_contents_and_keeps_figures_with_captions(browser, pages, key):
     _open(browser, pages[key], 1280)
     browser.execute_cdp_cmd("Emulation.setEmulatedMedia", {"media": "print"})
@@ -188,3 +201,13 @@ def test_print_hides_the_contents_and_keeps_figures_with_captions(browser, pages
         browser.execute_cdp_cmd("Emulation.setEmulatedMedia", {"media": ""})
     assert nav == "none"
     assert figures and all(b == "avoid" and cap for b, cap in figures), figures
+
+
+def test_sweep_index_links_the_files_of_its_folder(browser, pages):
+    _open(browser, pages["sweep"], 1280)
+    links = browser.execute_script(
+        "return Array.from(document.querySelectorAll('section#files a'))"
+        ".map(a => a.getAttribute('href'))")
+    folder = pages["sweep"].parent
+    assert "table.csv" in links and "summary.md" in links
+    assert all((folder / name).is_file() for name in links), links

@@ -18,6 +18,11 @@ one, the :class:`plantcore.sweeps.spec.SweepSpec` it came from) and formats it.
 ``summary.md``
     What was swept, the findings, where the structure changes, the weakest points, the
     failed points and the caution that goes with every plantcore report.
+``index.html``
+    The same summary as a page in the style of the model report
+    (:mod:`plantcore.reports.style`): a contents bar, the findings and tables, the two plots
+    with their captions, links to the other files, and the caution.  It needs no network
+    and shows the plots from the folder, so keep the folder together.
 
 The folder is first written under a temporary name next to it and then renamed, so it
 appears complete or not at all.  An existing, non-empty folder is refused (nothing in it is
@@ -39,9 +44,11 @@ import numpy as np
 
 from plantcore.core.wording import SAFETY_CAUTION
 
-__all__ = ["OUTPUT_FILES", "check_output_folder", "plot_sweep_map", "summary_markdown", "write_sweep_folder"]
+__all__ = ["OUTPUT_FILES", "check_output_folder", "plot_sweep_map", "summary_html",
+           "summary_markdown", "write_sweep_folder"]
 
-OUTPUT_FILES = ("table.csv", "table.parquet", "margins.png", "structure.png", "summary.md")
+OUTPUT_FILES = ("table.csv", "table.parquet", "margins.png", "structure.png", "summary.md",
+                "index.html")
 
 _LOG_FLOOR = 1e-17          # margins are drawn on a log axis; exact zeros are drawn here
 _WORST_LISTED = 10
@@ -105,9 +112,10 @@ def write_sweep_folder(result, folder, *, spec=None) -> list[Path]:
         plots = _plots(result, staging)
         names.extend(plots)
         plot_note = None if plots else "No plots: no point could be analyzed."
-        names.append("summary.md")
+        names.extend(["summary.md", "index.html"])
         text = summary_markdown(result, spec=spec, files=names, notes=[parquet_note, plot_note])
         (staging / "summary.md").write_text(text, encoding="utf-8")
+        (staging / "index.html").write_text(summary_html(text, plots=plots), encoding="utf-8")
         check_output_folder(target)  # still new or empty after the sweep ran
         if target.is_dir():
             target.rmdir()
@@ -127,6 +135,14 @@ def _is_number(value) -> bool:
 def _numeric_parameters(result) -> list[str]:
     return [p for p in result.parameters
             if all(_is_number(row[p]) for row in result.rows)]
+
+
+def _relative_shown(value):
+    """A margin or distance (relative to the model's scale) as text shows it: 0 at rounding
+    level (:func:`plantcore.core.wording.shown_value`); the CSV keeps the raw value."""
+    from plantcore.core.wording import shown_value
+
+    return value if value is None else shown_value(value)
 
 
 def _fmt(value) -> str:
@@ -231,7 +247,8 @@ def summary_markdown(result, *, spec=None, files=(), notes=()) -> str:
             candidates = [row for row in ok if row[column] is not None]
             if candidates:
                 worst = min(candidates, key=lambda r: r[column])
-                lines.append(f"- {what}: {_fmt(worst[column])} at {_point_text(result, worst)}.")
+                lines.append(f"- {what}: {_fmt(_relative_shown(worst[column]))} at "
+                             f"{_point_text(result, worst)}.")
         if result.reduced_order is not None:
             candidates = [row for row in ok if row["reduced_peak_error"] is not None]
             if candidates:
@@ -260,9 +277,9 @@ def summary_markdown(result, *, spec=None, files=(), notes=()) -> str:
         for row in sorted(ok, key=_weakest_margin)[:_WORST_LISTED]:
             cells = [_fmt(row[p]) for p in result.parameters] + [
                 _fmt(row["minimal_order"]), _fmt(row["stabilizable"]), _fmt(row["detectable"]),
-                _fmt(row["smallest_controllability_margin"]),
-                _fmt(row["smallest_observability_margin"]),
-                _fmt(row["distance_to_uncontrollability"])]
+                _fmt(_relative_shown(row["smallest_controllability_margin"])),
+                _fmt(_relative_shown(row["smallest_observability_margin"])),
+                _fmt(_relative_shown(row["distance_to_uncontrollability"]))]
             lines.append("| " + " | ".join(cells) + " |")
         lines.append("")
         lines.append("Margins are the smallest singular values of [A - λI, B] and [A - λI; C] "
@@ -293,6 +310,140 @@ def summary_markdown(result, *, spec=None, files=(), notes=()) -> str:
     lines.append(SAFETY_CAUTION)
     lines.append("")
     return "\n".join(lines)
+
+
+# --- the index page -----------------------------------------------------------------------------
+
+_PLOT_CAPTIONS = {
+    "margins.png": ("Smallest PBH margins and distance estimates over the parameters",
+                    ("Smallest controllability and observability margins (PBH) and the distance "
+                    "estimates at every point, on a log axis; exact zeros are drawn at the "
+                    "bottom of the axis.")),
+    "structure.png": ("Kalman part sizes or minimal order, and the verdicts",
+                      ("Minimal order (or the four Kalman part sizes over one parameter) and "
+                      "where the model is stabilizable and detectable; failed points in grey.")),
+}
+
+
+def _slug(title: str, taken: set) -> str:
+    base = "".join(ch if ch.isalnum() else "-" for ch in title.lower()).strip("-")
+    base = "-".join(part for part in base.split("-") if part) or "section"
+    sid, k = base, 2
+    while sid in taken:
+        sid, k = f"{base}-{k}", k + 1
+    taken.add(sid)
+    return sid
+
+
+def _inline(text: str) -> str:
+    """Escaped text with our markdown's inline code (```name```) as ``<code>``."""
+    from plantcore.reports.style import escape
+
+    pieces = text.split("`")
+    return "".join(f"<code>{escape(piece)}</code>" if k % 2 else escape(piece)
+                   for k, piece in enumerate(pieces))
+
+
+def _cells(line: str) -> list:
+    return [cell.strip() for cell in line.strip().strip("|").split("|")]
+
+
+def _html_blocks(lines: list) -> str:
+    """Our summary's markdown (paragraphs, ``- `` lists, ``|`` tables) as HTML."""
+    out, k = [], 0
+    while k < len(lines):
+        line = lines[k]
+        if not line.strip():
+            k += 1
+        elif line.startswith("|"):
+            block = []
+            while k < len(lines) and lines[k].startswith("|"):
+                block.append(lines[k])
+                k += 1
+            head = _cells(block[0])
+            body = [_cells(row) for row in block[2:]]
+            rows = "".join("<tr>" + "".join(f"<td>{_inline(c)}</td>" for c in row) + "</tr>"
+                           for row in body)
+            out.append('<div class="table-wrap"><table><thead><tr>'
+                       + "".join(f"<th>{_inline(c)}</th>" for c in head)
+                       + f"</tr></thead><tbody>{rows}</tbody></table></div>")
+        elif line.startswith("- "):
+            items = []
+            while k < len(lines) and lines[k].startswith("- "):
+                items.append(f"<li>{_inline(lines[k][2:])}</li>")
+                k += 1
+            out.append("<ul>" + "".join(items) + "</ul>")
+        else:
+            para = []
+            while k < len(lines) and lines[k].strip() and not lines[k].startswith(("|", "- ")):
+                para.append(lines[k])
+                k += 1
+            out.append(f"<p>{_inline(' '.join(para))}</p>")
+    return "\n".join(out)
+
+
+def summary_html(summary: str, *, plots=()) -> str:
+    """The sweep's ``index.html``: the summary (:func:`summary_markdown`) as a page in the
+    model report's style, with the plots of the folder and a contents bar.
+
+    Display only: the page is built from the summary text and the names of the plot files,
+    so it says exactly what ``summary.md`` says.
+
+    Examples
+    --------
+    >>> page = summary_html("# Envelope sweep: tank\\n\\n2 points.\\n\\n## Findings\\n\\n- a `x`\\n")
+    >>> '<nav class="contents"' in page and '<code>x</code>' in page
+    True
+    """
+    from plantcore.reports.style import escape, html_page
+
+    lines = summary.splitlines()
+    title = "Envelope sweep"
+    if lines and lines[0].startswith("# "):
+        title = lines[0][2:].strip()
+        lines = lines[1:]
+    sections, current = [], ("", [])
+    for line in lines:
+        if line.startswith("## "):
+            sections.append(current)
+            current = (line[3:].strip(), [])
+        else:
+            current[1].append(line)
+    sections.append(current)
+    lead_lines = sections[0][1]
+    named = [s for s in sections[1:] if s[0]]
+    if plots:    # the plots go after the findings and the structure changes
+        where = next((i + 1 for i, (t, _) in enumerate(named)
+                      if t.startswith("Where the structure changes")), 1 if named else 0)
+        named.insert(where, ("Plots", None))
+    taken = {"caution"}
+    ids = ["caution" if t == "Caution" else _slug(t, taken) for t, _ in named]
+    nav = " ".join(f'<a href="#{sid}">{i + 1}&nbsp;{escape(t)}</a>'
+                   for i, (sid, (t, _)) in enumerate(zip(ids, named)))
+    body = [f'<header class="report-head"><h1>{escape(title)}</h1>'
+            + "".join(f"<p>{_inline(x)}</p>" for x in lead_lines if x.strip()
+                      and not x.startswith("|"))
+            + "</header>",
+            f'<nav class="contents" aria-label="contents">{nav}</nav>']
+    table = [x for x in lead_lines if x.startswith("|")]
+    if table:
+        body.append(_html_blocks(table))
+    for i, (sid, (t, content)) in enumerate(zip(ids, named)):
+        if content is None:
+            inner = "".join(
+                f'<figure><img src="{escape(name)}" alt="{escape(_PLOT_CAPTIONS[name][0])}">'
+                f"<figcaption>{escape(_PLOT_CAPTIONS[name][1])}</figcaption></figure>"
+                for name in plots if name in _PLOT_CAPTIONS)
+        elif t == "Files":
+            inner = "<ul>" + "".join(
+                f'<li><a href="{escape(x[3:-1])}"><code>{escape(x[3:-1])}</code></a></li>'
+                if x.startswith("- `") and x.endswith("`") else f"<li>{_inline(x[2:])}</li>"
+                for x in content if x.startswith("- ")) + "</ul>"
+        else:
+            inner = _html_blocks(content)
+        body.append(f'<section id="{sid}">\n<h2><span class="num">{i + 1}</span>'
+                    f"{escape(t)}</h2>\n{inner}\n</section>")
+    return html_page(title, "\n".join(body))
 
 
 def _structure_key(row):
