@@ -21,6 +21,7 @@ import math
 
 import numpy as np
 
+from plantcore.core.safe_norms import frobenius
 from plantcore.core.wording import counted, shown_eigenvalue
 
 __all__ = ["PART_LABELS", "eigenvalue_plot", "frequency_plot", "hankel_plot",
@@ -78,7 +79,7 @@ def plotted_eigenvalues(model, modes) -> np.ndarray:
     (:func:`plantcore.core.wording.shown_eigenvalue`), so a part at rounding level relative
     to ``||A||_F`` is drawn at exactly 0 (an integrator computed as ``2.7e-17`` sits on the
     imaginary axis and sets no scale)."""
-    scale = float(np.linalg.norm(model.A)) if model.n else 1.0
+    scale = frobenius(model.A) if model.n else 1.0
     return np.array([shown_eigenvalue(m.value, scale, discrete=model.is_discrete)
                      for m in modes], dtype=complex)
 

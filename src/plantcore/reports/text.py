@@ -8,8 +8,7 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
-
+from plantcore.core.safe_norms import frobenius
 from plantcore.core.wording import (
     SAFETY_CAUTION,
     counted,
@@ -70,7 +69,7 @@ def _hankel_note(note: str) -> str:
 
 def _scale(a) -> float:
     """The scale eigenvalues are shown against (``||A||_F``; see ``shown_eigenvalue``)."""
-    return float(np.linalg.norm(a.model.A)) if a.model.n else 1.0
+    return frobenius(a.model.A) if a.model.n else 1.0
 
 
 def _eig(value, digits: int = 4, scale: float | None = None, discrete: bool = False) -> str:
