@@ -155,3 +155,29 @@ def test_existing_output_kept_unless_force(tmp_path, capsys):
     _one_line_error(capsys, "model.txt", "suffix")
     assert main(["realize", str(data), "-o", str(data), "--force"]) == 2
     _one_line_error(capsys, "pulse.npz")
+
+
+@pytest.mark.parametrize("noise, confident", [(1e-5, True), (1e-2, False)])
+def test_noisy_data_confident_only_with_a_large_gap(tmp_path, capsys, noise, confident):
+    # The drive's pulse response (largest sample about 4) with white noise of 1e-5 (weakest
+    # Hankel value some 1e4 x the floor: confident) or 1e-2 (within a factor 100: a warning
+    # that says why).
+    model = _drive()
+    exact = markov_parameters(model, 120).values
+    rng = np.random.default_rng(31)
+    values = exact + noise * rng.standard_normal(exact.shape) * (np.arange(120) > 0)[:, None, None]
+    data = tmp_path / "pulse.npz"
+    save_impulse_response(data, values, sample_time=0.01)
+    out = tmp_path / "drive.toml"
+    assert main(["realize", str(data), "-o", str(out)]) == 0
+    text = capsys.readouterr().out
+    assert "order: 3" in text
+    if confident:
+        assert "warning" not in text and "confident" in text
+    else:
+        assert "warning: the order depends on the floor (the weakest kept value" in text
+    assert main(["realize", str(data), "-o", str(tmp_path / "again.toml"), "--format",
+                 "json"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    assert report["fragile"] is (not confident) and report["window_orders"][0][0] == 120
+    assert 0.5 < report["plateau_ratio"] < 2.0

@@ -5,7 +5,12 @@ import pytest
 import scipy.linalg
 
 import plantcore as pc
-from plantcore.reduction.impulse_realization import _block_hankel, realize_impulse_response
+from plantcore.reduction.impulse_realization import (
+    _block_hankel,
+    _hankel_shape,
+    _noise_spectra,
+    realize_impulse_response,
+)
 from plantcore.reduction.markov import markov_parameters
 
 
@@ -74,8 +79,11 @@ def test_noisy_data_order_gap_and_noise_estimate():
     assert s[3] > fit.noise_floor > s[4]
     assert fit.gap == pytest.approx(s[3] / s[4]) and fit.gap > 3
     assert fit.signal_margin == pytest.approx(s[3] / fit.noise_floor)
-    # The dropped values are the noise plateau just below the floor: fragile, as documented.
-    assert fit.fragile and fit.decision.fragile
+    # The weakest kept value stands only 10-30 x above the floor: fragile, and the decision
+    # says why (confident from 100 x, the package's fragility factor).
+    assert 10 < fit.signal_margin < 100
+    assert fit.fragile and "weakest kept value" in fit.decision.window_outcome
+    assert 0.5 < fit.plateau_ratio < 1.5
     q, r = fit.block_rows, fit.block_columns
     exact_s = scipy.linalg.svdvals(_block_hankel(exact, q, r))
     e_norm = np.linalg.norm(_block_hankel(noise, q, r), 2)
@@ -151,3 +159,83 @@ def test_seeded_slice_of_the_noisy_study():
         assert fit.order <= n
         assert fit.order == n or fit.fragile
         assert fit.order == n
+
+
+def _noisy(rng, model, ratio, samples=200):
+    """Pulse response plus white noise whose typical Hankel norm lies ``ratio`` times below
+    the weakest noise-free Hankel singular value (as in
+    benchmarks/impulse_order_confidence_study.py)."""
+    exact = markov_parameters(model, samples).values
+    q, r = _hankel_shape(samples - 1)
+    clean = scipy.linalg.svdvals(_block_hankel(exact, q, r))
+    unit = _noise_spectra(samples - 1, model.n_outputs, model.n_inputs, q, r)[:, 0].mean()
+    sigma = clean[model.n - 1] / (ratio * unit)
+    noise = sigma * rng.standard_normal(exact.shape)
+    noise[0] = 0.0
+    return exact + noise, sigma
+
+
+def test_confidence_follows_the_gap_against_the_noise():
+    # Seeded slice of benchmarks/impulse_order_confidence_study.py: with the weakest state
+    # 3e3 x above the noise norm the order is right and confident; with it 3-20 x above, the
+    # order is right but fragile (margin below 100).  Never too high, never wrong unflagged.
+    rng = np.random.default_rng(2028)
+    for ratio, confident in ((3e3, True), (3e3, True), (3e3, True), (3.0, False), (20.0, False),
+                             (8.0, False)):
+        n = int(rng.integers(2, 9))
+        model = _modal(rng, n, int(rng.integers(1, 4)), int(rng.integers(1, 4)))
+        data, _ = _noisy(rng, model, ratio)
+        fit = realize_impulse_response(data, sample_time=1.0)
+        assert fit.order == n
+        assert fit.fragile is (not confident), (ratio, fit.signal_margin, fit.notes)
+        if confident:
+            assert fit.signal_margin >= 100 and fit.decision.window_outcome == ""
+
+
+def test_overstated_noise_level_is_flagged():
+    # A given noise level 30 x the true one: the dropped values lie far below what such
+    # noise makes (plateau_ratio ~ 1/30), so states between them and the floor could be lost.
+    rng = np.random.default_rng(2029)
+    model = _modal(rng, 4, 2, 2)
+    data, sigma = _noisy(rng, model, 3e4)
+    honest = realize_impulse_response(data, sample_time=1.0, noise_level=sigma)
+    assert honest.order == 4 and not honest.fragile
+    overstated = realize_impulse_response(data, sample_time=1.0, noise_level=30 * sigma)
+    assert overstated.plateau_ratio < 0.1
+    assert overstated.fragile and "overstates the noise" in overstated.decision.window_outcome
+
+
+def test_a_shorter_window_shows_a_fast_mode_the_whole_record_hides():
+    # A slow mode (0.98) and a fast one (0.5) over 600 samples with noise 0.05: after about
+    # 20 samples the fast mode has decayed into the noise, while the noise norm of the full
+    # Hankel matrix keeps growing like sqrt(samples); the full record shows one state above
+    # its floor, a shorter window both (Weyl's inequality, from memory).
+    model = pc.StateSpaceModel(np.diag([0.98, 0.5]), [[1.0], [1.0]], [[1.0, 1.0]], dt=1.0)
+    exact = markov_parameters(model, 600).values
+    noise = 0.05 * np.random.default_rng(3).standard_normal(exact.shape)
+    noise[0] = 0.0
+    fit = realize_impulse_response(exact + noise, sample_time=1.0, noise_level=0.05)
+    assert fit.window_orders[0] == (600, 1)
+    assert fit.order == 2 and fit.window_samples < 600
+    assert fit.block_rows + fit.block_columns == fit.window_samples
+    assert any("samples show 2 states" in note for note in fit.notes)
+    np.testing.assert_allclose(np.sort(np.linalg.eigvals(fit.model.A).real), [0.5, 0.98],
+                               atol=0.1)
+    assert fit.fragile  # the fast mode stands only just above the short window's floor
+    whole = realize_impulse_response(exact + noise, sample_time=1.0, noise_level=0.05,
+                                     order=2)
+    assert whole.model.n == 2
+
+
+def test_state_hidden_below_the_noise_is_not_seen():
+    # The documented limit: a state whose noise-free Hankel value is 0.05 of the noise norm
+    # cannot be told from noise (Weyl), so the data support one state fewer, confidently.
+    rng = np.random.default_rng(2030)
+    base = _modal(rng, 3, 1, 1)
+    data, sigma = _noisy(rng, base, 3e3)
+    q, r = _hankel_shape(199)
+    extra = markov_parameters(pc.StateSpaceModel([[0.7]], [[1.0]], [[1.0]], dt=1.0), 200).values
+    own = scipy.linalg.svdvals(_block_hankel(extra, q, r))[0]
+    unit = _noise_spectra(199, 1, 1, q, r)[:, 0].mean()
+    fit = realize_impulse_response(data + extra * (0.05 * sigma * unit / own), sample_time=1.0)
+    assert fit.order == 3 and not fit.fragile

@@ -117,6 +117,9 @@ def _as_dict(fit, args) -> dict:
         "saturated": fit.saturated,
         "block_rows": fit.block_rows,
         "block_columns": fit.block_columns,
+        "window_samples": fit.window_samples,
+        "window_orders": [list(pair) for pair in fit.window_orders],
+        "plateau_ratio": _number(fit.plateau_ratio),
         "time_scale": float(fit.time_scale),
         "reproduction_error": float(fit.reproduction_error),
         "reproduction_rms": float(fit.reproduction_rms),
@@ -125,9 +128,23 @@ def _as_dict(fit, args) -> dict:
     }
 
 
+def _decision_line(d) -> str:
+    """The decision's own line; against a noise floor, the noise test's verdict instead of
+    the rounding window's wording."""
+    if d.window_outcome is None:
+        return d.describe()
+    kept = "none" if not math.isfinite(d.smallest_kept) else f"{d.smallest_kept:.3g}"
+    verdict = (f"FRAGILE ({d.window_outcome})" if d.window_outcome else
+               "confident: the weakest kept value stands 100 x or more above the noise floor "
+               "and the dropped values are the noise plateau")
+    return (f"{d.label}: rank {d.rank} of {d.size}; smallest kept {kept}, largest dropped "
+            f"{d.largest_dropped:.3g}, noise floor {d.tolerance:.3g} (relative to the largest); "
+            f"{verdict}")
+
+
 def _as_text(fit, args) -> str:
     model = fit.model
-    samples = fit.block_rows + fit.block_columns
+    samples = fit.window_orders[0][0] if fit.window_orders else fit.window_samples
     domain = (f"discrete time, sample time {model.dt:g} s" if model.is_discrete
               else "continuous time (data read as expansion coefficients)")
     shown = ", ".join(f"{x:.4g}" for x in fit.hankel_singular_values[:min(fit.order + 5, 40)])
@@ -135,7 +152,9 @@ def _as_text(fit, args) -> str:
     lines = [
         (f"impulse-response realization of {args.data}: {samples} samples, "
         f"{model.n_outputs} outputs x {model.n_inputs} inputs, {domain}"),
-        f"Hankel matrix: {fit.block_rows} x {fit.block_columns} blocks; singular values: {shown}"
+        (f"Hankel matrix: {fit.block_rows} x {fit.block_columns} blocks"
+         + ("" if fit.window_samples == samples else f" (first {fit.window_samples} samples)")
+         + f"; singular values: {shown}")
         + (f" (+{more} more)" if more > 0 else ""),
         (f"floor: {fit.noise_floor:.4g} (noise level {fit.noise_level:.4g}, "
         f"{fit.noise_level_source})"),
@@ -143,14 +162,17 @@ def _as_text(fit, args) -> str:
                                  else f" (chosen; the data suggest {fit.automatic_order})"),
         (f"evidence: gap sigma_n / sigma_n+1 = {fit.gap:.4g}, "
         f"sigma_n / floor = {fit.signal_margin:.4g}"),
-        f"decision: {fit.decision.describe()}",
+        f"decision: {_decision_line(fit.decision)}",
         (f"fit to the data: relative error {fit.reproduction_error:.3g}, "
         f"rms deviation {fit.reproduction_rms:.3g}"),
     ]
     lines += [f"note: {note}" for note in fit.notes]
     if fit.fragile:
-        lines.append("warning: the order depends on the floor (a value lies within a factor 100 "
-                     "of it, or the data are too short); judge it by the gap and the margin.")
+        why = fit.decision.window_outcome or ("the data are too short to show the order"
+                                             if fit.saturated else "a kept or dropped value lies "
+                                             "within a factor 100 of the floor")
+        lines.append(f"warning: the order depends on the floor ({why}); judge it by the gap "
+                     "and the margin.")
     lines.append(f"model written to {args.output}")
     lines.append(SAFETY_CAUTION)
     return "\n".join(lines) + "\n"
