@@ -137,3 +137,51 @@ def test_eliminate_refusals():
     with pytest.raises(ValueError, match="singular.*no steady state"):
         eliminate_states(plant, ["integrator"])
     assert eliminate_states(plant, ["integrator"], method="truncate").model.n == 1
+
+
+@pytest.mark.parametrize("method", ["truncate", "residualize"])
+def test_eliminate_error_measure_closed_form_continuous(method):
+    # G(s) = 1/(s+1) + 1/(s+a) with decoupled states, eliminating the fast one (by hand):
+    # truncation leaves 1/(s+1), error 1/(s+a), peak 1/a at s = 0; residualization leaves
+    # 1/(s+1) + 1/a, error -s/(a (s+a)), |error(jw)| = w / (a sqrt(w^2 + a^2)) rising to 1/a
+    # as w -> infinity.  G's own peak is 1 + 1/a at s = 0.
+    a = 20.0
+    plant = pc.StateSpaceModel([[-1.0, 0.0], [0.0, -a]], [[1.0], [1.0]], [[1.0, 1.0]],
+                               states=["slow", "fast"])
+    cut = eliminate_states(plant, ["fast"], method=method)
+    assert cut.peak_error == pytest.approx(1.0 / a, rel=1e-8)
+    assert cut.peak_error <= cut.peak_error_bound <= cut.peak_error * (1 + 1e-6)
+    assert cut.relative_peak_error == pytest.approx((1.0 / a) / (1.0 + 1.0 / a), rel=1e-8)
+    if method == "truncate":
+        assert cut.peak_error_frequency == pytest.approx(0.0, abs=1e-6)
+    else:
+        assert cut.peak_error_frequency == np.inf
+
+
+def test_eliminate_error_measure_closed_form_discrete():
+    # G(z) = 1/(z-0.5) + 1/(z-0.1); residualizing the second state (x2 = u / 0.9) leaves the
+    # error (1 - z) / (0.9 (z - 0.1)), whose modulus on the unit circle rises from 0 at z = 1
+    # to 2 / (0.9 * 1.1) at z = -1 (by hand).  Truncation: error 1/(z - 0.1), peak 1/0.9 at z = 1.
+    plant = pc.StateSpaceModel(np.diag([0.5, 0.1]), [[1.0], [1.0]], [[1.0, 1.0]], dt=1.0,
+                               states=["slow", "fast"])
+    res = eliminate_states(plant, ["fast"])
+    assert res.peak_error == pytest.approx(2.0 / 0.99, rel=1e-8)
+    assert res.peak_error_frequency == pytest.approx(np.pi, rel=1e-6)
+    cut = eliminate_states(plant, ["fast"], method="truncate")
+    assert cut.peak_error == pytest.approx(1.0 / 0.9, rel=1e-8)
+    assert cut.peak_error_frequency == pytest.approx(0.0, abs=1e-6)
+
+
+def test_eliminate_error_measure_matches_a_dense_sweep():
+    # Coupled states: the recorded peak error equals the largest error of a dense frequency
+    # sweep with transfer_at (within the sweep's resolution; common practice) and never
+    # lies above the recorded bound.
+    rng = np.random.default_rng(41)
+    plant = _stable(rng, 6, 2, 2)
+    cut = eliminate_states(plant, ["x5", "x6"])
+    w = np.concatenate([[0.0], np.logspace(-3, 3, 3000)])
+    sweep = max(np.linalg.norm(plant.transfer_at(1j * x) - cut.model.transfer_at(1j * x), 2)
+                for x in w)
+    assert sweep <= cut.peak_error_bound * (1 + 1e-9)
+    assert cut.peak_error == pytest.approx(sweep, rel=1e-3)
+    assert cut.peak_error == pytest.approx(pc.reduction.truncation_error(plant, cut.model).value)

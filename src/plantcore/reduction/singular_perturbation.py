@@ -34,7 +34,8 @@ import numpy as np
 import scipy.linalg
 
 from plantcore.core.model import StateSpaceModel, as_model
-from plantcore.reduction.balanced import balanced_truncation
+from plantcore.reduction.balanced import balanced_truncation, truncation_error
+from plantcore.reduction.norms import peak_gain
 
 __all__ = [
     "EliminatedStates",
@@ -129,6 +130,25 @@ class EliminatedStates:
         True for residualization (``G(0)`` or ``G(1)`` is kept exactly), False for truncation
         (which keeps the high-frequency behaviour ``D`` and the first Markov parameter
         restricted to the kept states, and no steady-state guarantee).
+    peak_error : float
+        The measured error: the peak gain of the difference ``G - G_r``, computed by
+        :func:`plantcore.reduction.norms.peak_gain` on the difference realization (the two
+        models in parallel, the reduced one with its output sign flipped).  A gain the
+        error attains (or approaches, at infinite frequency), so a lower bound on the error
+        norm, within ``peak_error_bound``.  For stable ``G`` and ``G_r`` it is the
+        H-infinity norm of the error, which bounds the output error for every input:
+        ``||y - y_r||_2 <= peak_error_bound ||u||_2`` (energy norms, zero initial state).
+        Otherwise the L-infinity norm over the frequency axis (unit circle), which bounds
+        no time response; ``inf`` when the difference has a pole on the axis (circle).
+    peak_error_bound : float
+        The verified upper bound of the error norm (``PeakGain.upper_bound``): the error's
+        norm lies in ``[peak_error, peak_error_bound]``.
+    peak_error_frequency : float
+        Where the error peaks (rad/s, or rad/sample in discrete time; ``inf`` for the
+        limit at infinite frequency).
+    relative_peak_error : float
+        ``peak_error`` divided by the peak gain of the original model (``nan`` when that is
+        zero or infinite).
     """
 
     model: StateSpaceModel
@@ -137,6 +157,10 @@ class EliminatedStates:
     kept_states: tuple
     residual_condition: float | None
     keeps_steady_state_gain: bool
+    peak_error: float = math.nan
+    peak_error_bound: float = math.nan
+    peak_error_frequency: float = math.nan
+    relative_peak_error: float = math.nan
 
 
 def _residualize(A, B, C, D, keep, drop, discrete: bool, what: str):
@@ -318,12 +342,18 @@ def eliminate_states(model, states, *, method="residualize") -> EliminatedStates
     Notes
     -----
     Works in the model's own coordinates, so the states keep their physical meaning (a
-    fast actuator or sensor state, a stiff spring).  There is no error bound: the result is
-    good when the eliminated states are much faster than the kept ones (the classical
-    singular perturbation argument, Kokotović, O'Reilly and Khalil 1986), which is for the
-    user to judge; measure the error with :func:`plantcore.reduction.truncation_error`.
-    For an error bound, reduce a balanced realization with
-    :func:`balanced_residualization`.
+    fast actuator or sensor state, a stiff spring).  No a-priori bound applies in these
+    coordinates (the balanced bound, twice the sum of the discarded Hankel singular
+    values, holds only for balanced states, see :func:`balanced_residualization`); the
+    result is good when the eliminated states are much faster than the kept ones (the
+    classical singular perturbation argument, Kokotović, O'Reilly and Khalil 1986).  So the
+    error is measured after the fact instead: ``peak_error`` is the peak gain of
+    ``G - G_r`` by :func:`plantcore.reduction.norms.peak_gain` on the difference
+    realization, the same measure as :func:`plantcore.reduction.truncation_error`, with its
+    verified upper bound ``peak_error_bound``.  For stable models this is the worst-case
+    gain from the input to the output error over all frequencies.  Residualization makes
+    the error vanish at ``s = 0`` (``z = 1``) and truncation at infinite frequency, so the
+    peak tends to lie at the other end.
 
     References
     ----------
@@ -343,6 +373,8 @@ def eliminate_states(model, states, *, method="residualize") -> EliminatedStates
     >>> cut.kept_states, cut.removed_states
     (('temperature',), ('heater',))
     >>> bool(np.allclose(cut.model.transfer_at(0.0), plant.transfer_at(0.0)))
+    True
+    >>> bool(cut.peak_error <= cut.peak_error_bound)   # the error norm lies between them
     True
     """
     if not isinstance(method, str) or method not in _ELIMINATION_METHODS:
@@ -375,4 +407,9 @@ def eliminate_states(model, states, *, method="residualize") -> EliminatedStates
     name = f"{model.name} ({len(removed)} states {method}d)" if model.name else None
     reduced = StateSpaceModel(Ar, Br, Cr, Dr, model.dt, states=list(kept) or None,
                               inputs=model.inputs, outputs=model.outputs, name=name)
-    return EliminatedStates(reduced, method, removed, kept, cond, method == "residualize")
+    error = truncation_error(model, reduced)
+    scale = peak_gain(model).value
+    relative = error.value / scale if 0.0 < scale < math.inf else math.nan
+    return EliminatedStates(reduced, method, removed, kept, cond, method == "residualize",
+                            float(error.value), float(error.upper_bound),
+                            float(error.frequency), float(relative))
