@@ -248,6 +248,24 @@ def test_defective_eigenvalue_is_reported_at_the_cluster_mean():
     assert all(m.controllability_margin > 1e-3 and m.observability_margin > 1e-3 for m in modes)
 
 
+@pytest.mark.parametrize("hidden", [False, True])
+def test_distinct_slow_modes_of_a_stiff_model_stay_apart(hidden):
+    """Eigenvalues -1e6, -1, -1e-3, -1e-8: the last three are closer to each other than
+    eps^(1/3) ||A|| (about 6), but well conditioned, so each is its own mode (before, they
+    were reported at their mean and then moved onto the boundary as marginal).  -1e-8 is
+    1e-14 of ||A|| from the boundary: marginal by the documented rule (1e-12)."""
+    rng = np.random.default_rng(3)
+    values = np.array([-1e6, -1.0, -1e-3, -1e-8])
+    Q = catalog.random_orthogonal(4, rng) if hidden else np.eye(4)
+    A = Q @ np.diag(values) @ Q.T
+    modes = pc.classify_modes((A, rng.standard_normal((4, 1)), rng.standard_normal((1, 4))))
+    found = sorted(m.value.real for m in modes)
+    np.testing.assert_allclose(found, np.sort(values), rtol=1e-9, atol=1e-8)  # ~ 1e2 eps ||A||
+    by_value = {round(float(np.log10(-m.value.real))): m for m in modes}
+    assert by_value[0].stable and by_value[-3].stable and by_value[6].stable
+    assert by_value[-8].marginal and not by_value[-8].stable
+
+
 def test_jordan_block_driven_at_the_wrong_end():
     """J = [[-1, 1], [0, -1]], b = e1: A e1 = -e1, so only span(e1) is controllable."""
     modes = pc.classify_modes(([[-1.0, 1.0], [0.0, -1.0]], [[1.0], [0.0]], [[1.0, 1.0]]))
@@ -509,3 +527,14 @@ def test_schur_measures_agree_with_dense_svd_at_random_points(seed):
     assert singular.smallest(np.array([[0.0], [1.0], [1.0]]), [0.0], "c")[0] < 1e-15
     assert_allclose(singular.smallest(np.array([[1.0], [0.0], [0.0]]), [0.0], "c")[0], 1.0,
                     rtol=1e-12)
+
+
+def test_cluster_means_of_nearly_equal_values_near_the_largest_floats():
+    # members 1e308 apart by a few ulps: their mean stays finite (no sum of the members)
+    from plantcore.structure.modes import _conditioned_means
+
+    values = np.array([1.7e308, 1.7e308 * (1 + 4e-16), 1.7e308 * (1 - 4e-16)], dtype=complex)
+    kappa = np.full(3, 1e8)        # ill-conditioned: the copies link up
+    out = _conditioned_means(values, kappa, np.ones(3, dtype=bool), 1e303)
+    assert np.all(np.isfinite(out)) and np.ptp(out.real) == 0.0
+    assert abs(out[0].real - 1.7e308) <= 1e-15 * 1.7e308

@@ -31,11 +31,15 @@ Conventions used throughout
   engineer would call real.
 * **Repeated and defective eigenvalues.**  A defective eigenvalue of multiplicity ``k`` is
   computed with an error of order ``eps^(1/k) ||A||``.  Within each Kalman block,
-  eigenvalues closer than ``eps^(1/3) ||A_e||_F`` (about ``6e-6`` relative) are gathered
-  into one cluster and every member is reported at the cluster mean, which is accurate to
+  eigenvalues closer than ``eps^(1/3) ||A_e||_F`` (about ``6e-6`` relative) are candidates
+  for one cluster; they are gathered only when each lies within the other's error disc
+  (radius ``1e3 kappa eps ||A_e||_F``, ``kappa`` the eigenvalue condition number), the rule
+  of the modal certificate (:func:`plantcore.structure.certificate._clusters`).  Every
+  member of a cluster is reported at the cluster mean, which is accurate to
   ``O(eps ||A||)`` (it is the trace of the restriction to the cluster's invariant subspace
-  divided by its dimension).  This catches Jordan blocks of size up to 3; genuinely
-  distinct eigenvalues closer than that are reported at their mean.
+  divided by its dimension).  This catches Jordan blocks of size up to 3, while distinct,
+  well-conditioned eigenvalues of a stiff model (``-1`` and ``-1e-3`` beside ``-1e6``) stay
+  apart however close they are relative to ``||A||``.
 """
 
 from __future__ import annotations
@@ -46,7 +50,13 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.linalg
 
-from plantcore.structure.certificate import schur_eigenvalues
+from plantcore.core.safe_norms import frobenius
+from plantcore.structure.certificate import (
+    _clusters,
+    close_pairs,
+    offset_mean,
+    schur_eigenvalues,
+)
 from plantcore.structure.kalman import PART_NAMES, _complement, _prepare, kalman_decomposition
 from plantcore.structure.pbh_measures import PBHMeasures, threads_for_size
 
@@ -150,33 +160,90 @@ def _stability(value: complex, delta: float, discrete: bool) -> tuple[bool, bool
     return value.real < -delta, abs(value.real) <= delta
 
 
-def _cluster_means(values, tol: float) -> np.ndarray:
-    """Replace members of each cluster of close eigenvalues by the cluster mean.
+def _clustered_eigenvalues(A_block: np.ndarray, tol: float) -> np.ndarray:
+    """Eigenvalues of ``A_block`` with the members of each cluster replaced by the cluster
+    mean (module notes): ``tol`` is the widest cluster reach (``eps^(1/3) ||A||``), and
+    candidates within it are joined only as the condition numbers allow."""
+    if A_block.shape[0] == 0:
+        return np.zeros(0, dtype=complex)
+    values = scipy.linalg.eigvals(A_block)
+    candidates = _candidates(values, tol)
+    if not candidates.any():
+        return values
+    values, VL, VR = scipy.linalg.eig(A_block, left=True, right=True)
+    VL = VL / np.linalg.norm(VL, axis=0)
+    VR = VR / np.linalg.norm(VR, axis=0)
+    overlap = np.abs(np.einsum("ij,ij->j", VL.conj(), VR))
+    kappa = np.where(overlap > 0, 1.0 / np.maximum(overlap, 1e-300), math.inf)
+    return _conditioned_means(values, kappa, _candidates(values, tol), tol)
 
-    Greedy: the first unassigned value and every unassigned value within ``tol`` of it form
-    a cluster (diameter at most ``2 tol``).  Conjugate symmetry is preserved because a
-    cluster around a real-axis value is symmetric and clusters of conjugates mirror each
-    other.
-    """
-    values = np.asarray(values, dtype=complex)
-    out = values.copy()
-    free = np.ones(values.size, dtype=bool)
-    for i in range(values.size):
-        if not free[i]:
-            continue
-        members = np.flatnonzero(free & (np.abs(values - values[i]) <= tol))
-        free[members] = False
-        if members.size > 1:
-            # LAPACK returns exact conjugate pairs for a real matrix, so the mean of a
-            # cluster that holds both members of each pair is exactly real.
-            out[members] = values[members].mean()
+
+def _candidates(values: np.ndarray, tol: float) -> np.ndarray:
+    """Which of ``values`` have another value within ``tol`` (boolean mask)."""
+    out = np.zeros(values.size, dtype=bool)
+    out[close_pairs(values, tol).ravel()] = True
     return out
 
 
-def _clustered_eigenvalues(A_block: np.ndarray, tol: float) -> np.ndarray:
-    if A_block.shape[0] == 0:
-        return np.zeros(0, dtype=complex)
-    return _cluster_means(scipy.linalg.eigvals(A_block), tol)
+def _conditioned_means(values, kappa, candidates, tol: float) -> np.ndarray:
+    """Cluster means by the certificate's rule, within the reach ``tol`` only."""
+    base = tol / _CLUSTER_FACTOR
+    radii = np.maximum(1e3 * _EPS, 1e3 * _EPS * np.where(candidates, kappa, 1.0)) * base
+    radii = np.minimum(radii, tol / 2.0)
+    labels = _clusters(np.asarray(values, dtype=complex), radii, base)
+    out = np.asarray(values, dtype=complex).copy()
+    for label in np.unique(labels):
+        members = np.flatnonzero(labels == label)
+        if members.size > 1:
+            out[members] = offset_mean(out[members])
+    return out
+
+
+def _clustered_schur_eigenvalues(schur, tol: float) -> np.ndarray:
+    """:func:`_clustered_eigenvalues` read from a real Schur form (by diagonal position):
+    the condition numbers of the candidates come from the eigenvectors of the triangle,
+    two triangular solves each (``O(n^2)``), so no second eigendecomposition is needed."""
+    values = schur_eigenvalues(schur.T)
+    candidates = _candidates(values, tol)
+    if not candidates.any():
+        return values
+    real = not np.any(np.diag(schur.T, -1))
+    T = schur.T if real else schur.complex[0]
+    kappa = np.ones(values.size)
+    for k in np.flatnonzero(candidates):
+        kappa[k] = _triangle_condition(T, k)
+    return _conditioned_means(values, kappa, candidates, tol)
+
+
+def _triangle_condition(T: np.ndarray, k: int) -> float:
+    """Condition number ``||x|| ||y|| / |y^H x|`` of the eigenvalue ``T[k, k]`` of the upper
+    triangle ``T``: right eigenvector ``x`` (zero below ``k``) and left eigenvector ``y``
+    (zero above ``k``) by back substitution, with ``x_k = y_k = 1`` so that ``y^H x = 1``
+    (J. H. Wilkinson, *The Algebraic Eigenvalue Problem*, 1965, chapter 2).  Pivots that
+    vanish (other copies of the eigenvalue) are lifted to ``eps ||T||`` for the solves,
+    which makes the vectors, and so ``kappa``, large: the copies then link up."""
+    lam = T[k, k]
+    n = T.shape[0]
+    floor = _EPS * (float(np.abs(T).max()) + 1e-300)
+
+    def shifted(block):
+        M = np.array(block, dtype=complex if np.iscomplexobj(T) else float)
+        d = M.diagonal() - lam
+        d = np.where(np.abs(d) < floor, floor, d)
+        M[np.diag_indices_from(M)] = d
+        return M
+
+    norm_x = norm_y = 1.0
+    with np.errstate(over="ignore", invalid="ignore"):
+        if k > 0:
+            x = scipy.linalg.solve_triangular(shifted(T[:k, :k]), -T[:k, k])
+            norm_x = math.hypot(1.0, float(np.linalg.norm(x)))
+        if k < n - 1:
+            y = scipy.linalg.solve_triangular(shifted(T[k + 1:, k + 1:]), -np.conj(T[k, k + 1:]),
+                                              trans="C")
+            norm_y = math.hypot(1.0, float(np.linalg.norm(y)))
+    value = norm_x * norm_y
+    return value if math.isfinite(value) else math.inf
 
 
 def _stability_data(p, schur=None) -> tuple[float, np.ndarray]:
@@ -187,14 +254,14 @@ def _stability_data(p, schur=None) -> tuple[float, np.ndarray]:
     ``p.A`` already computed, the eigenvalues are read from it (in the order of its diagonal
     positions) and the boundary test measures on it: no further ``O(n^3)`` work.
     """
-    nA = float(np.linalg.norm(p.A))
+    nA = frobenius(p.A)
     discrete = p.model.is_discrete
     delta = _boundary_delta(nA, discrete)
     if schur is None:
         values = _clustered_eigenvalues(p.A, _CLUSTER_FACTOR * nA)
         measures = None
     else:
-        values = _cluster_means(schur_eigenvalues(schur.T), _CLUSTER_FACTOR * nA)
+        values = _clustered_schur_eigenvalues(schur, _CLUSTER_FACTOR * nA)
         measures = PBHMeasures(p.A, schur)
     return delta, _snap_to_boundary(p.A, values, delta, nA, discrete, measures)
 
@@ -309,7 +376,7 @@ def _mode_table(kd, p, narrow_margin: float, whole: PBHMeasures | None = None) -
     if n == 0:
         return []
     discrete = p.model.is_discrete
-    nA = float(np.linalg.norm(p.A))
+    nA = frobenius(p.A)
     delta = _boundary_delta(nA, discrete)
     cluster_tol = _CLUSTER_FACTOR * nA
     scale = float(p.scale)
@@ -347,7 +414,7 @@ def _mode_table(kd, p, narrow_margin: float, whole: PBHMeasures | None = None) -
         if cuts[i + 1] - cuts[i] == n and _orthonormal_pair(T_part, Ti_part):
             # a part that is the whole model in orthonormal coordinates: its eigenvalues
             # and boundary test come from the model's own Schur form (no second one)
-            values = _cluster_means(schur_eigenvalues(whole.schur.T), cluster_tol)
+            values = _clustered_schur_eigenvalues(whole.schur, cluster_tol)
             values = _snap_to_boundary(p.A, values, delta, nA, discrete, whole)
         else:
             values = _clustered_eigenvalues(Az[sl, sl], cluster_tol)
