@@ -12,6 +12,7 @@ Outside checks used here:
   project's failure reproducers; it lives in tests/four_block.py).
 """
 
+import math
 
 import numpy as np
 import pytest
@@ -201,7 +202,7 @@ def test_shared_scalar_cluster_split_by_ranks(seed):
     Bk, Ck = rng.standard_normal((k, m)), rng.standard_normal((p, k))
     if seed % 3 == 0:               # C blind to range(B): R inside N
         Ck = Ck @ (np.eye(k) - Bk @ np.linalg.pinv(Bk))
-    rank = lambda M: int(np.linalg.matrix_rank(M, tol=1e-8))  # noqa: E731
+    rank = lambda M: int(np.linalg.matrix_rank(M, tol=1e-8))
     n1 = rank(Ck @ Bk)
     n2, n3 = rank(Bk) - n1, rank(Ck) - n1
     extra = int(rng.integers(0, 4))
@@ -288,3 +289,19 @@ def test_defective_eigenvalue_of_multiplicity_19_is_one_cluster_left_undecided()
     _, cert = certificate_of(km.A, km.B, km.C)
     assert cert.multiplicities.tolist() == [19]
     assert cert.undecided() == 1
+
+
+def test_schur_eigenvalues_of_a_block_near_the_largest_floats():
+    # b c overflows for b = -2e300, c = 3e300; the pair is a +- i sqrt(-b c) (common practice)
+    from plantcore.structure.certificate import _Schur, schur_eigenvalues
+
+    A = np.array([[1.0, -2e300], [3e300, 1.5]])
+    schur = _Schur(A)
+    values = schur_eigenvalues(schur.T)
+    expected = math.sqrt(2.0) * math.sqrt(3.0) * 1e300
+    np.testing.assert_allclose(np.sort(values.imag), [-expected, expected], rtol=1e-14)
+    assert np.all(np.isfinite(values))
+    complex_triangle = schur.complex[0]
+    assert np.all(np.isfinite(complex_triangle))
+    np.testing.assert_allclose(np.sort(np.diag(complex_triangle).imag), [-expected, expected],
+                               rtol=1e-14)

@@ -133,3 +133,31 @@ def test_report_refuses_a_subnormal_sample_time_in_one_line(tmp_path, capsys):
     err = capsys.readouterr().err.strip()
     assert err.count("\n") == 0 and "sample_time" in err and "Traceback" not in err
     assert not (tmp_path / "fast.html").exists()
+
+
+@pytest.mark.parametrize("k", [-1000, -515, 515, 1000])
+def test_mode_table_follows_exact_power_of_two_scalings(k):
+    # scaling A, B and C by 2^k scales the eigenvalues by 2^k and leaves the (relative)
+    # margins as they are: exact scaling laws (common practice)
+    A, B, C = _base(False)
+    reference = pc.classify_modes(pc.StateSpaceModel(A, B, C))
+    scaled = pc.classify_modes(_scaled(k, False))
+    assert len(scaled) == len(reference)
+    for mode, ref in zip(scaled, reference):
+        assert abs(mode.value - math.ldexp(1.0, k) * ref.value) <= \
+            1e-12 * math.ldexp(1.0, k) * abs(ref.value)
+        assert mode.controllability_margin == pytest.approx(ref.controllability_margin, rel=1e-9)
+        assert mode.observability_margin == pytest.approx(ref.observability_margin, rel=1e-9)
+        assert (mode.stable, mode.marginal, mode.part) == (ref.stable, ref.marginal, ref.part)
+
+
+def test_inspect_and_report_of_a_model_near_1e155(tmp_path, capsys):
+    # entries near 1e155: squares overflow, so every norm and distance must be scaled
+    A, B, C = _base(False)
+    model = pc.StateSpaceModel(A * 1e155, B * 1e155, C * 1e155)
+    source = tmp_path / "large.toml"
+    pc.save_model(model, source)
+    assert main(["inspect", str(source)]) == 0
+    assert main(["report", str(source), "-o", str(tmp_path / "large.html")]) == 0
+    assert "Traceback" not in capsys.readouterr().err
+    assert (tmp_path / "large.html").stat().st_size > 0

@@ -40,6 +40,7 @@ from plantcore.analysis.report_contents import (
     _progress,
     collect_report,
 )
+from plantcore.core.safe_norms import frobenius
 from plantcore.core.version import __version__
 from plantcore.core.wording import SAFETY_CAUTION, counted, shown_eigenvalue, shown_value
 from plantcore.files.safe_write import atomic_write_text
@@ -332,7 +333,7 @@ ATTENTION_ROWS = 12
 
 def _eigenvalue_scale(model) -> float:
     """The scale eigenvalues are shown against (``||A||_F``): see ``shown_eigenvalue``."""
-    return float(np.linalg.norm(model.A)) if model.n else 1.0
+    return frobenius(model.A) if model.n else 1.0
 
 
 def _stability_cell(mode) -> str:

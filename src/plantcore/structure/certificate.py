@@ -229,6 +229,31 @@ class ModalCertificate:
 
 # --- building blocks ---------------------------------------------------------------------
 
+def offset_mean(z: np.ndarray) -> complex:
+    """The mean of the nearby values ``z`` as the mean of their offsets from the first one:
+    no overflow near the largest floats.  A group closed under conjugation (LAPACK returns
+    exact pairs for a real matrix) has a real mean."""
+    z = np.asarray(z, dtype=complex)
+    mean = complex(z[0] + (z - z[0]).mean())
+    imag = np.sort(z.imag)
+    return complex(mean.real, 0.0) if np.array_equal(imag, -imag[::-1]) else mean
+
+
+def close_pairs(values: np.ndarray, reach: float) -> np.ndarray:
+    """Index pairs ``(i, j)``, ``i < j``, of the finite complex ``values`` at most ``reach``
+    apart (a k-d tree; J. L. Bentley, "Multidimensional binary search trees used for
+    associative searching", 1975).  The tree squares distances, so the points are first
+    scaled by an exact power of two: no overflow near the largest floats."""
+    finite = np.flatnonzero(np.isfinite(values))
+    if finite.size < 2 or not reach > 0 or not math.isfinite(reach):
+        return np.zeros((0, 2), dtype=int)
+    points = np.column_stack([values[finite].real, values[finite].imag])
+    shift = math.frexp(float(np.abs(points).max()) or 1.0)[1]
+    pairs = cKDTree(np.ldexp(points, -shift)).query_pairs(
+        math.ldexp(reach, -shift), output_type="ndarray").reshape(-1, 2)
+    return finite[pairs]
+
+
 def _clusters(values: np.ndarray, radii: np.ndarray, base: float) -> np.ndarray:
     """Groups of eigenvalues that are computed copies of one eigenvalue (labels).
 
@@ -247,10 +272,8 @@ def _clusters(values: np.ndarray, radii: np.ndarray, base: float) -> np.ndarray:
     labels = np.arange(n)
     if n < 2:
         return labels
-    points = np.column_stack([values.real, values.imag])
-    tree = cKDTree(points)
     bound = {k: 2.0 * (n * _EPS) ** (1.0 / k) * base for k in range(2, _MAX_CLUSTER + 1)}
-    pairs = tree.query_pairs(bound[_MAX_CLUSTER], output_type="ndarray").reshape(-1, 2)
+    pairs = close_pairs(values, bound[_MAX_CLUSTER])
     if not pairs.size:
         return labels
     dist = np.abs(values[pairs[:, 0]] - values[pairs[:, 1]])
@@ -290,12 +313,11 @@ def _merge_concentric(values: np.ndarray, labels: np.ndarray, base: float) -> np
     size = np.bincount(labels, minlength=k)
     if not np.any(size > 1):
         return labels
-    centre = np.array([values[labels == c].mean() for c in range(k)])
+    centre = np.array([offset_mean(values[labels == c]) for c in range(k)])
     ring = np.array([float(np.abs(values[labels == c] - centre[c]).max()) for c in range(k)])
     floor = _ERROR_FACTOR * values.size * _EPS * base
     reach = np.maximum(floor, _CENTRE_AGREEMENT * ring)
-    pairs = cKDTree(np.column_stack([centre.real, centre.imag])).query_pairs(
-        float(reach.max()), output_type="ndarray").reshape(-1, 2)
+    pairs = close_pairs(centre, float(reach.max()))
     gap = np.abs(centre[pairs[:, 0]] - centre[pairs[:, 1]])
     pairs = pairs[((size[pairs[:, 0]] > 1) | (size[pairs[:, 1]] > 1))
                   & (gap <= np.maximum(reach[pairs[:, 0]], reach[pairs[:, 1]]))]
@@ -317,8 +339,13 @@ def _separation(values: np.ndarray, labels: np.ndarray, kappa: np.ndarray) -> np
     if n < 2:
         return np.full(n, math.inf)
     points = np.column_stack([values.real, values.imag])
+    # distances are squared inside the tree: an exact power-of-two scaling first
+    top = float(np.abs(points[np.isfinite(points)]).max(initial=0.0))
+    shift = math.frexp(top or 1.0)[1]
+    points = np.ldexp(points, -shift)
     k = min(n, 9)
     dist, idx = cKDTree(points).query(points, k=k)
+    dist = np.ldexp(dist, shift)
     dist, idx = np.atleast_2d(dist), np.atleast_2d(idx)
     out = np.full(n, math.inf)
     for j in range(1, k):
@@ -455,8 +482,10 @@ def schur_eigenvalues(T: np.ndarray) -> np.ndarray:
     ev = np.diag(T).astype(complex)
     for i in np.nonzero(np.diag(T, -1))[0]:
         a, b, c, d = T[i, i], T[i, i + 1], T[i + 1, i], T[i + 1, i + 1]
-        im = math.sqrt(abs(b * c)) if b * c < 0 else 0.0
-        ev[i], ev[i + 1] = complex((a + d) / 2, im), complex((a + d) / 2, -im)
+        # products and sums formed so that they cannot overflow near the largest floats
+        im = math.sqrt(abs(b)) * math.sqrt(abs(c)) if (b < 0) != (c < 0) and b and c else 0.0
+        re = a / 2 + d / 2
+        ev[i], ev[i + 1] = complex(re, im), complex(re, -im)
     return ev
 
 
@@ -471,7 +500,13 @@ class _Schur:
     @property
     def complex(self):
         if self._complex is None:
-            self._complex = scipy.linalg.rsf2csf(self.T, self.Q)
+            # The rotations of the conversion square entries of T: far from 1 in size, T is
+            # first scaled by an exact power of two (and the triangle scaled back), so
+            # nothing overflows or underflows for any finite T.
+            top = float(np.abs(self.T).max()) if self.T.size else 0.0
+            shift = math.frexp(top)[1] if top > 0 and not 2.0**-400 < top < 2.0**400 else 0
+            Tc, Qc = scipy.linalg.rsf2csf(np.ldexp(self.T, -shift), self.Q)
+            self._complex = (np.ldexp(Tc.real, shift) + 1j * np.ldexp(Tc.imag, shift), Qc)
         return self._complex
 
     def pair(self, X, side: str, real: bool):
@@ -679,7 +714,7 @@ def modal_certificate(A, B, C, *, scale: float, tol: float,
     decoupling = np.minimum(1.0, separation) / 2.0
     k = int(labels.max()) + 1
     mult = np.bincount(labels, minlength=k)
-    reps = np.array([lam[labels == c].mean() for c in range(k)])
+    reps = np.array([offset_mean(lam[labels == c]) for c in range(k)])
     # cluster figures: the best (smallest) upper figure and the smallest lower figure
     up_c = np.array([upper_c[labels == c].min() for c in range(k)])
     up_o = np.array([upper_o[labels == c].min() for c in range(k)])

@@ -216,6 +216,15 @@ def _triangle_smallest(R, start=None, rtol: float = _RESIDUAL):
     vector ``z`` attaining it (``||R z||``).  ``start``: the first Lanczos vector (a
     previous ``z``: the right singular vector of ``R^{-H}``'s top triplet is then close)."""
     n = R.shape[0]
+    top_entry = float(np.abs(R).max()) if R.size else 0.0
+    if math.isfinite(top_entry) and top_entry > 0 and not 2.0**-400 < top_entry < 2.0**400:
+        # far from 1 in size, the norms below would overflow or underflow: an exact
+        # power-of-two scaling scales the singular values by the same power
+        shift = math.frexp(top_entry)[1]
+        scaled = (np.ldexp(R.real, -shift) + 1j * np.ldexp(R.imag, -shift)
+                  if np.iscomplexobj(R) else np.ldexp(R, -shift))
+        value, z = _triangle_smallest(np.asfortranarray(scaled), start, rtol)
+        return math.ldexp(value, shift), z
     cplx = np.iscomplexobj(R)
     trsv = blas.ztrsv if cplx else blas.dtrsv
     trmv = blas.ztrmv if cplx else blas.dtrmv
