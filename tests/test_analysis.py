@@ -230,6 +230,20 @@ def test_html_rendering_is_delegated_to_the_report_module():
     assert "drying kiln" in html and "Caution" in html
 
 
+def test_to_html_fragment_embeds_without_page_or_body_styles():
+    import re
+
+    analysis = pc.analyze(zoned_model())
+    page, fragment = analysis.to_html(), analysis.to_html(fragment=True)
+    assert fragment.startswith('<div class="plantcore-report">')
+    assert not re.search(r"<(html|head|body)\b", fragment) and "<!DOCTYPE" not in fragment
+    assert re.search(r"<body\b", page)       # the default stays a whole page
+    css = re.search(r"<style>(.*?)</style>", fragment, re.DOTALL).group(1)
+    assert not re.search(r"(^|[},\s])body\s*\{", css)     # no global body rule
+    ids = re.findall(r'<section id="([^"]+)"', page)
+    assert ids and re.findall(r'<section id="([^"]+)"', fragment) == ids
+
+
 @pytest.mark.parametrize("case", catalog.catalog()[::4], ids=lambda c: f"{c.sizes}-{'-'.join(c.tags)}")
 def test_minimal_read_off_the_decomposition_matches_minimal_realization(case):
     # analyze() reads the minimal realization off its Kalman decomposition instead of running

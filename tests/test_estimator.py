@@ -31,7 +31,6 @@ from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
 import plantcore as pc
-from plantcore.reports.audit import audit_html, audit_text
 from plantcore.cli import main
 from plantcore.core.errors import ModelFileError
 from plantcore.estimation import (
@@ -41,6 +40,7 @@ from plantcore.estimation import (
     nonlinear_observability,
 )
 from plantcore.examples import survey_boat as sb
+from plantcore.reports.audit import audit_html, audit_text
 
 ROUND_OFF = 1e-13      # leakage at round-off level: far below the default tolerance 5e-11
 CLEARLY_SEEN = 1e-6    # spurious leakage from moving linearization points: far above it
@@ -484,10 +484,10 @@ def _save_audit_file(path, demo, **extra):
     run = demo.first_standard
     names = np.array(["boat <x>", "boat y", "heading"]
                      + [f"buoy{i + 1} {c}" for i in range(demo.scenario.n_buoys) for c in "xy"])
-    arrays = dict(transition_jacobians=run.transition_jacobians[:40],
-                  measurement_jacobians=run.measurement_jacobians[:40],
-                  expected_unobservable=run.nullspaces[0],
-                  measurement_noise=_noise(demo), state_names=names)
+    arrays = {"transition_jacobians": run.transition_jacobians[:40],
+              "measurement_jacobians": run.measurement_jacobians[:40],
+              "expected_unobservable": run.nullspaces[0],
+              "measurement_noise": _noise(demo), "state_names": names}
     arrays.update(extra)
     arrays = {k: v for k, v in arrays.items() if v is not None}
     np.savez(path, **arrays)
@@ -558,6 +558,21 @@ def test_reports_text_and_html(demo):
     assert "&lt;run &amp; 0&gt;.npz" in page and "<run & 0>" not in page
     assert "://" not in page and "<script" not in page
     assert "Caution" in page.split("Rank decisions")[-1]
+
+
+def test_audit_to_html_fragment_embeds_without_page_or_body_styles(demo):
+    import re
+
+    audit = demo.audit_standard
+    page = audit.to_html(source="run0.npz")
+    fragment = audit.to_html(source="run0.npz", fragment=True)
+    assert page.lstrip().startswith("<!DOCTYPE html>") and re.search(r"<body\b", page)
+    assert fragment.startswith('<div class="plantcore-report">')
+    assert not re.search(r"<(html|head|body)\b", fragment)
+    css = re.search(r"<style>(.*?)</style>", fragment, re.DOTALL).group(1)
+    assert not re.search(r"(^|[},\s])body\s*\{", css)
+    body = re.search(r"<main[^>]*>\n(.*)\n</main>", page, re.DOTALL).group(1)
+    assert body in fragment          # the same report, only the shell differs
 
 
 def test_cli_audit_text_and_html(tmp_path, demo, capsys):

@@ -135,10 +135,14 @@ class Analysis:
         """A markdown report (ends with the safety caution)."""
         return render(self, "markdown")
 
-    def to_html(self) -> str:
+    def to_html(self, *, fragment: bool = False) -> str:
         """A self-contained HTML report (the reports layer renders it; nothing is recomputed
-        except what the report adds: the certificates and the balanced truncation)."""
-        return render(self, "html")
+        except what the report adds: the certificates and the balanced truncation).
+
+        ``fragment=False`` (default) gives a complete page; ``fragment=True`` one ``<div>``
+        to embed in a notebook or another page: no ``<html>`` or ``<body>``, and a style
+        sheet scoped to the report, so the host page keeps its own look."""
+        return render(self, "html", fragment=fragment)
 
     def to_dict(self) -> dict:
         """A JSON-safe dictionary: plain Python types only, ``inf`` as ``None``, complex

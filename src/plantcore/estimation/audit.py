@@ -159,9 +159,11 @@ class ObservabilityAudit:
         """Plain-text summary (rendered by :func:`plantcore.reports.audit.audit_text`)."""
         return render(self, "text", source=source)
 
-    def to_html(self, *, source=None, title=None) -> str:
-        """Self-contained HTML report (rendered by :func:`plantcore.reports.audit.audit_html`)."""
-        return render(self, "html", source=source, title=title)
+    def to_html(self, *, source=None, title=None, fragment: bool = False) -> str:
+        """Self-contained HTML report (rendered by :func:`plantcore.reports.audit.audit_html`):
+        a complete page, or with ``fragment=True`` one ``<div>`` to embed (no ``<html>`` or
+        ``<body>``, its style sheet scoped to the report)."""
+        return render(self, "html", source=source, title=title, fragment=fragment)
 
 
 def audit_linearized_observability(transition_jacobians, measurement_jacobians,

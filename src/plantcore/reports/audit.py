@@ -17,7 +17,7 @@ import math
 import numpy as np
 
 from plantcore.core.wording import SAFETY_CAUTION, counted, describe_direction
-from plantcore.reports.style import html_number, html_page
+from plantcore.reports.style import html_fragment, html_number, html_page
 from plantcore.reports.text import _num
 
 __all__ = ["audit_html", "audit_text"]
@@ -195,7 +195,7 @@ def _plots(audit) -> list:
     return out
 
 
-def audit_html(audit, *, source=None, title=None) -> str:
+def audit_html(audit, *, source=None, title=None, fragment: bool = False) -> str:
     """Self-contained HTML report of an audit (no network requests), with the safety caution.
 
     Parameters
@@ -205,6 +205,10 @@ def audit_html(audit, *, source=None, title=None) -> str:
         Where the Jacobians came from.
     title : str, optional
         Page title; default "Observability audit".
+    fragment : bool, optional
+        False (default): a complete HTML document.  True: one ``<div>`` with a style sheet
+        scoped to it, to embed in a notebook or another page
+        (:func:`plantcore.reports.style.html_fragment`).
 
     Examples
     --------
@@ -279,4 +283,6 @@ def audit_html(audit, *, source=None, title=None) -> str:
         parts.append("</ul></section>")
     parts.append(f'<section id="caution"><h2>Validation and safety</h2><p>{esc(SAFETY_CAUTION)}'
                  "</p></section>")
+    if fragment:
+        return html_fragment("\n".join(parts))
     return html_page(title, "\n".join(parts))
