@@ -25,12 +25,19 @@ on a shared machine they are loaded: read the ratios, which interleaving keeps c
     python benchmarks/bench_real.py --quick                      # n = 10, 50, 100; beam 300
     python benchmarks/bench_real.py --sizes 400 1000 --beams 348 --threads 1 2
     python benchmarks/bench_real.py --sizes 2000 --calls hankel_singular_values --repeats 1
+    python benchmarks/bench_real.py --sizes 500 1000 2000 --beams --no-unstable --memory
+
+With ``--memory`` every call runs once more under ``tracemalloc`` (one BLAS thread) and its
+peak allocation is printed in units of ``n^2`` doubles; after the table, the growth
+exponent of each call (least-squares slope of log time over log n, one BLAS thread, random
+stable models with n >= 500) is printed for every call timed at two or more such sizes.
 """
 
 from __future__ import annotations
 
 import argparse
 import gc
+import math
 import os
 import statistics
 import tempfile
@@ -39,6 +46,7 @@ import warnings
 
 import numpy as np
 import slycot
+from bench_core import peak_memory
 from threadpoolctl import threadpool_limits
 
 import plantcore as pc
@@ -176,7 +184,7 @@ def time_interleaved(fns: dict, repeats: int) -> dict:
     return {k: statistics.median(v) for k, v in wall.items()}
 
 
-def measure(model, threads: int, repeats: int, selected) -> list[tuple]:
+def measure(model, threads: int, repeats: int, selected, memory: bool = False) -> list[tuple]:
     with tempfile.TemporaryDirectory() as folder:
         mine = ours(model, folder)
         if selected:
@@ -188,11 +196,29 @@ def measure(model, threads: int, repeats: int, selected) -> list[tuple]:
         with threadpool_limits(threads), np.errstate(all="ignore"), warnings.catch_warnings():
             warnings.simplefilter("ignore")
             t = time_interleaved(fns, repeats)
+            peaks = {}
+            if memory:
+                with threadpool_limits(1):
+                    peaks = {k: peak_memory(f, model.n) for k, (f, _) in mine.items()}
     rows = []
     for name, (_, names) in mine.items():
         ref = sum(t[f"ref:{r}"] for r in names)
-        rows.append((name, t[name], " + ".join(names), ref, t[name] / ref))
+        rows.append((name, t[name], " + ".join(names), ref, t[name] / ref,
+                     peaks.get(name, math.nan)))
     return rows
+
+
+def growth_exponents(samples: dict) -> dict:
+    """call -> least-squares slope of log(seconds) over log(n), from ``{call: [(n, s)]}``."""
+    out = {}
+    for call, points in samples.items():
+        sizes = sorted({n for n, _ in points})
+        if len(sizes) < 2:
+            continue
+        x = np.log([n for n, _ in points])
+        y = np.log([max(t, 1e-9) for _, t in points])
+        out[call] = float(np.polyfit(x, y, 1)[0])
+    return out
 
 
 def main(argv=None) -> None:
@@ -205,6 +231,8 @@ def main(argv=None) -> None:
     parser.add_argument("--threads", type=int, nargs="+", default=[1, 2])
     parser.add_argument("--calls", nargs="+", default=None, help="only these plantcore calls")
     parser.add_argument("--no-unstable", action="store_true", help="stable random models only")
+    parser.add_argument("--memory", action="store_true",
+                        help="also the peak allocation of each call (n^2 doubles) and growth exponents")
     parser.add_argument("--quick", action="store_true",
                         help="n = 10, 50, 100 (2 inputs/outputs), a 300-state beam, one round")
     args = parser.parse_args(argv)
@@ -217,14 +245,27 @@ def main(argv=None) -> None:
             if not args.no_unstable and n >= 10:
                 models.append(random_model(n, ports, unstable=2, seed=n + 1))
     models += [damped_beam(s) for s in args.beams]
-    print("| model | BLAS threads | call | plantcore (s) | reference | reference (s) | ratio |")
-    print("|---|---:|---|---:|---|---:|---:|")
+    memory_head = " peak memory (n^2 doubles) |" if args.memory else ""
+    print(f"| model | BLAS threads | call | plantcore (s) | reference | reference (s) | ratio |"
+          f"{memory_head}")
+    print("|---|---:|---|---:|---|---:|---:|" + ("---:|" if args.memory else ""))
+    growth: dict = {}
     for model in models:
         for threads in args.threads:
-            for name, mine, ref_name, ref, ratio in measure(model, threads, args.repeats,
-                                                            args.calls):
+            rows = measure(model, threads, args.repeats, args.calls,
+                           memory=args.memory and threads == args.threads[0])
+            for name, mine, ref_name, ref, ratio, peak in rows:
+                cell = f" {peak:.1f} |" if args.memory else ""
                 print(f"| {model.name} | {threads} | {name} | {mine:.3g} | {ref_name} | "
-                      f"{ref:.3g} | {ratio:.2f} |", flush=True)
+                      f"{ref:.3g} | {ratio:.2f} |{cell}", flush=True)
+                if (threads == 1 and model.n >= 500 and model.name.startswith("random")
+                        and "stable" in model.name and "unstable" not in model.name):
+                    growth.setdefault(name, []).append((model.n, mine))
+    exponents = growth_exponents(growth)
+    if exponents:
+        print("\nGrowth exponents (one BLAS thread, random stable models, n >= 500):")
+        for call, slope in exponents.items():
+            print(f"  {call}: {slope:.2f}")
 
 
 if __name__ == "__main__":
