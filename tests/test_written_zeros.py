@@ -7,12 +7,15 @@ import os
 
 import numpy as np
 import pytest
+import scipy.linalg
+import scipy.sparse
 
 import plantcore as pc
 from plantcore.cli import main
 from plantcore.examples import example_path
 from plantcore.files.written_zeros import (
     a_priori_backward_error,
+    balanced_backward_error,
     clear_rounding_dust,
     reduction_backward_error,
 )
@@ -151,3 +154,67 @@ def test_demo_writes_minimal_model_without_dust(tmp_path):
     assert [x for x in w.B.ravel() if 0.0 < abs(x) < 1e-12] == []
     assert result.contents.certificate.equivalent
     assert result.contents.certificate.peak_error < 1e-12
+
+
+# --- balanced models from low-rank factors (the sparse reduce) ---------------------------------
+def test_balanced_backward_error_is_the_floor_for_an_exactly_balanced_model():
+    # x' = -x + u, y = x: both Gramians are 1/2 (hand derivation from the Lyapunov equation
+    # -2 P + 1 = 0), so with sigma = 1/2 both residuals vanish and only the floor remains
+    model = pc.StateSpaceModel([[-1.0]], [[1.0]], [[1.0]])
+    assert balanced_backward_error(model, [0.5], worked_order=10) == a_priori_backward_error(10)
+
+
+@pytest.mark.parametrize("dt", [None, 1.0])
+def test_balanced_backward_error_measures_the_balancing_residual(dt):
+    # A off by delta from the exactly balanced value: continuous A = -1 + delta, sigma = 1/2
+    # gives the residual 2 (-1 + delta) / 2 + 1 = delta over sigma + sigma = 1; discrete
+    # a = 1/2 + delta, sigma = 4/3 (from a^2 s - s + 1 = 0) gives (2 a0 delta + delta^2) sigma
+    # over 2 sigma |a|; both relative to ||[[A, B], [C, 0]]||_F (hand derivations)
+    delta = 1e-9
+    if dt is None:
+        a, sigma, expected = -1.0 + delta, 0.5, delta
+    else:
+        a, sigma = 0.5 + delta, 4.0 / 3.0
+        expected = (2 * 0.5 * delta + delta ** 2) / (2 * a)
+    model = pc.StateSpaceModel([[a]], [[1.0]], [[1.0]], dt=dt)
+    got = balanced_backward_error(model, [sigma], worked_order=1)
+    assert got == pytest.approx(expected / np.sqrt(a * a + 2.0), rel=1e-6)
+
+
+def _two_separate_chains(n: int):
+    """Two heat-conduction chains that do not touch, each with its own input and output at
+    its first cell: in balanced coordinates every coupling between the two chains is zero
+    (common practice: a decoupled system balances block by block)."""
+    def chain(a):
+        return scipy.sparse.diags([np.ones(n - 1), np.full(n, -2.0 * a), np.ones(n - 1)],
+                                  [-1, 0, 1])
+
+    A = scipy.sparse.block_diag([chain(1.5), chain(2.5)]).tocsr()
+    B = np.zeros((2 * n, 2))
+    B[0, 0] = B[n, 1] = 1.0
+    return pc.StateSpaceModel(A, B, B.T.copy(), name="two separate chains")
+
+
+def test_sparse_reduce_writes_the_chain_couplings_as_exact_zeros(tmp_path, capsys):
+    path, out = tmp_path / "chains.npz", tmp_path / "reduced.toml"
+    pc.save_model(_two_separate_chains(20), path)
+    assert main(["reduce", str(path), "-o", str(out), "--order", "6"]) == 0
+    printed = capsys.readouterr().out
+    assert "at rounding level written as exact 0" in printed
+    reduced = pc.load_model(out)
+    # each balanced state belongs to one chain: its input column (and output row) is the
+    # chain's, and A couples no two states of different chains
+    chain_of = np.argmax(np.abs(reduced.B), axis=1)
+    assert sorted(np.bincount(chain_of, minlength=2)) == [3, 3]
+    other = chain_of[:, None] != chain_of[None, :]
+    assert np.all(reduced.A[other] == 0.0)
+    assert np.all(reduced.B[np.arange(6), 1 - chain_of] == 0.0)
+    assert np.all(reduced.C[1 - chain_of, np.arange(6)] == 0.0)
+    # the error printed is measured on what is written, and it is within the bound
+    bound = float(printed.split("Hankel singular values): ")[1].split()[0])
+    measured = float(printed.split("a lower bound of the true peak): ")[1].split()[0])
+    dense = _two_separate_chains(20).to_dense()
+    err = pc.peak_gain(pc.StateSpaceModel(
+        scipy.linalg.block_diag(dense.A, reduced.A), np.vstack([dense.B, reduced.B]),
+        np.hstack([dense.C, -reduced.C]))).value
+    assert measured <= err * (1 + 1e-6) and err <= bound * (1 + 1e-6)

@@ -109,6 +109,17 @@ def _check_output_first(path, *, inputs, force: bool, suffixes, kind: str,
                          f"(give {_FORCE} to replace it, or choose another name).")
 
 
+def cleared_note(written) -> str:
+    """The line ``reduce`` prints under "written to" about entries written as exact zeros
+    (:class:`plantcore.files.written_zeros.ClearedModel`); empty when none were cleared."""
+    if not written.cleared:
+        return ""
+    entries = "1 entry" if written.cleared == 1 else f"{written.cleared} entries"
+    return (f"  {entries} at rounding level written as exact 0 (together "
+            f"{written.change:.2g} of the model's scale, within the computation's backward "
+            f"error {written.backward_error:.2g})")
+
+
 def _add_force(parser) -> None:
     parser.add_argument(_FORCE, action="store_true", dest="force",
                         help="replace an existing output file (never an input file)")
@@ -206,11 +217,9 @@ def _cmd_reduce(args) -> int:
             return EXIT_HIDDEN_UNSTABLE
     save_model(reduced, args.output, inputs=(args.model,), overwrite=args.force)
     print(f"reduced model written to {args.output}")
-    if written.cleared:
-        entries = "1 entry" if written.cleared == 1 else f"{written.cleared} entries"
-        print(f"  {entries} at rounding level written as "
-              f"exact 0 (together {written.change:.2g} of the model's scale, within the "
-              f"computation's backward error {written.backward_error:.2g})")
+    note = cleared_note(written)
+    if note:
+        print(note)
     from plantcore.reduction.equivalence import check_equivalence
 
     print()

@@ -55,18 +55,36 @@ def inspect_sparse(args, model) -> int:
 
 def reduce_sparse(args, model) -> int:
     _tolerance_note(args)
+    import dataclasses
+
+    from plantcore.cli import cleared_note
     from plantcore.files import save_model
+    from plantcore.files.written_zeros import balanced_backward_error, clear_rounding_dust
+    from plantcore.large.frequency import estimate_peak_error
     from plantcore.large.low_rank_balanced import low_rank_balanced_truncation
     from plantcore.reports.sparse_report import sparse_reduction_lines
 
     # the output was checked by the command before the model was read
     with Progress("reduce", enabled=_progress(args)) as bar:
         reduction = low_rank_balanced_truncation(model, order=args.order,
-                                                 max_error=args.max_error, progress=bar.step)
+                                                 max_error=args.max_error, check_error=False,
+                                                 progress=bar.step)
+        # rounding dust within the computation's backward error is written as exact zeros
+        # (the rule of the dense reduce), and the error is measured on what is written
+        eta = balanced_backward_error(reduction.model,
+                                      reduction.hankel_singular_values[:reduction.order],
+                                      worked_order=reduction.structural.order)
+        written = clear_rounding_dust(reduction.model, eta)
+        bar.step("error check of the written model")
+        peak = estimate_peak_error(model, written.model, progress=bar.step)
+    reduction = dataclasses.replace(reduction, model=written.model, peak_error=peak)
     for line in sparse_reduction_lines(reduction):
         print(line)
     save_model(reduction.model, args.output, inputs=(args.model,), overwrite=args.force)
     print(f"reduced model written to {args.output} (dense, {reduction.order} states)")
+    note = cleared_note(written)
+    if note:
+        print(note)
     return 0
 
 
