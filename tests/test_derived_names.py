@@ -6,7 +6,7 @@ import numpy as np
 
 import plantcore as pc
 from plantcore.cli import main
-from plantcore.core.derived_names import derived_state_names
+from plantcore.core.derived_names import balanced_state_names, derived_state_names
 from plantcore.examples import example_path
 
 
@@ -61,3 +61,50 @@ def test_reduce_writes_the_derived_names(tmp_path, capsys):
     assert main(["reduce", example_path("thermal_process"), "-o", str(out)]) == 0
     capsys.readouterr()
     assert "zone1_air_temp_degC" in pc.load_model(out).states
+
+
+# --- balanced reductions: every state is a balanced combination (core.derived_names) --------
+def _stable_and_unstable():
+    """Three stable modes and one unstable one, each driven and seen (diagonal, by hand)."""
+    return pc.StateSpaceModel(np.diag([-1.0, -2.0, -5.0, 0.5]), np.ones((4, 1)),
+                              np.ones((1, 4)), states=["p", "q", "r", "s"])
+
+
+def test_balanced_truncation_states_are_balanced_then_unstable_combinations():
+    m = _stable_and_unstable()
+    red = pc.balanced_truncation(m, order=3)
+    assert (red.stable_order, red.unstable_order) == (2, 1)
+    assert red.model.states == ("balanced 1", "balanced 2", "unstable 3")
+    # "balanced k" carries sigma_k: the reduced model's own Hankel values are the first two
+    np.testing.assert_allclose(pc.hankel_singular_values(red.model), red.hankel_singular_values[:2],
+                               rtol=1e-10)
+    res = pc.balanced_residualization(m, order=2)
+    assert res.model.states == ("balanced 1", "unstable 2")
+
+
+def test_balanced_names_stay_unique_against_the_original_names():
+    m = pc.StateSpaceModel(np.diag([-1.0, -3.0]), [[1.0], [1.0]], [[1.0, 1.0]],
+                           states=["balanced 1", "heater"])
+    assert pc.balanced_truncation(m, order=2).model.states == ("balanced 1'", "balanced 2")
+    assert balanced_state_names(["balanced 1", "balanced 1'"], 1) == ("balanced 1''",)
+
+
+def test_low_rank_balanced_truncation_names_its_states(tmp_path, capsys):
+    from plantcore.examples.heated_plate import heated_plate
+    from plantcore.large.low_rank_balanced import low_rank_balanced_truncation
+
+    plate = heated_plate(64)
+    red = low_rank_balanced_truncation(plate, order=3, check_error=False)
+    assert red.model.states == ("balanced 1", "balanced 2", "balanced 3")
+    pc.save_model(plate, tmp_path / "plate.npz")
+    assert main(["reduce", str(tmp_path / "plate.npz"), "-o", str(tmp_path / "r.toml"),
+                 "--order", "3"]) == 0
+    assert pc.load_model(tmp_path / "r.toml").states == red.model.states
+
+
+def test_dense_reduce_with_order_writes_balanced_names(tmp_path, capsys):
+    path = tmp_path / "m.toml"
+    pc.save_model(_stable_and_unstable(), path)
+    assert main(["reduce", str(path), "-o", str(tmp_path / "r.toml"), "--order", "2",
+                 "--accept-hidden-unstable"]) == 0
+    assert pc.load_model(tmp_path / "r.toml").states == ("balanced 1", "unstable 2")

@@ -15,6 +15,19 @@ unchanged, or a combination of them.  The scheme, the same for every result:
   states it combines is the ``k``-th column of the right basis (the reports list it).
 * Names stay unique: a generated name that an original state already uses gets a ``'``
   appended until it is free.
+
+Balanced reductions (balanced truncation and residualization, dense or from low-rank
+factors) keep no original state: every balanced state mixes them, weighted by what the
+inputs excite and the outputs see.  Their states are named after what they are:
+
+* ``"balanced k"`` for the ``k``-th stable balanced state (from 1), the one whose Hankel
+  singular value is ``sigma_k`` (largest first); these come first in the reduced model, so
+  ``k`` is also its position.
+* ``"unstable k"`` for each state of the unstable part that a balanced reduction keeps
+  unreduced after the stable ones (Schur coordinates of that part, no Hankel singular
+  value); ``k`` is its position in the reduced model, as for ``"combination k"``.
+* The same ``'`` rule keeps them unique against the given model's names.  (They never
+  collide with the ``"combination k"`` of a minimal realization reduced further.)
 """
 
 from __future__ import annotations
@@ -23,10 +36,17 @@ import numpy as np
 
 from plantcore.core.wording import ROUNDING_LEVEL
 
-__all__ = ["COMBINATION", "derived_state_names"]
+__all__ = ["BALANCED", "COMBINATION", "UNSTABLE", "balanced_state_names",
+           "derived_state_names"]
 
 #: The name of state ``k`` (from 1) that is no single original state.
 COMBINATION = "combination {k}"
+
+#: The name of the stable balanced state with the ``k``-th Hankel singular value (from 1).
+BALANCED = "balanced {k}"
+
+#: The name of the state at position ``k`` (from 1) of an unstable part kept unreduced.
+UNSTABLE = "unstable {k}"
 
 
 def _unit_index(column: np.ndarray, level: float) -> int | None:
@@ -78,13 +98,45 @@ def derived_state_names(original, right, left) -> tuple:
         if i is not None and i not in used and _unit_index(left[:, k], ROUNDING_LEVEL) == i:
             kept[k] = original[i]
             used.add(i)
+    return _unique(original, [name or COMBINATION.format(k=k + 1) for k, name in enumerate(kept)],
+                   generated=[name is None for name in kept])
+
+
+def balanced_state_names(original, stable: int, unstable: int = 0) -> tuple:
+    """Names of the states of a balanced reduction: ``stable`` balanced states first,
+    then ``unstable`` states of the unstable part kept unreduced.
+
+    Parameters
+    ----------
+    original : sequence of str
+        The original model's state names (only to keep the new names unique).
+    stable, unstable : int
+        Numbers of stable balanced states and of unstable states kept.
+
+    Returns
+    -------
+    tuple of str
+        ``"balanced 1"``, ... ``"balanced <stable>"``, then ``"unstable k"`` by position,
+        as the module documentation describes.
+
+    Examples
+    --------
+    >>> balanced_state_names(["balanced 1", "speed"], 2, 1)
+    ("balanced 1'", 'balanced 2', 'unstable 3')
+    """
+    names = ([BALANCED.format(k=k + 1) for k in range(int(stable))]
+             + [UNSTABLE.format(k=int(stable) + k + 1) for k in range(int(unstable))])
+    return _unique(tuple(original), names, generated=[True] * len(names))
+
+
+def _unique(original, names, generated) -> tuple:
+    """``names`` with ``'`` appended to each generated one until no other name uses it."""
     taken = set(original)
-    names = []
-    for k, name in enumerate(kept):
-        if name is None:
-            name = COMBINATION.format(k=k + 1)
+    out = []
+    for name, new in zip(names, generated):
+        if new:
             while name in taken:
                 name += "'"
         taken.add(name)
-        names.append(name)
-    return tuple(names)
+        out.append(name)
+    return tuple(out)

@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.linalg
 
+from plantcore.core.derived_names import balanced_state_names
 from plantcore.core.errors import NumericalBreakdown
 from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.large.frequency import PeakErrorEstimate, estimate_peak_error
@@ -43,7 +44,8 @@ class LowRankReduction:
     Attributes
     ----------
     model : StateSpaceModel
-        The reduced model (dense), same ``D``, inputs, outputs and time domain.
+        The reduced model (dense), same ``D``, inputs, outputs and time domain; states
+        ``"balanced 1"``, ``"balanced 2"``, ... as in the dense result.
     hankel_singular_values : (k,) ndarray
         Approximate Hankel singular values, the singular values of ``Zo^T Zc`` (``k`` is the
         smaller factor rank), descending.
@@ -249,8 +251,9 @@ def low_rank_balanced_truncation(model, order=None, max_error=None, *,
         Ar = np.zeros((0, 0))
         Br, Cr = np.zeros((0, model.n_inputs)), np.zeros((model.n_outputs, 0))
     name = f"{model.name} (balanced truncation)" if model.name else None
-    reduced = StateSpaceModel(Ar, Br, Cr, model.D, model.dt, inputs=model.inputs,
-                              outputs=model.outputs, name=name)
+    reduced = StateSpaceModel(Ar, Br, Cr, model.D, model.dt,
+                              states=balanced_state_names(model.states, r),
+                              inputs=model.inputs, outputs=model.outputs, name=name)
     peak = estimate_peak_error(model, reduced, progress=progress) if check_error else None
     return LowRankReduction(reduced, hsv, _tail_bound(hsv, r), r, r, 0, model.n, 0.0, (),
                             structural, gramians, peak)

@@ -31,6 +31,7 @@ import numpy as np
 import scipy.linalg
 from scipy.linalg import lapack
 
+from plantcore.core.derived_names import balanced_state_names
 from plantcore.core.errors import AccuracyWarning, NumericalBreakdown
 from plantcore.core.model import StateSpaceModel, as_model, sparse_model_or_none
 from plantcore.core.safe_norms import frobenius
@@ -267,7 +268,10 @@ class ReducedModel:
     ----------
     model : StateSpaceModel
         The reduced model: the balanced, truncated stable part (states first) followed by
-        the unstable part, unreduced.  Same ``D``, inputs, outputs and time domain.
+        the unstable part, unreduced.  Same ``D``, inputs, outputs and time domain.  Its
+        states are ``"balanced 1"``, ``"balanced 2"``, ... (state ``k`` has the Hankel
+        singular value ``sigma_k``), then ``"unstable k"`` by position for the unstable
+        part (:func:`plantcore.core.derived_names.balanced_state_names`).
     hankel_singular_values : (n_stable,) ndarray
         All Hankel singular values of the original model's stable part, descending.
     error_bound : float
@@ -511,8 +515,9 @@ def balanced_truncation(model, order=None, max_error=None) -> ReducedModel:
     B_new = np.vstack([Br, sp.Bu])
     C_new = np.hstack([Cr, sp.Cu])
     name = f"{model.name} (balanced truncation)" if model.name else None
-    reduced = StateSpaceModel(A_new, B_new, C_new, model.D, model.dt, inputs=model.inputs,
-                              outputs=model.outputs, name=name)
+    reduced = StateSpaceModel(A_new, B_new, C_new, model.D, model.dt,
+                              states=balanced_state_names(model.states, r, nu),
+                              inputs=model.inputs, outputs=model.outputs, name=name)
     reduced = scaling.restore_balanced(reduced, model.D)
     return ReducedModel(reduced, hsv, float(bound), r + nu, r, nu, n, sp.decoupling_norm)
 

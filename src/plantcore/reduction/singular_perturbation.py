@@ -33,6 +33,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.linalg
 
+from plantcore.core.derived_names import balanced_state_names
 from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.reduction.balanced import balanced_truncation, truncation_error
 from plantcore.reduction.norms import peak_gain
@@ -60,7 +61,9 @@ class ResidualizedModel:
     model : StateSpaceModel
         The reduced model: the balanced, residualized stable part (states first) followed by
         the unstable part, unreduced.  Same inputs, outputs and time domain; ``D`` changes
-        (it absorbs the steady-state contribution of the residualized states).
+        (it absorbs the steady-state contribution of the residualized states).  States are
+        named as those of :class:`plantcore.ReducedModel` (``"balanced k"``, then
+        ``"unstable k"`` for the unstable part).
     hankel_singular_values : (n_stable,) ndarray
         All Hankel singular values of the original model's stable part, descending.
     error_bound : float
@@ -298,8 +301,9 @@ def balanced_residualization(model, *, order=None, max_error=None) -> Residualiz
         after = _steady_state(Ar, Br, Cr, Dr, discrete)
         difference = float(np.max(np.abs(before - after))) if before.size else 0.0
     name = f"{model.name} (balanced residualization)" if model.name else None
-    reduced = StateSpaceModel(Ar, Br, Cr, Dr, model.dt, inputs=model.inputs,
-                              outputs=model.outputs, name=name)
+    reduced = StateSpaceModel(Ar, Br, Cr, Dr, model.dt,
+                              states=balanced_state_names(model.states, r, nu),
+                              inputs=model.inputs, outputs=model.outputs, name=name)
     return ResidualizedModel(reduced, hsv, chosen.error_bound, r + nu, r, nu, model.n,
                              r_max - r, hsv.size - r_max, difference, cond,
                              chosen.decoupling_norm)
