@@ -152,3 +152,29 @@ def test_a_model_without_finite_zeros_has_infinite_distances():
     assert contents.zeros.finite_zeros.size == 0 and contents.zeros.infinite_zero_count == 2
     assert all(d.nearest_zero is None and d.distance == np.inf
                for d in contents.mode_zero_distances)
+
+
+@pytest.mark.parametrize("dt", [None, 0.1])
+def test_sampled_responses_of_a_large_model_agree_with_dense_solves(dt):
+    # above SCHUR_RESPONSE_STATES the responses come from one Schur form: the same
+    # singular values as a dense solve per frequency (both backward stable; common practice)
+    rng = np.random.default_rng(5)
+    n = report_contents.SCHUR_RESPONSE_STATES + 20
+    A = rng.standard_normal((n, n)) / math.sqrt(n) - 1.2 * np.eye(n)
+    if dt:
+        A /= 1.3 * np.max(np.abs(np.linalg.eigvals(A)))
+    model = pc.StateSpaceModel(A, rng.standard_normal((n, 2)), rng.standard_normal((3, n)),
+                               rng.standard_normal((3, 2)), dt=dt)
+    w = np.geomspace(1e-2, 30.0, 25)
+    points = np.exp(1j * w * dt) if dt else 1j * w
+    dense = np.array([np.linalg.svd(model.transfer_at(z), compute_uv=False) for z in points])
+    np.testing.assert_allclose(report_contents._singular_values(model, w), dense, rtol=1e-10)
+
+
+def test_a_grid_point_on_an_eigenvalue_is_left_out_of_a_large_model():
+    n = report_contents.SCHUR_RESPONSE_STATES + 2
+    A = np.diag(np.concatenate([[0.0], -np.arange(1.0, n)]))
+    A[0, 1] = 1.0
+    model = pc.StateSpaceModel(A, np.ones((n, 1)), np.ones((1, n)))
+    out = report_contents._singular_values(model, np.array([0.0, 1.0]))
+    assert np.isnan(out[0, 0]) and np.isfinite(out[1, 0])

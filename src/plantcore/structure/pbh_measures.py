@@ -176,8 +176,20 @@ class PBHMeasures:
             start = None
         T, bottom = schur.pair(X, side, real)
         n = T.shape[0]
+        shift = lam.real if real else np.conj(lam)
+        if bottom.shape[0] == 0:
+            # sigma_min(A - lam I) alone: the shift is written into the cached triangle's
+            # diagonal in place and the saved diagonal put back, so no n x n copy is made
+            index = np.diag_indices(n)
+            saved = T[index].copy()
+            try:
+                T[index] = saved - shift
+                value, z = _triangle_smallest(T, None if start is None else start[1], rtol)
+            finally:
+                T[index] = saved
+            return (value, z, real) if vector else value
         top = np.array(T, order="F")
-        top[np.diag_indices(n)] -= lam.real if real else np.conj(lam)
+        top[np.diag_indices(n)] -= shift
         cplx = np.iscomplexobj(top)
         tpqrt = lapack.ztpqrt if cplx else lapack.dtpqrt
         R, _, _, info = tpqrt(0, max(1, min(32, n)), top, np.array(bottom, order="F"),
