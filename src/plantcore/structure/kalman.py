@@ -41,6 +41,7 @@ from plantcore.core.errors import AccuracyWarning, NumericalBreakdown
 from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.core.rank import RankDecision, any_fragile, resolve_tolerance
 from plantcore.core.safe_norms import frobenius
+from plantcore.structure.balancing_connectivity import balancing_connectivity
 from plantcore.structure.certificate import modal_certificate
 from plantcore.structure.reconcile import (
     certificate_decisions,
@@ -534,7 +535,8 @@ def _decomposition(p: _Prepared) -> KalmanDecomposition:
     T_inv /= s[None, :]
     del T_e, Ti_e
     sizes = PartSizes(n1, n2, n3c, n4)
-    decisions = confirm_window(decisions, cert, sizes, state_scaling=p.s)
+    decisions = confirm_window(decisions, cert, sizes, state_scaling=p.s,
+                               connectivity=lambda: balancing_connectivity(p.A, p.B, p.C))
     if cert is not None and certificate_finds_more(cert.sizes(), sizes):
         spectral = spectral_decomposition(p.A, p.B, p.C, cert)
         if spectral is not None:

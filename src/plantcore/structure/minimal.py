@@ -11,6 +11,7 @@ from plantcore.core.errors import NumericalBreakdown
 from plantcore.core.model import StateSpaceModel
 from plantcore.core.rank import any_fragile
 from plantcore.core.safe_norms import frobenius
+from plantcore.structure.balancing_connectivity import balancing_connectivity
 from plantcore.structure.kalman import _decompose, _prepare, _start
 from plantcore.structure.reconcile import certificate_decisions, confirm_window
 from plantcore.structure.removed_modes import (
@@ -140,7 +141,9 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
                 pass
         if disagree:
             staircase_like = (r, nc - r, n - nc, 0)   # the conflict is recorded below
-        decisions = confirm_window(decisions, cert, staircase_like, state_scaling=p.s)
+        decisions = confirm_window(
+            decisions, cert, staircase_like, state_scaling=p.s,
+            connectivity=lambda: balancing_connectivity(p.A, p.B, p.C))
         decisions = decisions + certificate_decisions(cert, staircase_like)
     # The minimal model is the leading block of the second staircase, in the coordinates
     # W1 = U1 diag(Z, I) (or Z alone when everything is controllable); only the r kept

@@ -25,8 +25,14 @@ from plantcore.core.equilibration import Equilibration, equilibrate, io_scaled
 from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.core.rank import FRAGILITY_FACTOR, RankDecision, any_fragile, resolve_tolerance
 from plantcore.core.safe_norms import frobenius, frobenius_of_columns, frobenius_of_rows
+from plantcore.structure.balancing_connectivity import balancing_connectivity
 from plantcore.structure.certificate import modal_certificate, schur_eigenvalues
-from plantcore.structure.reconcile import confirm_window, supersede, undecided_text
+from plantcore.structure.reconcile import (
+    MILD_SCALING_ORDERS,
+    confirm_window,
+    supersede,
+    undecided_text,
+)
 from plantcore.structure.staircase_kernels import reduce_staircase
 
 __all__ = ["StaircaseForm", "controllability_staircase", "observability_staircase"]
@@ -149,12 +155,18 @@ def _controllability(model, tol, label="controllability"):
             decisions = (supersede(red.decisions) + tuple(decisions)
                          + _certificate_check(cert, int(sum(blocks)), label, decided=True))
             return model, eq, A_t, B_t / g[None, :], C_t, U, blocks, decisions
+    # the equilibrated arrays are kept only where the window rule may ask how well the
+    # balancing is determined (states rescaled beyond MILD_SCALING_ORDERS)
+    s = eq.state_scaling
+    kept = (A_e, B_s, C_e) if s.size and s.max() > s.min() * 2.0 ** MILD_SCALING_ORDERS \
+        else None
     del A_e, C_e, B_s
     U = red.form_U()
     red.transforms.clear()
     B_t = red.B / g[None, :]  # back to the user's input units (exact: powers of two)
-    decisions = confirm_window(tuple(red.decisions), cert, None, rank=rank,
-                               state_scaling=eq.state_scaling) + check
+    decisions = confirm_window(
+        tuple(red.decisions), cert, None, rank=rank, state_scaling=s,
+        connectivity=None if kept is None else lambda: balancing_connectivity(*kept)) + check
     return model, eq, red.A, B_t, red.C, U, red.blocks, decisions
 
 
