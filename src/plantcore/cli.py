@@ -109,17 +109,6 @@ def _check_output_first(path, *, inputs, force: bool, suffixes, kind: str,
                          f"(give {_FORCE} to replace it, or choose another name).")
 
 
-def cleared_note(written) -> str:
-    """The line ``reduce`` prints under "written to" about entries written as exact zeros
-    (:class:`plantcore.files.written_zeros.ClearedModel`); empty when none were cleared."""
-    if not written.cleared:
-        return ""
-    entries = "1 entry" if written.cleared == 1 else f"{written.cleared} entries"
-    return (f"  {entries} at rounding level written as exact 0 (together "
-            f"{written.change:.2g} of the model's scale, within the computation's backward "
-            f"error {written.backward_error:.2g})")
-
-
 def _add_force(parser) -> None:
     parser.add_argument(_FORCE, action="store_true", dest="force",
                         help="replace an existing output file (never an input file)")
@@ -140,13 +129,11 @@ def _cmd_inspect(args) -> int:
         from plantcore.commands.sparse_models import inspect_sparse
 
         return inspect_sparse(args, model)
-    from plantcore.core.progress import Progress
-    from plantcore.core.wording import counted
+    from plantcore.commands.progress_option import stages
 
-    # coarse stages: analyze() itself reports nothing finer (on stderr, terminal only unless
-    # --progress)
-    with Progress("inspect", 2, enabled=True if args.progress else None) as bar:
-        bar.step(f"analysing {counted(model.n, 'state')} (decomposition, modes, distances)")
+    # coarse stages: analyze() reports nothing finer; the line shows the time spent
+    with stages("inspect", args, 2) as bar:
+        bar.step("Kalman parts, mode table, distance search")
         analysis = analyze(model, tol=args.tol)
         bar.step("formatting")
     if args.format == "json":
@@ -159,10 +146,9 @@ def _cmd_inspect(args) -> int:
 
 
 def _cmd_reduce(args) -> int:
-    from plantcore.files import load_model, save_model
+    from plantcore.commands.progress_option import stages
+    from plantcore.files import load_model
     from plantcore.files.layout import MODEL_FILE_SUFFIXES
-    from plantcore.structure.minimal import minimal_realization
-    from plantcore.structure.removed_modes import hidden_mode_message
 
     _check_output_first(args.output, inputs=(args.model,), force=args.force,
                         suffixes=MODEL_FILE_SUFFIXES, kind="model file format",
@@ -172,81 +158,105 @@ def _cmd_reduce(args) -> int:
         from plantcore.commands.sparse_models import reduce_sparse
 
         return reduce_sparse(args, model)
+    truncate = args.order is not None or args.max_error is not None
+    # what the command prints waits until the progress line is closed, so that the two
+    # never share a line of the terminal
+    lines = []
+    bar = stages("reduce", args, 4 if truncate else 2)
+    try:
+        return _reduce_dense(args, model, bar, truncate,
+                             lambda text="", err=False: lines.append((text, err)))
+    finally:
+        bar.close()
+        for text, err in lines:
+            print(text, file=sys.stderr if err else sys.stdout)
+
+
+def _reduce_dense(args, model, bar, truncate: bool, say) -> int:
+    from plantcore.files import save_model
     from plantcore.files.written_zeros import (
         a_priori_backward_error,
         clear_rounding_dust,
         reduction_backward_error,
     )
+    from plantcore.structure.minimal import minimal_realization
+    from plantcore.structure.removed_modes import hidden_mode_message
 
+    bar.step(f"minimal realization of {model.n} states")
     minimal = minimal_realization(model, tol=args.tol)
     # rounding dust within the reduction's backward error is written as exact zeros, and
     # the certificate below is run on what is written
     written = clear_rounding_dust(minimal.model, reduction_backward_error(minimal, model.n),
                                   reference=model)
     reduced = written.model
-    print(f"minimal realization: {model.n} -> {minimal.order} states "
+    say(f"minimal realization: {model.n} -> {minimal.order} states "
           f"({minimal.removed_uncontrollable} uncontrollable and "
           f"{minimal.removed_unobservable} unobservable removed)")
     if minimal.fragile:
-        print("warning: a rank decision lies within a factor 100 of the tolerance; "
+        say("warning: a rank decision lies within a factor 100 of the tolerance; "
               "the order depends on the tolerance.")
-    if args.order is not None or args.max_error is not None:
+    if truncate:
         from plantcore.reduction.balanced import balanced_truncation, truncation_error
 
+        bar.step(f"balanced truncation of {reduced.n} states")
         truncated = balanced_truncation(reduced, order=args.order, max_error=args.max_error)
         written = clear_rounding_dust(truncated.model, a_priori_backward_error(reduced.n),
                                       reference=model)
         reduced = written.model
+        bar.step("measured error (peak gain of original - reduced)")
         measured = truncation_error(model, reduced)
         kept = (f"; {truncated.unstable_order} unstable kept unreduced"
                 if truncated.unstable_order else "")
-        print(f"balanced truncation: {truncated.original_order} -> {truncated.order} states"
+        say(f"balanced truncation: {truncated.original_order} -> {truncated.order} states"
               f"{kept}")
-        print(f"error bound (2 x sum of discarded Hankel singular values): "
+        say(f"error bound (2 x sum of discarded Hankel singular values): "
               f"{truncated.error_bound:.6g}")
         unit = "rad/sample" if reduced.is_discrete else "rad/s"
-        print(f"measured error (peak gain of original - reduced): {measured.value:.6g} "
+        say(f"measured error (peak gain of original - reduced): {measured.value:.6g} "
               f"at {measured.frequency:.6g} {unit}")
     removed = minimal.removed_unstable_modes
     if removed:
-        print("WARNING: " + _one_line(hidden_mode_message(removed, "the minimal realization")),
-              file=sys.stderr)
+        say("WARNING: " + _one_line(hidden_mode_message(removed, "the minimal realization")), err=True)
         if not args.accept_hidden_unstable:
-            print(f"plantcore reduce: {args.output} was not written; give {_ACKNOWLEDGE} to "
-                  "write the reduced model anyway (exit 1).", file=sys.stderr)
+            say(f"plantcore reduce: {args.output} was not written; give {_ACKNOWLEDGE} to "
+                  "write the reduced model anyway (exit 1).", err=True)
             return EXIT_HIDDEN_UNSTABLE
     save_model(reduced, args.output, inputs=(args.model,), overwrite=args.force)
-    print(f"reduced model written to {args.output}")
-    note = cleared_note(written)
-    if note:
-        print(note)
+    say(f"reduced model written to {args.output}")
+    if written.cleared:
+        say("  " + written.describe())
     from plantcore.reduction.equivalence import check_equivalence
 
-    print()
-    if args.order is not None or args.max_error is not None:
-        print("The certificate below compares the truncated model with the original; a "
+    say()
+    if truncate:
+        say("The certificate below compares the truncated model with the original; a "
               "truncation removes real dynamics, so 'not equivalent' is expected and the "
               "peak error is what to judge against the bound.")
+    bar.step("certificate of the written model")
     certificate = check_equivalence(model, reduced)
-    print(certificate.to_text(labels=(args.model, args.output)))
-    truncated = args.order is not None or args.max_error is not None
-    if certificate.verdict == "undecided" and not truncated:
+    say(certificate.to_text(labels=(args.model, args.output)))
+    if certificate.verdict == "undecided" and not truncate:
         return EXIT_UNDECIDED
-    if certificate.verdict == "not equivalent" and not truncated:
-        print("WARNING: the written minimal realization is NOT EQUIVALENT to the model; do not "
-              "use it (exit 1).", file=sys.stderr)
+    if certificate.verdict == "not equivalent" and not truncate:
+        say("WARNING: the written minimal realization is NOT EQUIVALENT to the model; do not "
+              "use it (exit 1).", err=True)
         return EXIT_NOT_EQUIVALENT
     return EXIT_OK
 
 
 # --- compare ---
 def _cmd_compare(args) -> int:
+    from plantcore.commands.progress_option import stages
     from plantcore.files import load_model
     from plantcore.reduction.equivalence import check_equivalence
 
     first = load_model(args.model_a)
     second = load_model(args.model_b)
-    certificate = check_equivalence(first, second, tol=args.tol, exact=args.exact)
+    with stages("compare", args, 1) as bar:
+        # the exact comparison shows its own line (Markov parameters), below this one
+        bar.step("certificate (floating point" + (", then exact rational arithmetic)"
+                                                   if args.exact else ")"))
+        certificate = check_equivalence(first, second, tol=args.tol, exact=args.exact)
     print(certificate.to_text(labels=(args.model_a, args.model_b)))
     if certificate.verdict == "undecided":
         return EXIT_UNDECIDED
@@ -268,9 +278,11 @@ def _cmd_report(args) -> int:
         from plantcore.commands.sparse_models import report_sparse
 
         return report_sparse(args, model)
+    from plantcore.commands.progress_option import progress_setting
+
     contents = write_html_report(model, args.output, tol=args.tol, order=args.order,
                                  max_error=args.max_error, source=args.model,
-                                 overwrite=args.force).contents
+                                 progress=progress_setting(args), overwrite=args.force).contents
     red = contents.reduction
     reduced = f", reduced {red.order}" if red is not None else ""
     print(f"report written to {args.output} ({model.n} states, minimal "
@@ -286,9 +298,10 @@ def _cmd_report(args) -> int:
 
 # --- demo ---
 def _cmd_demo(args) -> int:
+    from plantcore.commands.progress_option import progress_setting
     from plantcore.demo import run_demo
 
-    run_demo(args.output, example=args.example)
+    run_demo(args.output, example=args.example, progress=progress_setting(args))
     return EXIT_OK
 
 
@@ -300,15 +313,22 @@ def _cmd_audit(args) -> int:
     if args.output:
         _check_output_first(args.output, inputs=(args.jacobians, args.expected),
                             force=args.force, suffixes=_HTML_SUFFIXES, kind="report")
-    audit = audit_from_file(args.jacobians, expected_unobservable=args.expected, tol=args.tol)
-    verdict = EXIT_SPURIOUS if audit.spurious_dimension else EXIT_OK
-    if args.output:  # written before anything is printed: a refused output prints one line only
-        from plantcore.files import atomic_write
+    from plantcore.commands.progress_option import stages
 
-        # the page is rendered only once the output path has passed atomic_write's checks
-        atomic_write(args.output,
-                     lambda f: f.write(audit_html(audit, source=args.jacobians).encode("utf-8")),
-                     inputs=(args.jacobians, args.expected), overwrite=args.force)
+    with stages("audit", args, 2 if args.output else 1) as bar:
+        bar.step("observability matrix and rank decisions")
+        audit = audit_from_file(args.jacobians, expected_unobservable=args.expected,
+                                tol=args.tol)
+        if args.output:  # written before anything is printed: a refused output prints one line
+            from plantcore.files import atomic_write
+
+            def render(f):  # rendered only once the path has passed atomic_write's checks
+                bar.step("report plots")
+                f.write(audit_html(audit, source=args.jacobians).encode("utf-8"))
+
+            atomic_write(args.output, render, inputs=(args.jacobians, args.expected),
+                         overwrite=args.force)
+    verdict = EXIT_SPURIOUS if audit.spurious_dimension else EXIT_OK
     print(audit_text(audit, source=args.jacobians))
     if args.output:
         print(f"report written to {args.output}")
@@ -336,8 +356,10 @@ def _cmd_sweep(args) -> int:
                              "python -m pip install 'plantcore[cluster]'.") from None
     reduced_order = args.reduced_order if args.reduced_order is not None else spec.reduced_order
     tol = args.tol if args.tol is not None else spec.tolerance
+    from plantcore.commands.progress_option import progress_setting
+
     result = sweep(spec.build, spec.points, executor=executor, scheduler=args.scheduler,
-                   reduced_order=reduced_order, tol=tol)
+                   reduced_order=reduced_order, tol=tol, progress=progress_setting(args))
     files = write_sweep_folder(result, args.output, spec=spec)
     print(f"swept {len(result.rows)} points in {result.elapsed_seconds:.1f} s "
           f"({len(result.failed)} failed); wrote {len(files)} files to {args.output}")
@@ -365,6 +387,8 @@ def _build_parser() -> argparse.ArgumentParser:
     from plantcore.core.version import __version__
 
     parser.add_argument("--version", action="version", version=f"plantcore {__version__}")
+    from plantcore.commands.progress_option import add_progress_option
+
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
     p = sub.add_parser("inspect", help="part sizes, rank decisions and verdicts of a model",
@@ -374,16 +398,14 @@ def _build_parser() -> argparse.ArgumentParser:
     p.add_argument("--format", choices=("text", "markdown", "json"), default="text",
                    help="how to print the analysis (default text; json keeps every value "
                         "unrounded, text and markdown show values at rounding level as 0)")
-    p.add_argument("--progress", action="store_true",
-                   help="show progress on standard error even when it is not a terminal "
-                        "(default: only on a terminal)")
+    add_progress_option(p)
 
     p = sub.add_parser("reduce", help="write a minimal (or balanced-truncated) model",
                        description="Write a minimal (or balanced-truncated) model and print "
                                    "its equivalence certificate.",
                        epilog=_REDUCE_EXIT_CODES + " " + _OVERWRITE_POLICY)
     p.add_argument("model", help="model file (.toml, .json or .npz)")
-    p.add_argument("-o", "--output", required=True, help="file for the reduced model")
+    p.add_argument("-o", "--output", required=True, help="file for the reduced model (required; .toml, .json or .npz)")
     group = p.add_mutually_exclusive_group()
     group.add_argument("--order", type=int, default=None,
                        help="balanced truncation to this order after minimal realization "
@@ -398,6 +420,7 @@ def _build_parser() -> argparse.ArgumentParser:
                         "designed on the reduced model can stabilize the plant through it); "
                         "the WARNING is still printed and the exit code is 0")
     _add_force(p)
+    add_progress_option(p)
 
     # --- compare ---
     p = sub.add_parser("compare", help="certify that two models have the same transfer matrix "
@@ -413,11 +436,12 @@ def _build_parser() -> argparse.ArgumentParser:
     p.add_argument("--exact", action="store_true",
                    help="also compare in exact rational arithmetic and let that decide "
                         "(small models; file numbers are taken at their exact binary value)")
+    add_progress_option(p)
     # --- report ---
     p = sub.add_parser("report", help="write a self-contained HTML report with plots",
                        epilog=_EXIT_CODES["report"] + " " + _OVERWRITE_POLICY)
     p.add_argument("model", help="model file (.toml, .json or .npz)")
-    p.add_argument("-o", "--output", required=True, help="HTML file to write")
+    p.add_argument("-o", "--output", required=True, help="HTML file to write (required)")
     p.add_argument("--tol", type=float, default=None, help=_TOL_HELP)
     group = p.add_mutually_exclusive_group()
     group.add_argument("--order", type=int, default=None,
@@ -427,6 +451,7 @@ def _build_parser() -> argparse.ArgumentParser:
                        help="truncate to the lowest order whose error bound is below this "
                             "(default: a tenth of the peak gain)")
     _add_force(p)
+    add_progress_option(p)
     # --- demo ---
     p = sub.add_parser("demo", help="run inspect, reduce, compare and report on a packaged example",
                        epilog=_EXIT_CODES["demo"])
@@ -435,6 +460,7 @@ def _build_parser() -> argparse.ArgumentParser:
                         "plantcore-demo-YYYYMMDD-HHMMSS in the working directory")
     p.add_argument("--example", default="thermal_process",
                    help="packaged example to use (default thermal_process; also motion_axis)")
+    add_progress_option(p)
     # --- audit ---
     p = sub.add_parser("audit", help="observability audit of the Jacobians a linearized "
                                      "estimator used (exit 1 on spurious observability)",
@@ -444,26 +470,30 @@ def _build_parser() -> argparse.ArgumentParser:
                         "(K, p, n) and optionally expected_unobservable (n, d), "
                         "measurement_noise, state_scale, state_names")
     p.add_argument("--expected", default=None, metavar="BASIS.npy",
-                   help="expected unobservable basis (n, d); overrides the one in the archive")
+                   help="expected unobservable basis (n, d); overrides the one in the archive "
+                        "(default: the archive's expected_unobservable)")
     p.add_argument("-o", "--output", default=None, metavar="REPORT.html",
-                   help="also write a self-contained HTML report with plots")
+                   help="also write a self-contained HTML report with plots (default: none, "
+                        "only the text summary is printed)")
     p.add_argument("--tol", type=float, default=None, help=_TOL_HELP)
     _add_force(p)
+    add_progress_option(p)
     # --- sweep ---
     p = sub.add_parser("sweep", help="analyze a model family over a grid or random draws of "
                                      "its parameters", epilog=_EXIT_CODES["sweep"])
     p.add_argument("spec", help="sweep specification (.toml) with expressions in parameters")
     p.add_argument("-o", "--output", required=True,
-                   help="new (or empty) folder for the table, plots and summary")
+                   help="new (or empty) folder for the table, plots and summary (required)")
     p.add_argument("--executor", choices=("serial", "local", "dask"), default=None,
                    help="where the points run (default: local process pool, or dask with "
                         "--scheduler)")
     p.add_argument("--scheduler", default=None,
-                   help="Dask scheduler address, e.g. tcp://127.0.0.1:8786")
+                   help="Dask scheduler address, e.g. tcp://127.0.0.1:8786 (default: none)")
     p.add_argument("--reduced-order", type=int, default=None, dest="reduced_order",
                    help="also measure the error of a balanced truncation to this order "
                         "(default: the spec's [analysis] reduced_order, else none)")
     p.add_argument("--tol", type=float, default=None, help=_TOL_HELP)
+    add_progress_option(p)
     # --- commands in modules of their own (plantcore.commands) ---
     import importlib
 
@@ -510,7 +540,7 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         print("plantcore: interrupted", file=sys.stderr)
         return 130
-    except Exception as exc:  # a defect or numerical breakdown: still one line, distinct code
+    except Exception as exc:  # noqa: BLE001  (a defect: still one line, a distinct code)
         print(f"plantcore {args.command}: internal error ({type(exc).__name__}): {_one_line(exc)}",
               file=sys.stderr)
         return EXIT_INTERNAL

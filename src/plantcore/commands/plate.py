@@ -17,14 +17,18 @@ def register(subparsers):
     p = subparsers.add_parser(
         "plate", help="write the generated heated-plate example (a large sparse model)",
         description="Write the drying-table plate of our own scenario (3 heater strips, 4 "
-                    "sensors, 5-point heat conduction) as a sparse model file.")
+                    "sensors, 5-point heat conduction) as a sparse model file.",
+        epilog="An existing output file is kept unless --force is given. exit codes: 0 the "
+               "model was written; 2 bad input or refused output; 3 numerical breakdown.")
     p.add_argument("-o", "--output", required=True,
-                   help="model file to write: .npz (one sparse archive) or .toml (a manifest "
-                        "with Matrix Market .mtx files beside it)")
+                   help="model file to write (required): .npz (one sparse archive) or .toml "
+                        "(a manifest with Matrix Market .mtx files beside it)")
     p.add_argument("--size", type=int, default=DEFAULT_PLATE_SIZE,
                    help=f"number of states, rounded to a square grid (default "
                         f"{DEFAULT_PLATE_SIZE:,}; 100000 and more work)")
-    p.add_argument("--force", action="store_true", help="replace an existing output file")
+    from plantcore.cli import _add_force
+
+    _add_force(p)
     return _run
 
 

@@ -51,8 +51,10 @@ def register(subparsers):
     p.add_argument("--format", choices=_FORMATS, default="text",
                    help="what to print: text (default) or json")
     from plantcore.cli import _add_force
+    from plantcore.commands.progress_option import add_progress_option
 
     _add_force(p)
+    add_progress_option(p)
     return _handler
 
 
@@ -79,10 +81,14 @@ def _handler(args) -> int:
                            args.data)
     noise_level = _resolve(args.noise_level, data.noise_level, "--noise-level", "noise_level",
                            args.data)
+    from plantcore.commands.progress_option import stages
+
     try:
-        fit = realize_impulse_response(data.values, sample_time=sample_time, order=args.order,
-                                       noise_level=noise_level, inputs=data.inputs,
-                                       outputs=data.outputs)
+        with stages("realize", args, 1) as bar:
+            bar.step("block Hankel matrix, its singular values and the order decision")
+            fit = realize_impulse_response(data.values, sample_time=sample_time,
+                                           order=args.order, noise_level=noise_level,
+                                           inputs=data.inputs, outputs=data.outputs)
     except ValueError as exc:  # name the file and the field the problem belongs to
         field = "--order" if str(exc).startswith("order") else "impulse_response"
         raise ModelFileError(args.data, field, str(exc)) from None

@@ -2,26 +2,22 @@
 
 :mod:`plantcore.cli` hands a model here when ``model.is_sparse``; these handlers call
 :mod:`plantcore.large` and print or write what :mod:`plantcore.reports.sparse_report`
-renders.  Progress goes to standard error (only when it is a terminal, like every progress
-line of plantcore).  Not a subcommand of its own: :func:`register` adds nothing.
+renders.  Progress goes to standard error by the convention of
+:mod:`plantcore.commands.progress_option` (on a terminal, or with ``--progress``).  Not a
+subcommand of its own: :func:`register` adds nothing.
 """
 
 from __future__ import annotations
 
 import json
 
-from plantcore.core.progress import Progress
+from plantcore.commands.progress_option import stages
 
 __all__ = ["inspect_sparse", "reduce_sparse", "register", "report_sparse"]
 
 
 def register(subparsers) -> None:
     """Nothing to register: the handlers serve the existing commands."""
-
-
-def _progress(args):
-    """True with ``--progress`` (where the command has it), else: only on a terminal."""
-    return True if getattr(args, "progress", False) else None
 
 
 def _tolerance_note(args) -> None:
@@ -42,7 +38,7 @@ def inspect_sparse(args, model) -> int:
         sparse_summary_text,
     )
 
-    with Progress("inspect", enabled=_progress(args)) as bar:
+    with stages("inspect", args) as bar:
         summary = summarize_sparse(model, progress=bar.step)
     if args.format == "json":
         print(json.dumps(sparse_summary_dict(summary), indent=2, allow_nan=False))
@@ -57,7 +53,6 @@ def reduce_sparse(args, model) -> int:
     _tolerance_note(args)
     import dataclasses
 
-    from plantcore.cli import cleared_note
     from plantcore.files import save_model
     from plantcore.files.written_zeros import balanced_backward_error, clear_rounding_dust
     from plantcore.large.frequency import estimate_peak_error
@@ -65,7 +60,7 @@ def reduce_sparse(args, model) -> int:
     from plantcore.reports.sparse_report import sparse_reduction_lines
 
     # the output was checked by the command before the model was read
-    with Progress("reduce", enabled=_progress(args)) as bar:
+    with stages("reduce", args) as bar:
         reduction = low_rank_balanced_truncation(model, order=args.order,
                                                  max_error=args.max_error, check_error=False,
                                                  progress=bar.step)
@@ -82,9 +77,8 @@ def reduce_sparse(args, model) -> int:
         print(line)
     save_model(reduction.model, args.output, inputs=(args.model,), overwrite=args.force)
     print(f"reduced model written to {args.output} (dense, {reduction.order} states)")
-    note = cleared_note(written)
-    if note:
-        print(note)
+    if written.cleared:
+        print("  " + written.describe())
     return 0
 
 
@@ -93,7 +87,7 @@ def report_sparse(args, model) -> int:
     from plantcore.large.summary import sparse_report_contents
     from plantcore.reports.sparse_report import write_sparse_html_report
 
-    with Progress("report", enabled=_progress(args)) as bar:
+    with stages("report", args) as bar:
         contents = sparse_report_contents(model, order=args.order, max_error=args.max_error,
                                           progress=bar.step)
     write_sparse_html_report(contents, args.output, source=args.model, inputs=(args.model,),

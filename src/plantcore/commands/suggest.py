@@ -18,13 +18,17 @@ EXIT_NOT_REACHED = 1
 def _handler(args) -> int:
     import json
 
+    from plantcore.commands.progress_option import stages
     from plantcore.files import load_model
     from plantcore.structure.placement import suggest_actuators, suggest_sensors
 
     model = load_model(args.model)
     suggest = suggest_sensors if args.sensors else suggest_actuators
-    suggestion = suggest(model, args.candidates, target_margin=args.target_margin,
-                         max_count=args.max_count, goal=args.goal, tol=args.tol)
+    with stages("suggest", args, 1) as bar:
+        bar.step(f"mode table and greedy search over the candidate "
+                 f"{'sensors' if args.sensors else 'actuators'}")
+        suggestion = suggest(model, args.candidates, target_margin=args.target_margin,
+                             max_count=args.max_count, goal=args.goal, tol=args.tol)
     if args.format == "json":
         print(json.dumps(suggestion.to_dict(), indent=2, allow_nan=False))
     elif args.format == "markdown":
@@ -65,4 +69,7 @@ def register(subparsers):
     p.add_argument("--format", choices=("text", "markdown", "json"), default="text",
                    help="how to print the suggestion (default text; json keeps every value "
                         "unrounded, text and markdown show margins at rounding level as 0)")
+    from plantcore.commands.progress_option import add_progress_option
+
+    add_progress_option(p)
     return _handler

@@ -89,6 +89,15 @@ class ClearedModel:
     backward_error: float
     change: float
 
+    def describe(self) -> str:
+        """One sentence on the entries written as exact zeros; empty when there are none."""
+        if not self.cleared:
+            return ""
+        entries = "1 entry" if self.cleared == 1 else f"{self.cleared} entries"
+        return (f"{entries} at rounding level written as exact 0 (together {self.change:.2g} "
+                f"of the model's scale, within the computation's backward error "
+                f"{self.backward_error:.2g})")
+
 
 def a_priori_backward_error(n: int) -> float:
     """``n eps``: first-order backward error of orthogonal reductions on ``n`` states.
