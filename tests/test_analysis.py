@@ -136,8 +136,8 @@ def test_text_report_names_the_failing_verdicts():
         a = pc.analyze((A, [[0.0], [1.0]], [[0.0, 1.0]]))
     assert not a.stabilizable and not a.detectable
     text = a.to_text()
-    assert "stabilizable  NO   the inputs cannot move the mode(s) 0.5" in text
-    assert "detectable    NO   the outputs cannot see the mode(s) 0.5" in text
+    assert "stabilizable  NO   the inputs cannot move the mode 0.5, which is not stable" in text
+    assert "detectable    NO   the outputs cannot see the mode 0.5, which is not stable" in text
 
 
 def test_markdown_report():
@@ -300,7 +300,7 @@ def test_stable_hidden_mode_gives_a_quiet_analysis():
         a = pc.analyze((np.diag([-1.0, -2.0, -0.5]), HIDDEN[1], HIDDEN[2]))
     assert a.removed_unstable_modes == () and a.minimal_order == 2
     text = a.to_text()
-    assert "WARNING" not in text and "hidden modes  none" in text
+    assert "WARNING" not in text and "hidden modes  no   every mode outside part 1" in text
 
 
 def test_inspect_shows_the_hidden_mode_without_a_python_warning(tmp_path, capsys, recwarn):

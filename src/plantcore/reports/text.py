@@ -50,7 +50,7 @@ def decision_method(decision) -> str:
     orthogonal staircase step, the modal certificate (mode by mode; a check of the
     staircase when it decides nothing itself), or the reduction of the system pencil."""
     if decision.label.startswith("modal certificate"):
-        return "modal certificate" + (" (check)" if decision.check_only else "")
+        return "modal certificate" + (", check only" if decision.check_only else "")
     if decision.label.startswith("zeros"):
         return "pencil reduction"
     if "step" in decision.label:
@@ -121,7 +121,7 @@ def _hidden_lines(a) -> list[str]:
 def _hidden_verdict(a) -> tuple[str, str, str]:
     removed = a.removed_unstable_modes
     if not removed:
-        return ("hidden modes", "none",
+        return ("hidden modes", "no",
                 "every mode outside part 1 (removed by the minimal realization) is stable")
     words = "; ".join(m.describe() for m in removed if m.value.imag >= 0)
     verb = "is" if len(removed) == 1 else "are"
@@ -143,8 +143,10 @@ def _verdict_lines(a) -> list[tuple[str, str, str]]:
             rows.append((name, "yes", why))
         else:
             bad = [m for m in not_stable if not getattr(m, attr)]
-            rows.append((name, "NO", (f"{cannot} the mode(s) "
-                         f"{_mode_list(bad, _scale(a), a.model.is_discrete)}, which are not stable")))
+            modes, verb = ("the mode", "is") if len(bad) == 1 else ("the modes", "are")
+            rows.append((name, "NO", (f"{cannot} {modes} "
+                         f"{_mode_list(bad, _scale(a), a.model.is_discrete)}, which {verb} not "
+                         "stable")))
     if a.is_minimal:
         rows.append(("minimal", "yes", "every state is controllable and observable"))
     else:
