@@ -35,13 +35,15 @@ def register(subparsers):
 def _run(args) -> int:
     import os
 
+    from plantcore.cli import _check_output_first
     from plantcore.examples.heated_plate import heated_plate
-    from plantcore.files import check_output_path, save_model
+    from plantcore.files import save_model
 
     if os.path.splitext(args.output)[1].lower() not in (".npz", ".toml"):
         raise ValueError(f"{args.output}: file: a sparse model is written as .npz (one archive) "
                          "or .toml (a manifest with Matrix Market files).")
-    check_output_path(args.output, overwrite=args.force)  # refuse before building
+    _check_output_first(args.output, inputs=(), force=args.force, suffixes=(".npz", ".toml"),
+                        kind="model file format", suffix_selects_format=True)  # before building
     model = heated_plate(args.size)
     save_model(model, args.output, overwrite=args.force)
     print(f"wrote {args.output}: {model.name}, {model.n:,} states, {model.A.nnz:,} nonzeros")

@@ -46,7 +46,7 @@ def register(subparsers):
                     "restore and the PBH margin they reach, and recommend a smallest set that "
                     "makes the model controllable (observable).",
         epilog="exit codes: 0 the recommended set reaches the goal; 1 no set of the candidates "
-               "reaches it (or not within --max-count); 2 bad input.")
+               "reaches it (or not within --max-count); 2 bad input; 3 numerical breakdown.")
     p.add_argument("model", help="model file (.toml, .json or .npz)")
     p.add_argument("--candidates", default=None, metavar="FILE",
                    help="TOML file with [[actuator]] (or [[sensor]]) tables: name and column "
