@@ -52,3 +52,32 @@ def test_rounding_rule_and_direction_order():
     assert describe_direction([0.7071067811865475, 0.7071067811865476], ["p1", "p2"]) == \
         "0.71 p1 + 0.71 p2"
     assert describe_direction([0.3, -0.9, 0.3], ["a", "b", "c"]) == "0.90 b - 0.30 a - 0.30 c"
+
+
+def test_removed_integrators_are_named_0_in_every_message(tmp_path, capsys):
+    # two free masses with one shared force and the sum of positions measured: the difference
+    # mode (a double integrator) is removed; its computed eigenvalues lie at rounding level
+    # of 0 (-5.6e-17 here) and every message must call them 0 (issue 21 item 2, by hand)
+    from plantcore.analysis.report_contents import collect_report
+    from plantcore.cli import main
+    from plantcore.reports.html import render_html
+
+    A = [[0, 1, 0, 0], [0, 0, 0, 0], [0, 0, 0, 1], [0, 0, 0, 0]]
+    model = pc.StateSpaceModel(A, [[0], [1], [0], [1]], [[1, 0, 1, 0]])
+    with pytest.warns(pc.HiddenModeWarning):
+        a = pc.analyze(model)
+    assert a.removed_unstable_modes and any(m.value != 0 for m in a.removed_unstable_modes)
+    text = a.to_text()
+    warning = next(line for line in text.splitlines() if line.startswith("WARNING"))
+    verdict = next(line for line in text.splitlines() if "hidden modes" in line)
+    for line in (warning, verdict):
+        assert "removed 2 modes" in line or "removes 2 modes" in line
+        assert ": 0 (on the stability boundary" in line and "e-1" not in line, line
+    page = render_html(collect_report(model, analysis=a, progress=False), progress=False)
+    alert = page.split('<div class="alert" role="alert">', 1)[1].split("</div>", 1)[0]
+    assert ": 0 (on the stability boundary" in alert and "e-1" not in alert
+    path = tmp_path / "masses.toml"
+    pc.save_model(model, path)
+    assert main(["reduce", str(path), "-o", str(tmp_path / "r.toml")]) == 1
+    err = capsys.readouterr().err
+    assert ": 0 (on the stability boundary" in err and "e-1" not in err.split("\n")[0]

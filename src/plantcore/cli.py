@@ -179,6 +179,7 @@ def _reduce_dense(args, model, bar, truncate: bool, say) -> int:
         clear_rounding_dust,
         reduction_backward_error,
     )
+    from plantcore.reports.text import shown_removed_modes
     from plantcore.structure.minimal import minimal_realization
     from plantcore.structure.removed_modes import hidden_mode_message
 
@@ -216,7 +217,9 @@ def _reduce_dense(args, model, bar, truncate: bool, say) -> int:
               f"at {measured.frequency:.6g} {unit}")
     removed = minimal.removed_unstable_modes
     if removed:
-        say("WARNING: " + _one_line(hidden_mode_message(removed, "the minimal realization")), err=True)
+        shown = shown_removed_modes(removed, model)
+        say("WARNING: " + _one_line(hidden_mode_message(shown, "the minimal realization")),
+            err=True)
         if not args.accept_hidden_unstable:
             say(f"plantcore reduce: {args.output} was not written; give {_ACKNOWLEDGE} to "
                   "write the reduced model anyway (exit 1).", err=True)
@@ -289,9 +292,11 @@ def _cmd_report(args) -> int:
           f"{contents.analysis.minimal_order}{reduced})")
     removed = contents.analysis.removed_unstable_modes
     if removed:
+        from plantcore.reports.text import shown_removed_modes
         from plantcore.structure.removed_modes import hidden_mode_message
 
-        print("WARNING: " + _one_line(hidden_mode_message(removed, "the minimal realization")),
+        shown = shown_removed_modes(removed, model)
+        print("WARNING: " + _one_line(hidden_mode_message(shown, "the minimal realization")),
               file=sys.stderr)
     return EXIT_OK
 

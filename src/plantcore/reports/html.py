@@ -47,7 +47,7 @@ from plantcore.files.safe_write import atomic_write_text
 from plantcore.reports.placement_section import placement_report_html
 from plantcore.reports.plots import PART_LABELS, eigenvalue_plot, frequency_plot, hankel_plot
 from plantcore.reports.style import escape, html_fragment, html_number, html_page
-from plantcore.reports.text import decision_method
+from plantcore.reports.text import decision_method, shown_removed_modes
 from plantcore.structure.removed_modes import hidden_mode_message
 
 __all__ = [
@@ -246,7 +246,7 @@ def _hidden_alert(c: ReportContents) -> str:
     removed = c.analysis.removed_unstable_modes
     if not removed:
         return ""
-    text = hidden_mode_message(removed, "the minimal realization")
+    text = hidden_mode_message(shown_removed_modes(removed, c.model), "the minimal realization")
     return f'<div class="alert" role="alert">WARNING: {_e(text)}</div>'
 
 

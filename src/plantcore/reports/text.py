@@ -6,6 +6,7 @@ numerical themselves.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 from plantcore.core.safe_norms import frobenius
@@ -20,7 +21,8 @@ from plantcore.core.wording import (
 )
 from plantcore.structure.removed_modes import hidden_mode_message
 
-__all__ = ["analysis_markdown", "analysis_text", "certificate_text", "decision_method"]
+__all__ = ["analysis_markdown", "analysis_text", "certificate_text", "decision_method",
+           "shown_removed_modes"]
 
 # --- analysis reports (text and markdown) -----------------------------------------------------
 # These read an :class:`plantcore.analysis.Analysis` and only format what it holds.
@@ -110,12 +112,23 @@ def _mode_list(modes, scale: float, discrete: bool = False) -> str:
     return ", ".join(shown) + (f" and {more} more" if more > 0 else "")
 
 
+def shown_removed_modes(removed, model) -> tuple:
+    """Copies of removed modes (``RemovedMode``) whose values are as text shows them:
+    parts at rounding level of ``model``'s scale written as 0 (``shown_eigenvalue``), so a
+    message names an integrator as 0, not as ``-5.551e-17``."""
+    scale = frobenius(model.A) if model.n else 1.0
+    return tuple(dataclasses.replace(m, value=shown_eigenvalue(m.value, scale,
+                                                               discrete=model.is_discrete))
+                 for m in removed)
+
+
 def _hidden_lines(a) -> list[str]:
     """The warning about removed modes that are not stable (shown first), or nothing."""
     removed = a.removed_unstable_modes
     if not removed:
         return []
-    return ["WARNING: " + hidden_mode_message(removed, "the minimal realization")]
+    return ["WARNING: " + hidden_mode_message(shown_removed_modes(removed, a.model),
+                                              "the minimal realization")]
 
 
 def _hidden_verdict(a) -> tuple[str, str, str]:
@@ -123,7 +136,8 @@ def _hidden_verdict(a) -> tuple[str, str, str]:
     if not removed:
         return ("hidden modes", "no",
                 "every mode outside part 1 (removed by the minimal realization) is stable")
-    words = "; ".join(m.describe() for m in removed if m.value.imag >= 0)
+    words = "; ".join(m.describe() for m in shown_removed_modes(removed, a.model)
+                      if m.value.imag >= 0)
     verb = "is" if len(removed) == 1 else "are"
     why = f"the minimal realization removes {_plural(len(removed), 'mode')} that {verb} not stable"
     return ("hidden modes", "YES", f"{why}: {words}")
