@@ -14,6 +14,7 @@ sentences what was compared and why the verdict is what it is.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass, field
 
@@ -31,9 +32,11 @@ from plantcore.reduction.equivalence_resolution import (
     FrequencyCheck,
     ResponseEvaluator,
     compare_responses,
+    compare_shared_responses,
     examined_frequencies,
     refine_largest_difference,
     resolution_verdict,
+    shared_matrices,
 )
 from plantcore.reduction.norms import PeakGain, _equilibrated, _peak_gain, peak_gain
 
@@ -70,6 +73,8 @@ class EquivalenceCertificate:
         :attr:`reference_gain`, at :attr:`decision_frequency`: a first-order bound on the
         rounding in the measured difference there (evaluation and storage of both models;
         :func:`plantcore.reduction.equivalence_resolution.response_with_rounding_bound`).
+        When ``a`` has a pole on the boundary, relative to the gain of ``a`` at
+        :attr:`decision_frequency`.
         ``nan`` when no frequency was examined or the models cannot be compared.
     decision_frequency : float
         The frequency that decided the verdict (rad/s, ``inf`` allowed, or rad/sample):
@@ -98,7 +103,9 @@ class EquivalenceCertificate:
         How :attr:`peak_error` was found.
     relative_error : float
         ``peak_error`` divided by :attr:`reference_gain` (the peak gain of ``a``); 0 when
-        both are zero, ``inf`` when only ``a`` is zero.
+        both are zero, ``inf`` when only ``a`` is zero.  When ``a`` has a pole on the
+        boundary, the largest measured difference relative to the gain of ``a`` at its own
+        frequency (see :func:`check_equivalence`, Notes 3).
     peak_frequency : float
         Where the difference is largest: rad/s (``inf`` for infinite frequency), or
         rad/sample in discrete time.  ``nan`` when the difference is identically zero or the
@@ -117,8 +124,8 @@ class EquivalenceCertificate:
         or ``"not comparable"``.
     reference_gain : float
         The gain the peak error was divided by: the peak gain of ``a``, or, when that is
-        infinite (a pole of ``a`` on the boundary), the gain of ``a`` at
-        :attr:`peak_frequency`.
+        infinite (a pole of ``a`` on the boundary), the gain of ``a`` at the frequency of
+        the largest relative difference.
     d_error : float
         Spectral norm of ``D_a - D_b`` (absolute); ``inf`` when not comparable.
     compared_markov_parameters : int
@@ -314,6 +321,59 @@ def _spectral_radius(A) -> float:
     return float(np.max(np.abs(np.linalg.eigvals(A))))
 
 
+#: What two models share when their difference is computed directly (see
+#: :func:`plantcore.reduction.equivalence_resolution.difference_with_rounding_bound`).
+_SHARED = {"input": "state and input matrices A and B",
+           "output": "state and output matrices A and C"}
+
+
+def _pole_at_defective_boundary_pole(A, defective, discrete: bool, scale: float):
+    """The frequency of a pole of ``A`` (the minimal difference) that lies, within the
+    accuracy of computed defective eigenvalues, on the boundary at a numerically defective
+    pole of the two models; None when there is none.
+
+    A defective eigenvalue of multiplicity ``k`` (a double integrator: ``k = 2``) is moved
+    by a perturbation of size ``eps ||A||`` by about ``eps^(1/k) ||A||`` (J. H. Wilkinson,
+    *The Algebraic Eigenvalue Problem*, Oxford, 1965, chapter 2), so the pole at 0 of the
+    difference between two models with double integrators comes out of the minimal
+    realization at ``1e-9`` rather than within the boundary tolerance of order ``eps``.
+    Such a pole counts as on the boundary when it lies within ``1000 sqrt(eps) scale`` (the
+    radius of :func:`~plantcore.reduction.equivalence_resolution.examined_frequencies`) of
+    the boundary and of a defective pole of ``a`` or ``b`` that lies as near the boundary
+    itself.
+    """
+    if A.shape[0] == 0 or np.asarray(defective).size == 0:
+        return None
+    radius = 1e3 * math.sqrt(np.finfo(float).eps) * max(scale, 1.0 if discrete else 0.0)
+
+    def distance(lam):
+        return np.abs(np.abs(lam) - 1.0) if discrete else np.abs(lam.real)
+
+    defective = np.asarray(defective, dtype=complex)
+    anchors = defective[distance(defective) <= radius]
+    if anchors.size == 0:
+        return None
+    with np.errstate(all="ignore"):
+        lam = np.linalg.eigvals(A)
+    near = lam[(distance(lam) <= radius)
+               & (np.min(np.abs(lam[:, None] - anchors[None, :]), axis=1) <= 2 * radius)]
+    if near.size == 0:
+        return None
+    pole = near[np.argmin(distance(near))]
+    return float(abs(np.angle(pole)) if discrete else abs(pole.imag))
+
+
+def _jointly_equilibrated(a: StateSpaceModel, b: StateSpaceModel):
+    """Both models after one exact power-of-two state scaling, chosen for the two together
+    (``A``, ``[B_a, B_b]``, ``[C_a; C_b]``), so that matrices the two share stay identical."""
+    from plantcore.core.equilibration import equilibrate
+
+    eq = equilibrate(a.A, np.hstack([a.B, b.B]), np.vstack([a.C, b.C]))
+    first = eq.apply(a.A, a.B, a.C) + (np.asarray(a.D, dtype=float),)
+    second = eq.apply(b.A, b.B, b.C) + (np.asarray(b.D, dtype=float),)
+    return first, second
+
+
 def _markov_parameters(model: StateSpaceModel, count: int, rho: float) -> list:
     """``[D, C B / rho, C (A/rho) B / rho, ...]``: the first ``count`` Markov parameters of
     the frequency-scaled transfer matrix ``G(rho v)`` (same units as ``G``, no overflow)."""
@@ -504,7 +564,14 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
        transfer matrix).  The two models' bounds are added.  On stiff models the first term
        dominates at low frequency and grows like ``u ||C M^{-1}|| ||M|| ||M^{-1} B||``:
        with eigenvalues from ``-1e-4`` to ``-1e4`` it is about ``1e-8`` of the gain, more
-       than the default tolerance.
+       than the default tolerance.  When the two models share ``A`` and ``B`` (or ``A`` and
+       ``C``) bit for bit, as a model and a copy with changed output (input) gains do, the
+       difference is computed directly as ``(C_a - C_b)(sI - A)^{-1} B + D_a - D_b`` (or
+       the dual) from one solve, and bounded for that computation
+       (:func:`~plantcore.reduction.equivalence_resolution.difference_with_rounding_bound`):
+       the rounding of the shared solve then enters at the size of the difference, not of
+       ``G``, so a true difference of ``1e-6`` is resolved on models whose evaluation is
+       only accurate to ``1e-4`` (up to ``DENSE_LIMIT`` states).
     3. *Verdict* (``tau = tol * reference_gain``).  *Not equivalent* when at some frequency
        the difference exceeds both ``tau`` and ``RESOLUTION_MARGIN`` (100) times the
        attainable accuracy there: it is resolved, rounding cannot explain it.
@@ -515,8 +582,14 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
        rounding bound, but not by the margin; rounding the bound does not see (how one
        model was computed from the other) cannot be ruled out, and neither can a true
        difference.  A difference with a pole on the boundary (infinite peak error, found
-       by the minimal realization below) is not equivalent.  With ``exact=True`` exact
-       equality decides.
+       by the minimal realization below) is not equivalent; a pole of the minimal
+       difference within ``1000 sqrt(eps) ||A||`` of the boundary and of a numerically
+       defective boundary pole of the two models (a double integrator, whose poles are
+       computed about ``sqrt(eps) ||A||`` apart; Wilkinson [4]_) counts as on the boundary.
+       When ``a`` itself has a pole on the boundary (infinite peak gain), ``tau`` is taken
+       frequency by frequency as ``tol`` times the gain of ``a`` there, wherever that gain
+       is known to two digits (not near a zero of ``a``), and the relative error is the
+       largest such ratio.  With ``exact=True`` exact equality decides.
     4. *Order and peak of the difference.*  Up to ``REALIZE_LIMIT`` (40) states in all, or
        with ``realize_difference=True``, the minimal realization of the block difference
        (:func:`plantcore.minimal_realization`, orthogonal staircase forms, default rank
@@ -564,6 +637,7 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
        1996.
     .. [3] N. J. Higham, *Accuracy and Stability of Numerical Algorithms*, 2nd ed., SIAM,
        2002 (Lemma 3.5, section 3.5, section 7.2, Theorem 9.4).
+    .. [4] J. H. Wilkinson, *The Algebraic Eigenvalue Problem*, Oxford, 1965, chapter 2.
 
     Examples
     --------
@@ -642,28 +716,54 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
         located = "no peak of the difference to locate (its minimal realization has order 0)"
     ref_peak = peak_gain(ma) if reference_peak_gain is None else reference_peak_gain
 
-    first, second = _equilibrated(ma), _equilibrated(mb)
+    shared = shared_matrices((ma.A, ma.B, ma.C, ma.D), (mb.A, mb.B, mb.C, mb.D))
+    first, second = _jointly_equilibrated(ma, mb) if shared else (_equilibrated(ma),
+                                                                  _equilibrated(mb))
     evaluate_a = ResponseEvaluator(first, discrete)
     evaluate_b = ResponseEvaluator(second, discrete)
     poles = np.concatenate([evaluate_a.poles, evaluate_b.poles])
     extra = [ref_peak.frequency] + ([difference_peak.frequency] if difference_peak else [])
     state_scale = max(frobenius(m[0]) for m in (first, second))
     defective = np.concatenate([evaluate_a.defective(), evaluate_b.defective()])
+    if mr is not None and difference_peak is not None and math.isfinite(difference_peak.value):
+        on_boundary = _pole_at_defective_boundary_pole(mr.model.A, defective, discrete,
+                                                       state_scale)
+        if on_boundary is not None:
+            difference_peak = dataclasses.replace(
+                difference_peak, value=math.inf, upper_bound=math.inf, frequency=on_boundary,
+                boundary_pole=True,
+                message=("A pole of the minimal difference lies within the accuracy of a "
+                         f"numerically defective pole on the {where} of the two models."))
     frequencies = examined_frequencies(poles, discrete, extra, scale=state_scale,
                                        defective=defective)
-    checks = compare_responses(evaluate_a, evaluate_b, frequencies, discrete)
+    if shared:
+        checks = compare_shared_responses(first, second, shared, frequencies, discrete)
+    else:
+        checks = compare_responses(evaluate_a, evaluate_b, frequencies, discrete)
     if mr is None and difference_peak is None and checks:
         refined = refine_largest_difference(evaluate_a, evaluate_b, checks, discrete)
         if refined is not None and refined not in checks:
             checks = checks + (refined,)
-    peak_method = (f"measured at {len(checks)} frequencies (both responses evaluated, "
-                   + ("each by a dense LU factorization" if evaluate_a.dense and evaluate_b.dense
-                      else "on Schur forms where a model has more than "
-                      f"{DENSE_LIMIT} states")
-                   + f"); the grid includes the pole frequencies and {located}")
+    if shared:
+        evaluated = (f"the difference computed directly from the shared {_SHARED[shared]}, "
+                     "by a dense LU factorization")
+    elif evaluate_a.dense and evaluate_b.dense:
+        evaluated = "both responses evaluated, each by a dense LU factorization"
+    else:
+        evaluated = ("both responses evaluated, on Schur forms where a model has more than "
+                     f"{DENSE_LIMIT} states")
+    peak_method = (f"measured at {len(checks)} frequencies ({evaluated}); the grid includes "
+                   f"the pole frequencies and {located}")
 
-    threshold = tol * ref_peak.value if math.isfinite(ref_peak.value) else math.inf
-    judged = resolution_verdict(checks, threshold, limit=_limit(ref_peak.value, checks))
+    # With a pole of a on the boundary its peak gain is infinite and ``tol`` times it bounds
+    # nothing: each measured difference is then held to ``tol`` times the gain of a at its
+    # own frequency (and the attainable accuracy to ATTAINABLE_LIMIT times it).
+    pointwise = not math.isfinite(ref_peak.value)
+    if pointwise:
+        threshold, limit = _pointwise(tol, checks), math.inf
+    else:
+        threshold, limit = tol * ref_peak.value, _limit(ref_peak.value, checks)
+    judged = resolution_verdict(checks, threshold, limit=limit)
     # A boundary pole of the minimal difference rests on its rank decisions and the pole
     # tolerance; it counts only when a measured difference is resolved from rounding somewhere.
     boundary_pole = (difference_peak is not None and math.isinf(difference_peak.value)
@@ -683,14 +783,21 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
         peak_error, peak_frequency = math.nan, math.nan
 
     reference = ref_peak.value
-    if math.isinf(reference) and math.isfinite(peak_error) and peak_error > 0:
-        reference = _gain_near(ma, peak_frequency)
+    relative_error = _relative(peak_error, reference)
+    if pointwise and math.isfinite(peak_error) and peak_error > 0:
+        against = [c for c in checks if _gain_known(c)] or [
+            c for c in checks if 0 < c.gain < math.inf]
+        if against:
+            worst = max(against, key=lambda c: c.difference / c.gain)
+            reference, relative_error = worst.gain, _relative(worst.difference, worst.gain)
+        else:
+            reference = _gain_near(ma, peak_frequency)
+            relative_error = _relative(peak_error, reference)
         reasons.append(
             f"Model A has a pole on the {where} (at "
             f"{frequency_phrase(ref_peak.frequency, discrete, dt)}), so its peak gain is "
-            "infinite; the error is measured against the gain of model A at the frequency "
-            "where the difference is largest.")
-    relative_error = _relative(peak_error, reference)
+            "infinite; each measured difference is held against the gain of model A at its "
+            "own frequency, and the relative error is the largest of these ratios.")
 
     if order is None:
         reasons.append(f"The {total}-state difference A - B was compared by its measured "
@@ -737,15 +844,14 @@ def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
     if boundary_pole:
         verdict, basis, decided_at = "not equivalent", "boundary pole", None
     else:
-        if reference != ref_peak.value:      # a pole of a on the boundary: the gain near the peak
-            threshold = tol * reference if math.isfinite(reference) else math.inf
-            judged = resolution_verdict(checks, threshold, limit=_limit(ref_peak.value, checks))
         verdict, basis, decided_at = judged.verdict, judged.basis, judged.check
-    attainable = _relative(decided_at.attainable, reference) if decided_at else math.nan
+    # the gain the decisive frequency's figures are relative to
+    local = decided_at.gain if pointwise and decided_at is not None else reference
+    attainable = _relative(decided_at.attainable, local) if decided_at else math.nan
     decision_frequency = decided_at.frequency if decided_at else (
         peak_frequency if boundary_pole else math.nan)
     numeric_start = len(reasons)
-    reasons += _verdict_reasons(verdict, basis, decided_at, reference, tol, attainable,
+    reasons += _verdict_reasons(verdict, basis, decided_at, local, tol, attainable,
                                 relative_error, order, markov_error, discrete, dt)
 
     exact_equal = None
@@ -833,6 +939,27 @@ def _limit(reference: float, checks) -> float:
     if not any(c.gain > c.attainable for c in checks):
         return math.inf
     return ATTAINABLE_LIMIT * reference
+
+
+def _gain_known(check) -> bool:
+    """Whether the gain of ``a`` at this check is known to two digits: positive, finite and
+    at least ``1 / ATTAINABLE_LIMIT`` times the attainable accuracy there."""
+    return 0 < check.gain < math.inf and check.attainable <= ATTAINABLE_LIMIT * check.gain
+
+
+def _pointwise(tol: float, checks):
+    """The absolute threshold per :class:`FrequencyCheck` for a model ``a`` whose peak gain is
+    infinite: ``tol`` times the gain of ``a`` at that frequency where that gain is known to
+    two digits (:func:`_gain_known`); elsewhere (near a zero of ``a``, or a pole where the
+    rounding swamps it) no bound, as a relative difference means nothing there.  When the
+    gain is nowhere known so, ``tol`` times the gain everywhere."""
+    strict = not any(_gain_known(c) for c in checks)
+
+    def threshold(check) -> float:
+        if strict or _gain_known(check):
+            return tol * check.gain
+        return math.inf
+    return threshold
 
 
 def _relative(value: float, reference: float) -> float:

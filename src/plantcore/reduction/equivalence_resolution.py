@@ -10,11 +10,14 @@ first-order bound on the rounding in that difference: the *attainable accuracy*.
 
 The bound (see :func:`response_with_rounding_bound`) is computed from the very LU
 factorization used to evaluate the response, so it is measured for these two models, not
-guessed from a fixed tolerance.
+guessed from a fixed tolerance.  Two models that share their state matrix and their input
+(or output) matrix bit for bit have their difference computed directly from one solve,
+with a bound for that computation (:func:`difference_with_rounding_bound`).
 """
 
 from __future__ import annotations
 
+import contextlib
 import math
 import warnings
 from dataclasses import dataclass
@@ -26,8 +29,9 @@ import scipy.optimize
 from plantcore.reduction.norms import shared_response
 
 __all__ = ["FrequencyCheck", "ResolutionVerdict", "ResponseEvaluator", "compare_responses",
+           "compare_shared_responses", "difference_with_rounding_bound",
            "examined_frequencies", "refine_largest_difference", "resolution_verdict",
-           "response_with_rounding_bound"]
+           "response_with_rounding_bound", "shared_matrices"]
 
 _UNIT_ROUNDOFF = np.finfo(float).eps / 2
 
@@ -126,37 +130,187 @@ def response_with_rounding_bound(A, B, C, D, point):
     return None if evaluated is None else evaluated[:2]
 
 
+@contextlib.contextmanager
+def _quiet():
+    """No warnings and no floating-point error reports (near-singular solves at poles)."""
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")
+        yield
+
+
+def _factored(A, point):
+    """The packed LU factorization (scipy's ``lu_factor``) of ``point I - A``, or None when
+    it is singular or not finite in floating point (a pole)."""
+    M = complex(point) * np.eye(A.shape[0]) - A
+    with _quiet():
+        lu, piv = scipy.linalg.lu_factor(M, check_finite=False)
+    if not np.all(np.isfinite(lu)) or np.any(np.diag(lu) == 0):
+        return None
+    return lu, piv
+
+
 def _evaluate(A, B, C, D, point):
     """:func:`response_with_rounding_bound` and the size ``|C| |X| + |D|`` of what it computed."""
     n = A.shape[0]
     Dc = np.asarray(D, dtype=float)
     if n == 0:
         return Dc.astype(complex), _UNIT_ROUNDOFF * np.abs(Dc), np.abs(Dc)
-    M = complex(point) * np.eye(n) - A
-    with warnings.catch_warnings(), np.errstate(all="ignore"):
-        warnings.simplefilter("ignore")
-        lu, piv = scipy.linalg.lu_factor(M, check_finite=False)
-        if not np.all(np.isfinite(lu)) or np.any(np.diag(lu) == 0):
-            return None
+    factored = _factored(A, point)
+    if factored is None:
+        return None
+    lu, piv = factored
+    with _quiet():
         X = scipy.linalg.lu_solve((lu, piv), B.astype(complex), check_finite=False)
         Y = scipy.linalg.lu_solve((lu, piv), C.T.astype(complex), trans=1, check_finite=False).T
         G = C @ X + Dc
         if not (np.all(np.isfinite(G)) and np.all(np.isfinite(Y))):
             return None
-        perm = np.arange(n)
-        for i, k in enumerate(piv):          # M[perm] = L U
-            perm[i], perm[k] = perm[k], perm[i]
-        absL = np.abs(np.tril(lu, -1)) + np.eye(n)
-        absU = np.abs(np.triu(lu))
         absX, absY = np.abs(X), np.abs(Y)
         absC, absD = np.abs(C), np.abs(Dc)
-        solve = absY[:, perm] @ (absL @ (absU @ absX))
+        solve = _solve_term(lu, piv, absY, absX)
         product = absC @ absX + absD
         data = absY @ (np.abs(A) @ absX) + absC @ absX + absY @ np.abs(B) + absD
         E = _gamma(3 * n) * solve + _gamma(n + 1) * product + _UNIT_ROUNDOFF * data
         if not np.all(np.isfinite(E)):
             return None
     return G, E, product
+
+
+def shared_matrices(first, second) -> str | None:
+    """Which matrices two ``(A, B, C, D)`` models share bit for bit, as far as
+    :func:`difference_with_rounding_bound` can use it: ``"input"`` when ``A`` and ``B`` are
+    identical (only the outputs ``C``, ``D`` may differ), ``"output"`` when ``A`` and ``C``
+    are (only ``B``, ``D`` may differ), else None.  Both models up to ``DENSE_LIMIT``
+    states."""
+    A, B, C, _ = first
+    A2, B2, C2, _ = second
+    if A.shape != A2.shape or A.shape[0] > DENSE_LIMIT or not np.array_equal(A, A2):
+        return None
+    if B.shape == B2.shape and np.array_equal(B, B2):
+        return "input"
+    if C.shape == C2.shape and np.array_equal(C, C2):
+        return "output"
+    return None
+
+
+def difference_with_rounding_bound(first, second, shared: str, point):
+    """``G_a - G_b`` evaluated directly for two models that share ``A`` and ``B``
+    (``shared="input"``) or ``A`` and ``C`` (``"output"``), with a first-order bound on its
+    rounding, and ``G_a``.
+
+    Returns ``(G_a, difference, bound)`` (the bound a nonnegative ``(p, m)`` matrix, entrywise
+    to first order, like :func:`response_with_rounding_bound`), or None at a pole.
+
+    Notes
+    -----
+    With ``A`` and ``B`` shared, ``G_a - G_b = (C_a - C_b) X + (D_a - D_b)`` with the one
+    solve ``X = (point I - A)^{-1} B``: computed so, the rounding of ``X`` enters only
+    through ``C_a - C_b``, where adding the two models' bounds of
+    :func:`response_with_rounding_bound` would count it twice at the size of ``G`` itself.
+    The same three terms, for this computation (Higham [1]_): the solve's backward error
+    ``|dM| <= gamma_3n P |L| |U|`` (Theorem 9.4) propagated through
+    ``Y_d = (C_a - C_b) M^{-1}``, ``gamma_3n |Y_d P| |L| |U| |X|``; the product and the two
+    subtractions, ``gamma_(n+1) (|C_d| |X| + |D_d|) + u (|C_d| |X| + |D_d|)``; and the data: a
+    relative rounding ``u`` of the shared ``A`` and ``B`` (one stored matrix, the same
+    perturbation in both models), ``u (|Y_d| |A| |X| + |Y_d| |B|)``, and of each model's own
+    ``C`` and ``D``, independently, ``u ((|C_a| + |C_b|) |X| + |D_a| + |D_b|)``.  This keeps
+    the rounding in how one model was made from the other (``C`` scaled, say) at its full
+    size, and the shared factor at the size of the difference.  ``"output"`` is the dual,
+    with ``Y = C (point I - A)^{-1}`` shared and ``G_a - G_b = Y (B_a - B_b) + D_a - D_b``.
+
+    References
+    ----------
+    .. [1] N. J. Higham, *Accuracy and Stability of Numerical Algorithms*, 2nd ed., SIAM,
+       2002 (section 3.5, Theorem 9.4).
+    """
+    A = first[0]
+    n = A.shape[0]
+    Ba, Ca, Da = (np.asarray(x, dtype=float) for x in first[1:])
+    Bb, Cb, Db = (np.asarray(x, dtype=float) for x in second[1:])
+    Dd = Da - Db
+    absDd = np.abs(Dd)
+    own_D = np.abs(Da) + np.abs(Db)
+    if n == 0:
+        return (Da.astype(complex), Dd.astype(complex),
+                _UNIT_ROUNDOFF * (absDd + own_D))
+    output = shared == "output"
+    factored = _factored(A, point)
+    if factored is None:
+        return None
+    lu, piv = factored
+    with _quiet():
+        if output:
+            Bd = Ba - Bb
+            Y = scipy.linalg.lu_solve((lu, piv), Ca.T.astype(complex), trans=1,
+                                      check_finite=False).T          # shared
+            Xd = scipy.linalg.lu_solve((lu, piv), Bd.astype(complex), check_finite=False)
+            diff = Y @ Bd + Dd
+            Ga = Y @ Ba + Da
+            absY, absXd, absBd = np.abs(Y), np.abs(Xd), np.abs(Bd)
+            left, right = absY, absXd                  # the rounding of Y reaches Bd only
+            product = absY @ absBd + absDd
+            data = (absY @ (np.abs(A) @ absXd) + np.abs(Ca) @ absXd
+                    + absY @ (np.abs(Ba) + np.abs(Bb)) + own_D)
+        else:
+            Cd = Ca - Cb
+            X = scipy.linalg.lu_solve((lu, piv), Ba.astype(complex), check_finite=False)
+            Yd = scipy.linalg.lu_solve((lu, piv), Cd.T.astype(complex), trans=1,
+                                       check_finite=False).T
+            diff = Cd @ X + Dd
+            Ga = Ca @ X + Da
+            absX, absYd, absCd = np.abs(X), np.abs(Yd), np.abs(Cd)
+            left, right = absYd, absX
+            product = absCd @ absX + absDd
+            data = (absYd @ (np.abs(A) @ absX) + absYd @ np.abs(Ba)
+                    + (np.abs(Ca) + np.abs(Cb)) @ absX + own_D)
+        if not (np.all(np.isfinite(diff)) and np.all(np.isfinite(Ga))):
+            return None
+        solve = _solve_term(lu, piv, left, right)
+        E = (_gamma(3 * n) * solve + (_gamma(n + 1) + _UNIT_ROUNDOFF) * product
+             + _UNIT_ROUNDOFF * data)
+        if not np.all(np.isfinite(E)):
+            return None
+    return Ga, diff, E
+
+
+def compare_shared_responses(first, second, shared: str, frequencies,
+                             discrete: bool) -> tuple:
+    """:func:`compare_responses` for two models that share matrices (:func:`shared_matrices`):
+    at each frequency the difference computed directly, with the bound of
+    :func:`difference_with_rounding_bound`."""
+    checks = []
+    for w in frequencies:
+        w = float(w)
+        if math.isinf(w):
+            Da, Db = (np.asarray(m[3], dtype=float) for m in (first, second))
+            Ga, diff = Da.astype(complex), (Da - Db).astype(complex)
+            E = _UNIT_ROUNDOFF * (np.abs(Da - Db) + np.abs(Da) + np.abs(Db))
+        else:
+            point = np.exp(1j * w) if discrete else 1j * w
+            evaluated = difference_with_rounding_bound(first, second, shared, point)
+            if evaluated is None:
+                continue
+            Ga, diff, E = evaluated
+        with np.errstate(all="ignore"):
+            value = float(np.linalg.norm(diff, 2)) if diff.size else 0.0
+            gain = float(np.linalg.norm(Ga, 2)) if Ga.size else 0.0
+        bound = _norm2(E) + _UNIT_ROUNDOFF * value
+        if math.isfinite(value) and math.isfinite(bound):
+            checks.append(FrequencyCheck(w, value, bound, gain))
+    return tuple(checks)
+
+
+def _solve_term(lu, piv, left, right):
+    """``|Y P| |L| |U| |X|`` from a packed LU factorization ``M = P L U`` (scipy's
+    ``lu_factor``) and the absolute values ``left = |Y|``, ``right = |X|``: the factor of
+    ``gamma_3n`` in the solve's part of the rounding bound (Higham 2002, Theorem 9.4)."""
+    n = lu.shape[0]
+    perm = np.arange(n)
+    for i, k in enumerate(piv):          # M[perm] = L U
+        perm[i], perm[k] = perm[k], perm[i]
+    absL = np.abs(np.tril(lu, -1)) + np.eye(n)
+    absU = np.abs(np.triu(lu))
+    return left[:, perm] @ (absL @ (absU @ right))
 
 
 def _norm2(E) -> float:
@@ -354,7 +508,10 @@ def examined_frequencies(poles, discrete: bool, extra=(), scale: float = 0.0,
     computed eigenvalues split by about ``sqrt(eps) scale``) the computed responses are
     dominated, to second order, by that split, which the first-order rounding bound does
     not cover: frequencies whose point lies within ``1000 sqrt(eps) scale`` of such a pole
-    are left out (``scale`` the norm of the state matrices).
+    are left out (``scale`` the norm of the state matrices), and in continuous time a
+    second logarithmic grid of ``GRID_POINTS / 2`` points from ten times that radius to a
+    hundred times ``scale`` is added, so that frequencies remain where a cluster of
+    integrators computed at ``1e-9`` would otherwise have set the whole grid.
     """
     poles = np.asarray(poles, dtype=complex).ravel()
     defective = np.asarray(defective, dtype=complex).ravel()
@@ -380,9 +537,19 @@ def examined_frequencies(poles, discrete: bool, extra=(), scale: float = 0.0,
     if discrete:
         extra = np.clip(extra, 0.0, math.pi)
     values = np.concatenate([grid, pole_freqs, extra])
-    values = np.unique(values[~np.isnan(values)])
     if defective.size:
         radius = 1e3 * math.sqrt(np.finfo(float).eps) * max(scale, 1.0 if discrete else 0.0)
+        if not discrete and radius > 0:
+            # The poles of a numerically defective cluster (a double integrator) are computed
+            # about sqrt(eps) scale apart, so the grid spanned by them may lie wholly inside
+            # the radius left out below: a second grid from just outside it to a hundred
+            # times the norm of the state matrices keeps frequencies where both responses
+            # are evaluated accurately.
+            top = max(float(grid[-1]), 100.0 * max(scale, radius))
+            values = np.concatenate([values, np.geomspace(10.0 * radius, top,
+                                                          GRID_POINTS // 2)])
+    values = np.unique(values[~np.isnan(values)])
+    if defective.size:
         with np.errstate(all="ignore"):
             points = np.exp(1j * values) if discrete else 1j * values
             points = np.where(np.isinf(values), np.inf, points)
@@ -465,22 +632,26 @@ def resolution_verdict(checks, threshold: float, margin: float = RESOLUTION_MARG
     ``margin`` times the attainable accuracy at the same frequency.  Equivalent when every
     difference is at most ``threshold``, or at most the attainable accuracy where that is
     at most ``limit`` (absolute; the caller passes ``ATTAINABLE_LIMIT`` times the reference
-    gain).  Otherwise undecided.
+    gain).  Otherwise undecided.  ``threshold`` and ``limit`` may also be functions of a
+    :class:`FrequencyCheck` giving its own absolute value (a multiple of the gain of ``a``
+    there, when the peak gain of ``a`` is infinite).
     """
     if not checks:
         return ResolutionVerdict("undecided", "no frequency", None)
+    tau = threshold if callable(threshold) else (lambda c: threshold)
+    cap = limit if callable(limit) else (lambda c: limit)
     resolved = [c for c in checks
-                if c.difference > threshold and c.difference > margin * c.attainable]
+                if c.difference > tau(c) and c.difference > margin * c.attainable]
     if resolved:
         worst = max(resolved,
-                    key=lambda c: c.difference / max(threshold, margin * c.attainable, 1e-300))
+                    key=lambda c: c.difference / max(tau(c), margin * c.attainable, 1e-300))
         return ResolutionVerdict("not equivalent", "resolved", worst)
-    unresolved = [c for c in checks if c.difference > threshold
-                  and (c.difference > c.attainable or c.attainable > limit)]
+    unresolved = [c for c in checks if c.difference > tau(c)
+                  and (c.difference > c.attainable or c.attainable > cap(c))]
     if unresolved:
         worst = max(unresolved, key=lambda c: c.difference / max(c.attainable, 1e-300))
         return ResolutionVerdict("undecided", "unresolved", worst)
-    above = [c for c in checks if c.difference > threshold]
+    above = [c for c in checks if c.difference > tau(c)]
     if above:
         return ResolutionVerdict("equivalent", "attainable accuracy",
                                  max(above, key=lambda c: c.attainable))
