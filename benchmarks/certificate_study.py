@@ -22,11 +22,17 @@ certifies
   - ``input``: ``B`` moved by a random matrix, scaled so that the peak gain of the change
     ``C (sI - A)^-1 dB`` is ``delta`` times the peak gain of the model.
 
+Both kinds of true difference keep ``A`` and one of ``B``, ``C`` bit for bit, so the
+certificate computes their difference directly from one solve
+(``equivalence_resolution.difference_with_rounding_bound``); a true difference between
+models in different coordinates (a rotated copy with ``C`` scaled) rests on the two
+models' own bounds and, at a 12-decade spread, is not always resolved (not counted here).
+
 It counts false "not equivalent" (target 0), "undecided", and, for the true differences,
 how many were detected (``not equivalent``; target 100 %), left undecided, or called
 equivalent.  Run::
 
-    OPENBLAS_NUM_THREADS=1 python benchmarks/certificate_study.py            # 1,536 pairs
+    OPENBLAS_NUM_THREADS=1 python benchmarks/certificate_study.py            # 1,792 pairs
     OPENBLAS_NUM_THREADS=1 python benchmarks/certificate_study.py --seeds 4  # quick
 """
 
