@@ -151,3 +151,10 @@ def test_every_command_that_computes_has_the_option(capsys):
     helps = {next(a.help for a in p._actions if "--progress" in a.option_strings)
              for name, p in sub.choices.items() if name in with_option}
     assert helps == {progress_option.PROGRESS_HELP}          # one convention, one wording
+
+
+def test_a_stage_with_a_line_of_its_own_is_not_redrawn():
+    # compare --exact: the exact comparison draws its own line, which redraws would overwrite
+    with StageProgress("compare", 1, stream=_Terminal(), ticking=False) as bar:
+        bar.step("certificate")
+        assert bar.enabled and bar._ticker is None

@@ -255,10 +255,10 @@ def _cmd_compare(args) -> int:
 
     first = load_model(args.model_a)
     second = load_model(args.model_b)
-    with stages("compare", args, 1) as bar:
-        # the exact comparison shows its own line (Markov parameters), below this one
-        bar.step("certificate (floating point" + (", then exact rational arithmetic)"
-                                                   if args.exact else ")"))
+    # the exact comparison draws its own line (Markov parameters) over this one, so this
+    # line is not redrawn meanwhile
+    with stages("compare", args, 1, ticking=not args.exact) as bar:
+        bar.step("certificate" + (": floating point, then exact" if args.exact else ""))
         certificate = check_equivalence(first, second, tol=args.tol, exact=args.exact)
     print(certificate.to_text(labels=(args.model_a, args.model_b)))
     if certificate.verdict == "undecided":

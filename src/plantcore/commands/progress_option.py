@@ -62,16 +62,19 @@ class StageProgress(Progress):
 
     ``step(note)`` starts the stage ``note``; the elapsed time is appended once the stage has
     run a second or more.  The helper thread only redraws (it never touches the work) and
-    is stopped by :meth:`close`; nothing runs when the indicator is off.
+    is stopped by :meth:`close`; nothing runs when the indicator is off, or with
+    ``ticking=False`` (for a stage that draws a progress line of its own, which the redraws
+    would overwrite).
     """
 
-    def __init__(self, label: str, total: int | None = None, **options):
+    def __init__(self, label: str, total: int | None = None, *, ticking: bool = True,
+                 **options):
         super().__init__(label, total, **options)
         self._lock = threading.RLock()
         self._stage_start = time.monotonic()
         self._stop = threading.Event()
         self._ticker = None
-        if self.enabled:
+        if self.enabled and ticking:
             self._ticker = threading.Thread(target=self._tick, name=f"{label} progress",
                                             daemon=True)
             self._ticker.start()
