@@ -305,3 +305,22 @@ def test_schur_eigenvalues_of_a_block_near_the_largest_floats():
     assert np.all(np.isfinite(complex_triangle))
     np.testing.assert_allclose(np.sort(np.diag(complex_triangle).imag), [-expected, expected],
                                rtol=1e-14)
+
+
+def test_count_bounds_of_a_cluster_no_short_staircase_can_count():
+    # One Jordan block of size 8 at 0.5 (orthogonally hidden), driven at state 3 and read at
+    # state 0: (A - 0.5 I) maps e_j to e_(j-1), so the reachable states are e_0 .. e_3 and
+    # every state is seen (by construction: 4 controllable copies, 4 uncontrollable, none
+    # unobservable).  Counting the copies would take a staircase of 5 steps, longer than a
+    # second method may be, so the cluster is uncounted; its bounds run from the geometric
+    # multiplicity (one Jordan chain: n - rank [A - 0.5 I, B] = 1; Hautus 1969) to the
+    # cluster's size, and hold the true count.
+    A, B, C = jordan_cluster((8,), driven=3, read=0, seed=41)
+    _, cert = certificate_of(A, B, C)
+    assert cert.multiplicities.tolist() == [8]
+    assert cert.has_uncounted()
+    assert cert.undecided_by_sensitivity() == 0
+    assert cert.count_bounds("c") == (1, 8)
+    assert cert.count_bounds("o") == (0, 0)
+    low, high = cert.count_bounds("c")
+    assert low <= 4 <= high

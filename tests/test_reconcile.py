@@ -36,6 +36,7 @@ from numpy.testing import assert_allclose
 
 import plantcore as pc
 from plantcore.core.rank import FRAGILITY_FACTOR, RankDecision
+from plantcore.structure.certificate import modal_certificate
 from plantcore.structure.kalman import _prepare
 from plantcore.structure.reconcile import (
     certificate_decisions,
@@ -363,3 +364,71 @@ def test_strongly_rescaled_model_keeps_a_dropped_value_in_the_window_fragile():
         assert got is not None
         value, fragile = got
         assert km.accepts(quantity, value, fragile) or fragile, quantity
+
+
+# --- defective clusters the certificate bounds but cannot count --------------------------
+
+def _jordan_hidden(n, driven, read, seed, lam=-0.5):
+    """One Jordan block of ``lam`` (size n), input at state ``driven``, output at ``read``,
+    orthogonally hidden."""
+    Az = lam * np.eye(n) + np.eye(n, k=1)
+    Bz, Cz = np.zeros((n, 1)), np.zeros((1, n))
+    Bz[driven, 0] = Cz[0, read] = 1.0
+    return hide(Az, Bz, Cz, 1.0, np.random.default_rng(seed))
+
+
+def test_uncounted_cluster_within_the_bounds_is_fragile_for_its_reason_not_a_conflict():
+    # A Jordan block of size 8 driven at state 3 and read at state 0: by construction
+    # (A - lam I maps e_j to e_(j-1)) parts (4, 0, 4, 0), minimal order 4.  The certificate
+    # cannot count the copies (a 5-step staircase) but bounds them (1..8 uncontrollable,
+    # 0 unobservable); the staircase's counts lie within the bounds.  That is no
+    # contradiction (before, the geometric count 1 was reported as a conflict with the
+    # staircase's 4), but no second method confirms the count either: the answer is right
+    # and fragile, and the record says why.
+    model = _jordan_hidden(8, 3, 0, seed=17)
+    kd = pc.kalman_decomposition(model)
+    assert tuple(kd.sizes) == (4, 0, 4, 0) and kd.fragile
+    checks = [d for d in kd.decisions if "bounded, not counted" in d.label]
+    assert len(checks) == 2
+    assert all(d.fragile and not d.conflict and "no second method decides" in d.window_outcome
+               for d in checks)
+    assert "between 1 and 8" not in checks[0].label      # labels count modes NOT lost
+    assert "(between 0 and 7:" in checks[0].label
+    mr = pc.minimal_realization(model)
+    assert mr.order == 4 and mr.fragile
+    assert not any(d.conflict for d in mr.decisions)
+    ctrb = pc.controllability_staircase(model)
+    assert ctrb.rank == 4 and ctrb.fragile
+    assert not any(d.conflict for d in ctrb.decisions)
+
+
+def test_uncounted_cluster_outside_the_bounds_is_a_conflict():
+    # The same model, checked against a staircase that claims everything controllable:
+    # 0 uncontrollable copies, below the geometric count 1 -- a conflict.
+    A, B, C = _jordan_hidden(8, 3, 0, seed=17)
+    p = _prepare((A, B, C), None)
+    cert = modal_certificate(p.A, p.B_dec, p.C_dec, scale=p.scale, tol=p.tol)
+    assert cert.has_uncounted()
+    decisions = certificate_decisions(cert, (8, 0, 0, 0))
+    assert all(d.conflict and d.fragile for d in decisions)
+    inside = certificate_decisions(cert, (4, 0, 4, 0))
+    assert len(inside) == 2 and not any(d.conflict for d in inside)
+
+
+@pytest.mark.parametrize("index", [155, 208, 82])
+def test_uncounted_cluster_with_narrow_margins_stays_fragile(index):
+    # Seeded draws of the trust study's repeated family (every eigenvalue equal, blocks
+    # shared between the parts) whose staircases are wrong although their counts lie
+    # within the certificate's bounds (kept values of 150 tol, or a dropped value of
+    # 5e-14 = tol / 1000: on Jordan chains rounding can be amplified and real couplings
+    # shrunk).  No second method decides there, so every wrong answer is flagged.
+    km = _load_known_structure().draw("repeated", (20261203, index))
+    wrong = 0
+    for quantity, got in _answers(km).items():
+        if got is None:
+            continue
+        value, fragile = got
+        if not km.accepts(quantity, value, False):
+            wrong += 1
+            assert fragile, (quantity, value)
+    assert wrong >= 1

@@ -138,6 +138,8 @@ class ModalCertificate:
     _local_both: dict = field(repr=False, default_factory=dict)
     _uncounted: frozenset = field(repr=False, default=frozenset())
     schur: tuple | None = field(repr=False, default=None, compare=False)
+    _uncounted_c: frozenset = field(repr=False, default=frozenset())
+    _uncounted_o: frozenset = field(repr=False, default=frozenset())
 
     @property
     def n(self) -> int:
@@ -165,6 +167,40 @@ class ModalCertificate:
         o = (self.observability_lower <= t) & (self.observability > t)
         c[list(self._uncounted)] = True       # copies no short staircase could count
         return int(np.count_nonzero(c | o))
+
+    def undecided_by_sensitivity(self, t: float | None = None) -> int:
+        """Clusters (on either side) whose measure lies above ``t`` but whose lower figure
+        does not: the computed eigenvalue's own error leaves the answer open (the clusters
+        of :meth:`undecided` other than those only left uncounted)."""
+        t = self.tolerance if t is None else t
+        c = (self.controllability_lower <= t) & (self.controllability > t)
+        o = (self.observability_lower <= t) & (self.observability > t)
+        return int(np.count_nonzero(c | o))
+
+    def has_uncounted(self) -> bool:
+        """True when some cluster's copies could not be counted by a short staircase of its
+        own block (see :func:`_copy_values`)."""
+        return bool(self._uncounted)
+
+    def count_bounds(self, side: str, t: float | None = None) -> tuple[int, int]:
+        """Bounds on the total number of uncontrollable (``side="c"``) or unobservable
+        (``"o"``) copies at the tolerance ``t``.
+
+        Exact (both bounds equal) for every counted cluster.  For a cluster whose copies no
+        short staircase could count, the measured singular values of ``[A - lambda I, B]``
+        at the cluster's mean give the geometric multiplicity of ``lambda`` as an
+        uncontrollable eigenvalue (its number of Jordan chains; Hautus 1969), a lower
+        bound for the algebraic count, and the cluster's size an upper bound; a cluster
+        with no value at or below ``t`` has no uncontrollable copy (both bounds 0).
+        """
+        t = self.tolerance if t is None else t
+        counts = self._count(side, t)
+        low = int(counts.sum())
+        high = low
+        for c in (self._uncounted_c if side == "c" else self._uncounted_o):
+            if counts[c] > 0:
+                high += int(self.multiplicities[c] - counts[c])
+        return low, high
 
     def uncontrollable_copies(self, t: float | None = None) -> np.ndarray:
         """Copies of each cluster that are uncontrollable at the tolerance ``t``."""
@@ -737,6 +773,7 @@ def modal_certificate(A, B, C, *, scale: float, tol: float,
     measured_c, measured_o = np.zeros(k, dtype=bool), np.zeros(k, dtype=bool)
     local_both = {}
     uncounted = set()
+    uncounted_side = {"c": set(), "o": set()}
     schur = None
     if np.any(need_c) or np.any(need_o):
         schur = _Schur(A)
@@ -779,8 +816,10 @@ def modal_certificate(A, B, C, *, scale: float, tol: float,
                             partner is not None, int(mult[c]))
                         if counted is None:
                             uncounted.add(c)
+                            uncounted_side[side].add(c)
                             if partner is not None:
                                 uncounted.add(partner)
+                                uncounted_side[side].add(partner)
                         else:
                             copies[c] = np.sort(counted / scale)
                     except np.linalg.LinAlgError:
@@ -822,4 +861,5 @@ def modal_certificate(A, B, C, *, scale: float, tol: float,
     return ModalCertificate(reps, mult, up_c, up_o, low_c, low_o, measured_c, measured_o,
                             float(tol), float(scale), tuple(copies_c), tuple(copies_o),
                             local_both, frozenset(uncounted),
-                            (schur.T, schur.Q) if keep_schur and schur is not None else None)
+                            (schur.T, schur.Q) if keep_schur and schur is not None else None,
+                            frozenset(uncounted_side["c"]), frozenset(uncounted_side["o"]))

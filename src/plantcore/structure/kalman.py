@@ -541,7 +541,7 @@ def _decomposition(p: _Prepared) -> KalmanDecomposition:
         spectral = spectral_decomposition(p.A, p.B, p.C, cert)
         if spectral is not None:
             return _from_spectral(p, spectral, decisions, cert, sizes)
-    decisions = decisions + certificate_decisions(cert, sizes)
+    decisions = decisions + certificate_decisions(cert, sizes, staircase_decisions=decisions)
     _impose_zero_pattern(Az, Bz, Cz, sizes)
     states = derived_state_names(p.model.states, T, T_inv.T)
     new = StateSpaceModel(Az, Bz, Cz, p.model.D, p.model.dt, states=states,

@@ -144,7 +144,8 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
         decisions = confirm_window(
             decisions, cert, staircase_like, state_scaling=p.s,
             connectivity=lambda: balancing_connectivity(p.A, p.B, p.C))
-        decisions = decisions + certificate_decisions(cert, staircase_like)
+        decisions = decisions + certificate_decisions(
+            cert, staircase_like, part4_unknown=disagree, staircase_decisions=decisions)
     # The minimal model is the leading block of the second staircase, in the coordinates
     # W1 = U1 diag(Z, I) (or Z alone when everything is controllable); only the r kept
     # columns of W1 are formed, by applying the recorded reflectors to [Z_r; 0].

@@ -38,23 +38,124 @@ from plantcore.core.rank import FRAGILITY_FACTOR, RankDecision
 from plantcore.core.safe_norms import frobenius
 from plantcore.structure.certificate import controllable_basis, schur_eigenvalues
 
-__all__ = ["certificate_decisions", "confirm_window", "spectral_decomposition"]
+__all__ = ["bounded_agreement", "certificate_decisions", "confirm_window", "spectral_decomposition",
+           "within_bounds"]
 
 
 def _sizes_text(sizes) -> str:
     return "(" + ", ".join(str(int(s)) for s in sizes) + ")"
 
 
-def certificate_decisions(cert, staircase_sizes, *, decided: bool = False) -> tuple:
+def within_bounds(cert, staircase_sizes, t: float, *, part4_unknown: bool = False) -> bool:
+    """True when the staircase's numbers of uncontrollable (``n3 + n4``) and unobservable
+    (``n2 + n4``) states lie within the certificate's bounds at the tolerance ``t``
+    (:meth:`~plantcore.structure.certificate.ModalCertificate.count_bounds`).
+
+    ``part4_unknown``: the caller found parts 1 and 2 and the uncontrollable dimension
+    only (``staircase_sizes = (n1, n2, n3 + n4, 0)``), so the unobservable count may lie
+    anywhere from ``n2`` to ``n2 + n3 + n4``.
+    """
+    s = tuple(int(x) for x in staircase_sizes)
+    low_c, high_c = cert.count_bounds("c", t)
+    low_o, high_o = cert.count_bounds("o", t)
+    unc = s[2] + s[3]
+    uno_low = s[1] + s[3]
+    uno_high = uno_low + (s[2] if part4_unknown else 0)
+    return low_c <= unc <= high_c and uno_low <= high_o and low_o <= uno_high
+
+
+def bounded_agreement(cert, staircase_sizes, *, part4_unknown: bool = False):
+    """How the staircase's sizes meet a certificate that could not count some clusters.
+
+    A defective eigenvalue whose Jordan chains run through most of the model (the
+    ``repeated`` family of the trust study: every eigenvalue equal, blocks shared between
+    the parts) is measured at its mean, but its copies are not counted: a short staircase
+    of its own block is no second method there.  The certificate then still bounds the
+    counts (:meth:`~plantcore.structure.certificate.ModalCertificate.count_bounds`: from
+    the geometric to the algebraic multiplicity).  Returns None when the rule does not
+    apply (no uncounted cluster, or a cluster left undecided by its eigenvalue's own error
+    somewhere in the window); else the window tolerances at which the staircase's sizes
+    lie outside the bounds (empty: consistent across the window, so the certificate does
+    not contradict the staircase, whose own margins decide).
+    """
+    if cert is None or not cert.has_uncounted():
+        return None
+    t = cert.tolerance
+    window = (t / FRAGILITY_FACTOR, t, t * FRAGILITY_FACTOR)
+    if any(cert.undecided_by_sensitivity(x) for x in window):
+        return None
+    return tuple(x for x in window
+                 if not within_bounds(cert, staircase_sizes, x, part4_unknown=part4_unknown))
+
+
+def bounded_text(cert, staircase_decisions) -> str:
+    """Why a staircase answer that lies within the certificate's bounds stays fragile.
+
+    A staircase run through a defective eigenvalue it shares with other parts can keep
+    rounding amplified along the Jordan chains (a perturbation ``delta`` moves the
+    eigenvalues of a chain of length ``j`` by ``delta^(1/j)``; J. H. Wilkinson, *The
+    Algebraic Eigenvalue Problem*, 1965, chapter 2; C. C. Paige 1981 for the staircase) or
+    shrink a real coupling to rounding, so its margins prove nothing there, and the
+    certificate only bounds the count.  Measured on the trust study's ``repeated`` family
+    (900 models, fresh seed 2060040533): three observability staircases were wrong with
+    every kept value above 0.07 relative (1e9 tol) and the dropped one at 3e-16, and on
+    600 more (seeds 20261203 and 777) 40 wrong answers kept values from 1 tol to 4e8 tol:
+    no margin separates them from the right ones.
+    """
+    own = [d for d in staircase_decisions if not (d.check_only or d.superseded)]
+    kept = min([d.smallest_kept for d in own] + [math.inf])
+    dropped = max([d.largest_dropped for d in own] + [0.0])
+    count = len(cert._uncounted)
+    return (f"the certificate bounds but cannot count the copies of {count} defective "
+            "eigenvalue cluster(s) whose Jordan chains run through most of the model; the "
+            "staircase's count lies within the bounds across the window, but beside such a "
+            f"cluster its margins (smallest kept {kept:.2g}, largest dropped {dropped:.2g}) "
+            "are no proof: no second method decides")
+
+
+def _bounded_decisions(cert, staircase_sizes, outside, staircase_decisions) -> tuple:
+    """The certificate's two check decisions under :func:`bounded_agreement`."""
+    t = cert.tolerance
+    n = cert.n
+    count = len(cert._uncounted)
+    conflict = t in outside
+    text = bounded_text(cert, staircase_decisions)
+    if outside:
+        text = (f"the staircase gives the parts {_sizes_text(staircase_sizes)}, outside the "
+                "bounds the PBH measures give for "
+                f"{count} defective eigenvalue cluster(s) at "
+                + ", ".join(f"{x:.2g}" for x in outside))
+    out = []
+    for side, word in (("c", "uncontrollable"), ("o", "unobservable")):
+        low, high = cert.count_bounds(side, t)
+        kept, dropped = cert.counts_summary(side)
+        label = (f"modal certificate: modes not {word} (between {n - high} and {n - low}: "
+                 f"{count} defective cluster(s) bounded, not counted)")
+        out.append(RankDecision(label, n - low, n, kept, dropped, t, conflict=conflict,
+                                check_only=True, window_outcome=text))
+    return tuple(out)
+
+
+def certificate_decisions(cert, staircase_sizes, *, decided: bool = False,
+                          part4_unknown: bool = False, staircase_decisions=()) -> tuple:
     """The certificate's two decisions (modes proven uncontrollable, unobservable).
 
     ``staircase_sizes`` are the four part sizes the staircase found; the decisions carry a
     conflict when the certificate's sizes differ from them and ``decided`` is False (when
     the certificate decided the answer, the staircase's decisions are the superseded ones).
+    Where the certificate only bounds the counts of some clusters
+    (:func:`bounded_agreement`), the staircase's sizes are checked against the bounds
+    instead (``part4_unknown`` as for :func:`within_bounds`): a conflict only when the
+    staircase's sizes lie outside them, else fragile for the reason
+    :func:`bounded_text` gives (``staircase_decisions`` supply its margins).
     """
     if cert is None:
         return ()
     t = cert.tolerance
+    if not decided:
+        outside = bounded_agreement(cert, staircase_sizes, part4_unknown=part4_unknown)
+        if outside is not None:
+            return _bounded_decisions(cert, staircase_sizes, outside, staircase_decisions)
     window = cert.window_sizes()
     low, high = window[t / FRAGILITY_FACTOR], window[t * FRAGILITY_FACTOR]
     here = window[t]

@@ -29,6 +29,7 @@ from plantcore.structure.balancing_connectivity import balancing_connectivity
 from plantcore.structure.certificate import modal_certificate, schur_eigenvalues
 from plantcore.structure.reconcile import (
     MILD_SCALING_ORDERS,
+    bounded_text,
     confirm_window,
     supersede,
     undecided_text,
@@ -146,7 +147,7 @@ def _controllability(model, tol, label="controllability"):
                              keep_schur=True)
     red = reduce_staircase(A_e, B_s, C_e, scale=scale, tol=tol, label=label)
     rank = int(sum(red.blocks))
-    check = _certificate_check(cert, rank, label)
+    check = _certificate_check(cert, rank, label, staircase_decisions=red.decisions)
     if check and check[0].conflict and check[0].rank < rank:   # the staircase kept noise
         corrected = _spectral_staircase(A_e, B_s, C_e, cert, scale=scale, tol=tol,
                                         label=label)
@@ -218,7 +219,8 @@ def _spectral_staircase(A, B, C, cert, *, scale, tol, label):
     return A_t, B_t, C_t, U, list(red.blocks), tuple(red.decisions)
 
 
-def _certificate_check(cert, rank: int, label: str, *, decided: bool = False) -> tuple:
+def _certificate_check(cert, rank: int, label: str, *, decided: bool = False,
+                       staircase_decisions=()) -> tuple:
     """The certificate's count of modes not uncontrollable, against the staircase's rank:
     a conflict when they differ (the staircase form is returned as found); the window is
     examined as in :func:`plantcore.structure.reconcile.certificate_decisions`."""
@@ -226,8 +228,28 @@ def _certificate_check(cert, rank: int, label: str, *, decided: bool = False) ->
         return ()
     n = cert.n
     t = cert.tolerance
-    counts = {x: n - int(cert.uncontrollable_copies(x).sum())
-              for x in (t / FRAGILITY_FACTOR, t, t * FRAGILITY_FACTOR)}
+    window = (t / FRAGILITY_FACTOR, t, t * FRAGILITY_FACTOR)
+    word = "uncontrollable" if label == "controllability" else "unobservable"
+    if not decided and cert.has_uncounted() and \
+            not any(cert.undecided_by_sensitivity(x) for x in window):
+        # defective clusters bounded, not counted (see reconcile.bounded_agreement)
+        bounds = {x: cert.count_bounds("c", x) for x in window}
+        outside = tuple(x for x, (low, high) in bounds.items() if not low <= n - rank <= high)
+        low, high = bounds[t]
+        kept, dropped = cert.counts_summary("c")
+        clusters = len(cert._uncounted)
+        text = bounded_text(cert, staircase_decisions)
+        if outside:
+            text = (f"the staircase gives rank {rank}, outside the bounds {n - high}..{n - low}"
+                    f" the PBH measures give for {clusters} defective eigenvalue cluster(s) at "
+                    + ", ".join(f"{x:.2g}" for x in outside))
+        label_text = f"modal certificate: modes not {word}" + (
+            "" if outside else f" (between {n - high} and {n - low}: {clusters} defective "
+            "cluster(s) bounded, not counted)")
+        return (RankDecision(label_text, n - low, n, kept,
+                             dropped, t, conflict=t in outside, check_only=True,
+                             window_outcome=text),)
+    counts = {x: n - int(cert.uncontrollable_copies(x).sum()) for x in window}
     outcome = ""
     if len(set(counts.values())) > 1:
         outcome = "inside the window the rank changes: " + ", ".join(
@@ -240,7 +262,6 @@ def _certificate_check(cert, rank: int, label: str, *, decided: bool = False) ->
         outcome = (f"the staircase gives rank {rank}, the PBH measures {counts[t]}"
                    + (f"; {outcome}" if outcome else ""))
     kept, dropped = cert.counts_summary("c")
-    word = "uncontrollable" if label == "controllability" else "unobservable"
     return (RankDecision(f"modal certificate: modes not {word}", counts[t], n, kept, dropped,
                          t, conflict=conflict, check_only=not decided,
                          window_outcome=outcome),)
