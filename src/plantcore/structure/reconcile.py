@@ -106,11 +106,11 @@ def bounded_text(cert, staircase_decisions) -> str:
     kept = min([d.smallest_kept for d in own] + [math.inf])
     dropped = max([d.largest_dropped for d in own] + [0.0])
     count = len(cert._uncounted)
-    return (f"the certificate bounds but cannot count the copies of {count} defective "
-            "eigenvalue cluster(s) whose Jordan chains run through most of the model; the "
-            "staircase's count lies within the bounds across the window, but beside such a "
-            f"cluster its margins (smallest kept {kept:.2g}, largest dropped {dropped:.2g}) "
-            "are no proof: no second method decides")
+    return (f"the certificate bounds but cannot count the copies of {count} repeated "
+            "eigenvalue cluster(s) (counting them would take a staircase as long as the one "
+            "checked); the staircase's count lies within the bounds across the window, but "
+            f"beside such a cluster its margins (smallest kept {kept:.2g}, largest dropped "
+            f"{dropped:.2g}) are no proof: no second method decides")
 
 
 def _bounded_decisions(cert, staircase_sizes, outside, staircase_decisions) -> tuple:
@@ -123,14 +123,14 @@ def _bounded_decisions(cert, staircase_sizes, outside, staircase_decisions) -> t
     if outside:
         text = (f"the staircase gives the parts {_sizes_text(staircase_sizes)}, outside the "
                 "bounds the PBH measures give for "
-                f"{count} defective eigenvalue cluster(s) at "
+                f"{count} repeated eigenvalue cluster(s) at "
                 + ", ".join(f"{x:.2g}" for x in outside))
     out = []
     for side, word in (("c", "uncontrollable"), ("o", "unobservable")):
         low, high = cert.count_bounds(side, t)
         kept, dropped = cert.counts_summary(side)
         label = (f"modal certificate: modes not {word} (between {n - high} and {n - low}: "
-                 f"{count} defective cluster(s) bounded, not counted)")
+                 f"{count} repeated cluster(s) bounded, not counted)")
         out.append(RankDecision(label, n - low, n, kept, dropped, t, conflict=conflict,
                                 check_only=True, window_outcome=text))
     return tuple(out)

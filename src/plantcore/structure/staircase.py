@@ -241,10 +241,10 @@ def _certificate_check(cert, rank: int, label: str, *, decided: bool = False,
         text = bounded_text(cert, staircase_decisions)
         if outside:
             text = (f"the staircase gives rank {rank}, outside the bounds {n - high}..{n - low}"
-                    f" the PBH measures give for {clusters} defective eigenvalue cluster(s) at "
+                    f" the PBH measures give for {clusters} repeated eigenvalue cluster(s) at "
                     + ", ".join(f"{x:.2g}" for x in outside))
         label_text = f"modal certificate: modes not {word}" + (
-            "" if outside else f" (between {n - high} and {n - low}: {clusters} defective "
+            "" if outside else f" (between {n - high} and {n - low}: {clusters} repeated "
             "cluster(s) bounded, not counted)")
         return (RankDecision(label_text, n - low, n, kept,
                              dropped, t, conflict=t in outside, check_only=True,
