@@ -27,6 +27,16 @@ def _modal(rng, n, m, p, radius=(0.6, 0.9), dt=1.0):
                               rng.standard_normal((p, m)), dt=dt)
 
 
+def _forty_db(rng, model, samples):
+    """Exact pulse response, white noise at 40 dB signal-to-noise (noise standard deviation
+    = RMS of h_1.. / 100, as in benchmarks/impulse_realization_study.py) and its level."""
+    exact = markov_parameters(model, samples).values
+    sigma = np.sqrt(np.mean(exact[1:] ** 2)) / 100.0
+    noise = sigma * rng.standard_normal(exact.shape)
+    noise[0] = 0.0
+    return exact, noise, sigma
+
+
 @pytest.mark.parametrize("discrete", [False, True])
 def test_exact_data_give_the_order_and_the_transfer_function(discrete):
     # Ho and Kalman 1966: exact Markov parameters of a minimal order-n model give order n and
@@ -68,10 +78,7 @@ def test_noisy_data_order_gap_and_noise_estimate():
     # Weyl's inequality every value moves by at most ||E||_2 (Weyl 1912, from memory).
     rng = np.random.default_rng(12)
     model = _modal(rng, 4, 2, 2, radius=(0.7, 0.8))
-    exact = markov_parameters(model, 80).values
-    sigma = np.sqrt(np.mean(exact[1:] ** 2)) / 100.0
-    noise = sigma * rng.standard_normal(exact.shape)
-    noise[0] = 0.0
+    exact, noise, sigma = _forty_db(rng, model, 80)
     fit = realize_impulse_response(exact + noise, sample_time=1.0)
     assert fit.order == 4 and fit.noise_level_source == "estimated"
     assert fit.noise_level == pytest.approx(sigma, rel=0.3)
@@ -239,3 +246,25 @@ def test_state_hidden_below_the_noise_is_not_seen():
     unit = _noise_spectra(199, 1, 1, q, r)[:, 0].mean()
     fit = realize_impulse_response(data + extra * (0.05 * sigma * unit / own), sample_time=1.0)
     assert fit.order == 3 and not fit.fragile
+
+
+def test_sequential_floor_finds_a_state_the_plain_noise_floor_misses():
+    # 16 states at 40 dB (as in benchmarks/impulse_realization_study.py): with k states in
+    # the data, value k + 1 is tested against what noise makes next to those k states (a
+    # parametric bootstrap, Efron 1979), which lies below the floor for noise alone (by
+    # Weyl's inequality sigma_{k+1}(H_k + E) <= ||E||; Weyl 1912, from memory).  Here the
+    # floor for noise alone shows 14 states of the whole record, the sequential test 15, and
+    # the first 80 samples all 16.
+    rng = np.random.default_rng(42)
+    model = _modal(rng, 16, 1, 1, radius=(0.9, 0.97))
+    exact, noise, sigma = _forty_db(rng, model, 120)
+    fit = realize_impulse_response(exact + noise, sample_time=1.0, noise_level=sigma)
+    q, r = _hankel_shape(119)
+    s_all = scipy.linalg.svdvals(_block_hankel(exact + noise, q, r))
+    norms = _noise_spectra(119, 1, 1, q, r)[:, 0]
+    plain = sigma * (norms.mean() + 5 * norms.std(ddof=1))
+    assert np.count_nonzero(s_all > plain) == 14
+    assert fit.window_orders[0] == (120, 15)
+    assert fit.order == 16 and fit.fragile
+    s = fit.hankel_singular_values
+    assert s[15] > fit.noise_floor > s[16]

@@ -71,7 +71,7 @@ _PLATEAU_LOW = 0.5
 _WINDOW_RATIO = 1.5
 
 #: No window shorter than this many Markov parameters is tried: below it the spectral norm of a
-#: white-noise Hankel matrix varies too much for eight draws to bound it.
+#: white-noise Hankel matrix varies too much for the seeded draws to bound it.
 _MIN_WINDOW = 30
 
 
@@ -92,8 +92,9 @@ class ImpulseRealization:
         Singular values of the block Hankel matrix of the data, descending.
     noise_floor : float
         The value below which a Hankel singular value counts as noise or rounding:
-        the larger of the rounding floor (``tol x sigma_1``) and the noise floor (the
-        spectral norm a white-noise Hankel matrix of the noise level reaches, see Notes).
+        the larger of the rounding floor (``tol x sigma_1``) and the noise floor of the last
+        value tested (what noise of the noise level makes next to the states accepted before
+        it, at most the spectral norm a white-noise Hankel matrix reaches; see Notes).
     noise_level : float
         The standard deviation of the noise on each entry of ``h_1 .. h_L``: given, or
         estimated, or 0 for exact data.
@@ -131,10 +132,10 @@ class ImpulseRealization:
     window_orders : tuple of (int, int)
         ``(samples, states above the floor)`` for every window examined, longest first.
     plateau_ratio : float
-        ``sigma_{n+1}`` over the typical spectral norm of the noise Hankel matrix (noise level
-        times the mean norm of unit white-noise draws): about 1 when the dropped values are
-        the noise plateau; above the largest draw it hints at a state hidden just below the
-        floor.  ``nan`` for exact data or when nothing is dropped.
+        ``sigma_{n+1}`` over its typical value for noise of the noise level next to the ``n``
+        states (the bootstrap mean of Notes, item 2; for order 0 the mean norm of the noise
+        Hankel matrix): about 1 when the dropped values are the noise plateau; far above 1
+        it hints at a state hidden just below the floor.  ``nan`` for exact data or when nothing is dropped.
     time_scale : float
         1.0 for sampled data; for continuous-time coefficients the ``rho`` by which
         ``h_k`` was divided as ``h_k / rho^(k-1)`` before the Hankel matrix was formed (the
@@ -256,6 +257,14 @@ def _noise_spectra(L: int, p: int, m: int, q: int, r: int) -> np.ndarray:
     return out
 
 
+def _noise_hankels(L: int, p: int, m: int, q: int, r: int):
+    """The seeded unit-variance white-noise Hankel matrices whose singular values
+    :func:`_noise_spectra` records (the same draws, generated again, one at a time)."""
+    rng = np.random.default_rng(_NOISE_SEED)
+    for _ in range(_NOISE_DRAWS):
+        yield _block_hankel(rng.standard_normal((L + 1, p, m)), q, r)
+
+
 def _estimate_noise(s: np.ndarray, unit: np.ndarray) -> float:
     """Noise level from the trailing half of the Hankel singular values.
 
@@ -317,16 +326,30 @@ def realize_impulse_response(data, *, sample_time=None, order=None, noise_level=
     1. **Hankel matrix.**  With ``L = K - 1`` parameters ``h_1 .. h_L``, ``q = ceil(L / 2)``
        block rows and ``r = L + 1 - q`` block columns use every sample once on the
        anti-diagonals.
-    2. **Floor and window.**  Weyl's inequality bounds every singular value of ``H + E``
-       that the noise-free rank ``n`` leaves (``sigma_{n+1}``, ...) by ``||E||_2``.  The
-       noise floor is the mean plus 5 standard deviations of the spectral norms of 24
-       seeded draws of a Hankel matrix of the same structure filled with white noise of the
-       noise level (beyond the measured 99.9th percentile of ``||E||_2`` for every shape
-       tried, see ``_FLOOR_STDS``).  When the noise level is not given, it is estimated as
-       the median, over the trailing half of the values, of ``sigma_i`` divided by the mean
-       ``sigma_i`` of unit noise; the estimate is sound when the order is below half the
-       number of values.  The floor is the larger of this noise floor and the rounding
-       floor ``tol sigma_1``.  With a noise floor, shorter windows ``h_1 .. h_{L'}``
+    2. **Floor, sequential test and window.**  Weyl's inequality bounds every singular
+       value of ``H + E`` that the noise-free rank ``n`` leaves (``sigma_{n+1}``, ...) by
+       ``||E||_2``.  The floor for noise alone is the mean plus 5 standard deviations of the
+       spectral norms of 24 seeded draws of a Hankel matrix of the same structure filled with
+       white noise of the noise level (beyond the measured 99.9th percentile of ``||E||_2``
+       for every shape tried, see ``_FLOOR_STDS``); the values above it are states.  Then
+       value ``k + 1`` (``k`` the states accepted so far) is tested against what noise makes
+       *next to* ``k`` states: the mean plus 5 standard deviations, over the same draws
+       ``E_j``, of ``sigma_{k+1}(H_k + E_j)`` with ``H_k`` the rank-``k`` truncation of the
+       data's Hankel matrix (a parametric bootstrap, Efron 1979; the sequential test of
+       value ``k + 1`` against the noise with ``k`` signals removed follows Kritchman and
+       Nadler 2009, with simulated draws in place of their random-matrix limit because
+       Hankel noise is not independent entries).  This floor lies below the one for noise
+       alone (``sigma_{k+1}(H_k + E) <= ||E||_2``, Weyl), most where ``k`` is a large part
+       of the block rows: the ``k`` leading directions of the data absorb the strongest
+       noise directions.  If the value exceeds it, it is a state and the test moves to
+       ``k + 2``; the floor reported is that of the last value tested.  Measured over 2,520
+       draws of the true order's next value (SISO and 1 x 2 models of order 2-40, 89-199
+       samples), its distance from the bootstrap mean was at most 4.0 bootstrap standard
+       deviations (99.9th percentile 3.3).  When the noise level is not given, it is
+       estimated as the median, over the trailing half of the values, of ``sigma_i`` divided
+       by the mean ``sigma_i`` of unit noise; the estimate is sound when the order is below
+       half the number of values.  The floor is never below the rounding floor
+       ``tol sigma_1``.  With a noise floor, shorter windows ``h_1 .. h_{L'}``
        (``L' = L / 1.5, L / 1.5^2, ...``, at least 30 parameters) are examined too, each
        against its own floor: once a fast mode has decayed into the noise, later samples
        add noise (``||E||_2`` grows like ``sqrt(L)``) but none of its signal, so a shorter
@@ -342,8 +365,8 @@ def realize_impulse_response(data, *, sample_time=None, order=None, noise_level=
        gap measured against the noise: the order is confident when the weakest kept value
        stands at least ``NOISE_CONFIDENCE_FACTOR`` (100) times above the floor, the top of
        the plateau is what noise of the level makes (``plateau_ratio`` at least 0.5, and
-       at most 4 standard deviations of the noise norm above its mean), and, for an estimated level, the
-       order is below half the number of values.  Otherwise the decision is fragile and
+       at most 4 standard deviations of its bootstrap distribution above its mean), and,
+       for an estimated level, the order is below half the number of values.  Otherwise the decision is fragile and
        ``decision.window_outcome`` says why.  A confident order is the order the data
        support: any state it misses has a noise-free Hankel singular value below about
        twice the floor (Weyl), that is, within the noise.  Judge an order further by
@@ -375,6 +398,11 @@ def realize_impulse_response(data, *, sample_time=None, order=None, noise_level=
     .. [4] H. Weyl, "Das asymptotische Verteilungsgesetz der Eigenwerte linearer partieller
        Differentialgleichungen", Mathematische Annalen 71, 441-479, 1912 (the perturbation
        inequality for singular values; from memory).
+    .. [5] B. Efron, "Bootstrap methods: another look at the jackknife", The Annals of
+       Statistics 7(1), 1-26, 1979.
+    .. [6] S. Kritchman and B. Nadler, "Non-parametric detection of the number of signals:
+       hypothesis testing and random matrix theory", IEEE Transactions on Signal Processing
+       57(10), 3930-3941, 2009.
 
     Examples
     --------
@@ -456,11 +484,11 @@ def realize_impulse_response(data, *, sample_time=None, order=None, noise_level=
                            f"(confident from {NOISE_CONFIDENCE_FACTOR:g} x)")
         if plateau > 1.0 + _PLATEAU_STDS * best.unit_std / best.unit_mean:
             reasons.append(f"the largest dropped value stands more than {_PLATEAU_STDS:g} "
-                           "standard deviations above the mean norm of white noise of this "
-                           "level, so a state may lie just below the floor")
+                           "standard deviations above what noise of this level makes next to "
+                           "the kept states, so a state may lie just below the floor")
         elif plateau < _PLATEAU_LOW:
-            reasons.append(f"the largest dropped value is only {plateau:.3g} x the typical "
-                           "norm of noise of this level, so the noise level overstates the "
+            reasons.append(f"the largest dropped value is only {plateau:.3g} x what noise "
+                           "of this level typically makes there, so the noise level overstates the "
                            "noise and states below the floor may be dropped unseen")
         if source == "estimated" and automatic > s.size // 2:
             reasons.append("the order exceeds half the number of Hankel singular values, where "
@@ -514,23 +542,63 @@ def _hankel_shape(L: int) -> tuple:
 
 
 class _Window:
-    """The Hankel singular values of ``h_1 .. h_length``, their floor and the count above it."""
+    """The Hankel singular values of ``h_1 .. h_length``, their floor and the count above it.
+
+    The count is decided by the sequential test of Notes, item 2: value ``k + 1`` is a state
+    when it exceeds ``floor_k``, the floor of noise with ``k`` states already accepted.
+    """
 
     def __init__(self, h, length, p, m, level, tol, s=None):
-        self.length = length
+        self.h, self.length, self.p, self.m, self.level = h, length, p, m, level
         self.q, self.r = _hankel_shape(length)
         self.s = scipy.linalg.svdvals(_block_hankel(h, self.q, self.r)) if s is None else s
         self.n_max = int(min((self.q - 1) * p, self.r * m, self.s.size))
         sigma1 = float(self.s[0]) if self.s.size else 0.0
         rounding = resolve_tolerance(tol, self.s.size) * sigma1
+        self.rounding = rounding
         noise, self.unit_mean, self.unit_std = 0.0, math.nan, math.nan
+        self._spectra = None
         if level > 0 and sigma1 > 0:
-            norms = _noise_spectra(length, p, m, self.q, self.r)[:, 0]
+            self._spectra = _noise_spectra(length, p, m, self.q, self.r)
+            norms = self._spectra[:, 0]
             self.unit_mean, self.unit_std = float(norms.mean()), float(norms.std(ddof=1))
             noise = level * (self.unit_mean + _FLOOR_STDS * self.unit_std)
         self.floor = max(noise, rounding)
         self.noise_rules = noise > 0 and noise >= rounding
         self.count = min(int(np.count_nonzero(self.s > self.floor)), self.n_max)
+        self._vectors = None
+        if self.noise_rules:
+            self._sequential()
+
+    def _sequential(self):
+        """Raise the count while value ``count + 1`` exceeds the floor of noise with ``count``
+        states present (Notes, item 2); afterwards ``floor``, ``unit_mean`` and ``unit_std``
+        belong to the last value tested."""
+        level, s = self.level, self.s
+        while 0 < self.count < self.n_max:
+            k = self.count
+            mean, std = self._null_of_next_value(k)
+            self.floor = max(min(self.floor, level * (mean + _FLOOR_STDS * std)), self.rounding)
+            self.unit_mean, self.unit_std = mean, std
+            if s[k] <= self.floor:
+                break
+            self.count += 1
+
+    def _null_of_next_value(self, k):
+        """Mean and standard deviation, over the seeded unit draws ``E_j``, of
+        ``sigma_{k+1}(H_k + level E_j) / level``, ``H_k`` the rank-``k`` truncation of the
+        data's Hankel matrix: what value ``k + 1`` would be if the data had ``k`` states
+        (a parametric bootstrap, Efron 1979)."""
+        if self._vectors is None:
+            U, _, Vt = scipy.linalg.svd(_block_hankel(self.h, self.q, self.r),
+                                        full_matrices=False)
+            self._vectors = (U, Vt)
+        U, Vt = self._vectors
+        signal = (U[:, :k] * self.s[:k]) @ Vt[:k]
+        values = np.array([scipy.linalg.svdvals(signal + self.level * e)[k]
+                           for e in _noise_hankels(self.length, self.p, self.m, self.q, self.r)])
+        values /= self.level
+        return float(values.mean()), float(values.std(ddof=1))
 
 
 def _realization(h, U, s, Vt, n, p, m, sample_time, inputs, outputs, name) -> StateSpaceModel:
