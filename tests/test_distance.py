@@ -75,3 +75,17 @@ def test_searches_on_the_schur_form_reach_the_dense_newton_estimate(seed, monkey
         attained = np.linalg.svd(np.hstack([A - e.at * np.eye(n), M]), compute_uv=False)[-1]
         assert e.value * p.scale >= attained * (1 - 1e-8)
         assert_allclose(e.value, d.value, rtol=1e-6)
+
+
+def test_the_method_sentence_shows_a_rounding_level_eigenvalue_as_zero():
+    # an integrator hidden by a rotation comes back at about 1e-17: the sentence says 0
+    # (the one rounding rule of the reports; common practice)
+    from plantcore.structure.distance import distance_to_uncontrollability
+
+    rng = np.random.default_rng(0)
+    Q, _ = np.linalg.qr(rng.standard_normal((3, 3)))
+    A = Q @ np.diag([0.0, -1.0, -2.0]) @ Q.T
+    B = Q @ np.array([[0.0], [1.0], [1.0]])
+    estimate = distance_to_uncontrollability(pc.StateSpaceModel(A, B, rng.standard_normal((1, 3))))
+    assert abs(estimate.at) < 1e-14 and estimate.at != 0
+    assert "at lambda = 0," in estimate.method

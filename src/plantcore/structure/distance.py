@@ -16,6 +16,7 @@ import numpy as np
 
 from plantcore.core.model import as_model
 from plantcore.core.safe_norms import frobenius
+from plantcore.core.wording import shown_eigenvalue
 from plantcore.structure.kalman import _prepare
 from plantcore.structure.modes import _CLUSTER_FACTOR, _EPS, _clustered_eigenvalues, _upper
 from plantcore.structure.pbh_measures import PBHMeasures, one_blas_thread
@@ -393,7 +394,7 @@ def _distances_of(problems) -> list[DistanceEstimate]:
         best_value, best_at = scored[0]
         if best_value / scale <= _ZERO_LEVEL:
             method = (f"smallest singular value evaluated at the eigenvalues; it is at the "
-                      f"rounding level at {_short(best_at)}, so the model is numerically "
+                      f"rounding level at {_short(shown_eigenvalue(best_at, frobenius(A)))}, so the model is numerically "
                       f"{_ADJECTIVE[kind]} there and no search was needed")
             results[i] = DistanceEstimate(float(best_value / scale), best_at, kind, method)
             prepared.append(None)
