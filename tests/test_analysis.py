@@ -338,3 +338,12 @@ def test_analyze_takes_one_schur_form_of_the_model_for_its_sections(unstable, mo
     result = pc.analyze(model)
     assert 1 <= sum(shape == (n, n) for shape in calls) <= 2
     assert_allclose(result.hankel_singular_values, expected, rtol=1e-9, atol=1e-14 * expected[0])
+
+
+def test_analyze_announces_its_stages_in_order():
+    from plantcore.analysis.analyze import ANALYSIS_STAGES
+
+    seen = []
+    A = np.diag([-1.0, -2.0, -3.0])
+    pc.analyze((A, np.ones((3, 1)), np.ones((1, 3))), progress=seen.append)
+    assert tuple(seen) == ANALYSIS_STAGES

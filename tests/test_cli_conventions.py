@@ -82,5 +82,5 @@ def test_inspect_progress_on_request_only(tmp_path, capsys):
     assert capsys.readouterr().err == ""                      # not a terminal: quiet
     assert main(["inspect", str(path), "--progress"]) == 0
     err = capsys.readouterr().err
-    assert "inspect: 1/2 (50%) Kalman parts, mode table, distance search" in err
-    assert err.rstrip().endswith("inspect: 2/2 (100%) done")
+    assert "inspect: 1/5 (20%) Kalman decomposition and certificate" in err
+    assert err.rstrip().endswith("inspect: 5/5 (100%) done")

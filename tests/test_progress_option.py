@@ -99,7 +99,7 @@ def _impulse(tmp_path):
 
 #: command -> (arguments after the command, label of the line, a stage it must name)
 CASES = {
-    "inspect": (lambda t: [str(_model(t))], "inspect", "mode table"),
+    "inspect": (lambda t: [str(_model(t))], "inspect", "Hankel singular values"),
     "reduce": (lambda t: [str(_model(t)), "-o", str(t / "r.toml")], "reduce",
                "certificate of the written model"),
     "reduce --order": (lambda t: [str(_model(t)), "-o", str(t / "r.toml"), "--order", "1"],

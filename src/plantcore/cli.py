@@ -129,12 +129,12 @@ def _cmd_inspect(args) -> int:
         from plantcore.commands.sparse_models import inspect_sparse
 
         return inspect_sparse(args, model)
+    from plantcore.analysis.analyze import ANALYSIS_STAGES
     from plantcore.commands.progress_option import stages
 
-    # coarse stages: analyze() reports nothing finer; the line shows the time spent
-    with stages("inspect", args, 2) as bar:
-        bar.step("Kalman parts, mode table, distance search")
-        analysis = analyze(model, tol=args.tol)
+    # the analysis names its stages; the line shows the time spent in each
+    with stages("inspect", args, len(ANALYSIS_STAGES) + 1) as bar:
+        analysis = analyze(model, tol=args.tol, progress=bar.step)
         bar.step("formatting")
     if args.format == "json":
         print(json.dumps(analysis.to_dict(), indent=2, allow_nan=False))

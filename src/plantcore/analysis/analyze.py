@@ -228,7 +228,12 @@ def _part_directions(kd: KalmanDecomposition, names) -> dict:
     return out
 
 
-def analyze(model, tol=None) -> Analysis:
+#: The stages :func:`analyze` announces to its ``progress`` callback, in order.
+ANALYSIS_STAGES = ("Kalman decomposition and certificate", "mode table", "distance search",
+                   "Hankel singular values")
+
+
+def analyze(model, tol=None, *, progress=None) -> Analysis:
     """Diagnose a model: Kalman parts, minimal order, modes, verdicts and Hankel values.
 
     Parameters
@@ -236,6 +241,9 @@ def analyze(model, tol=None) -> Analysis:
     model : StateSpaceModel, python-control StateSpace, or tuple (A, B, C[, D])
     tol : float, optional
         Relative rank tolerance (default and reasoning in :mod:`plantcore.core.rank`).
+    progress : callable, optional
+        Called with the name of each stage as it starts (:data:`ANALYSIS_STAGES`), so that
+        a caller can show where a long analysis is; the numerics never print.
 
     Returns
     -------
@@ -271,17 +279,22 @@ def analyze(model, tol=None) -> Analysis:
     p = _prepare(model, tol)
     model = p.model
     # small models: many small BLAS calls, which a second thread only slows down
+    announce = progress if progress is not None else (lambda stage: None)
     with threads_for_size(model.n):
+        announce(ANALYSIS_STAGES[0])
         kd = kalman_decomposition(model, tol)
         # One real Schur form of the equilibrated A serves the mode table, the boundary test,
         # the distance starts and the Gramians (it is computed on first use).
         whole = PBHMeasures(p.A)
+        announce(ANALYSIS_STAGES[1])
         modes = tuple(_mode_table(kd, p, NARROW_MARGIN, whole))
         removed = removed_from_modes(modes)
         mr = _minimal_from_decomposition(kd, p.s, removed)
         stabilizable = all(m.stable or m.controllable for m in modes)
         detectable = all(m.stable or m.observable for m in modes)
+        announce(ANALYSIS_STAGES[2])
         to_unc, to_unobs = _distances(p, modes, whole)
+        announce(ANALYSIS_STAGES[3])
         note = ""
         try:
             hsv = _hankel_values(_split(model, p, whole.schur), model.is_discrete) if model.n \
