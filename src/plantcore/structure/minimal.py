@@ -13,6 +13,7 @@ from plantcore.core.rank import any_fragile
 from plantcore.core.safe_norms import frobenius
 from plantcore.structure.balancing_connectivity import balancing_connectivity
 from plantcore.structure.kalman import _decompose, _prepare, _start
+from plantcore.structure.pbh_measures import one_blas_thread
 from plantcore.structure.reconcile import certificate_decisions, confirm_window
 from plantcore.structure.removed_modes import (
     removed_from_blocks,
@@ -114,6 +115,13 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
     >>> bool(np.allclose(mr.model.transfer_at(2j), g.transfer_at(2j)))
     True
     """
+    # one BLAS thread, for the reason given in plantcore.structure.kalman.kalman_decomposition
+    with one_blas_thread():
+        return _minimal(model, tol)
+
+
+def _minimal(model, tol) -> MinimalRealization:
+    """The body of :func:`minimal_realization` (internal)."""
     p = _prepare(model, tol)
     n = p.model.n
     m = p.model.n_inputs
@@ -135,7 +143,7 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
                     result = _minimal_from_decomposition(kd, p.s,
                                                          removed_from_decomposition(kd, p))
                     warn_hidden_modes(result.removed_unstable_modes,
-                                      "the minimal realization", stacklevel=2)
+                                      "the minimal realization", stacklevel=3)
                     return result
             except NumericalBreakdown:
                 pass
@@ -171,7 +179,7 @@ def minimal_realization(model, tol=None) -> MinimalRealization:
                           inputs=p.model.inputs, outputs=p.model.outputs, name=name)
     result = MinimalRealization(new, r, n - nc, nc - r, V, W, decisions,
                                 any_fragile(decisions), removed)
-    warn_hidden_modes(removed, "the minimal realization", stacklevel=2)
+    warn_hidden_modes(removed, "the minimal realization", stacklevel=3)
     return result
 
 
