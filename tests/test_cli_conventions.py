@@ -30,9 +30,7 @@ def test_the_list_of_commands_is_complete():
     assert sorted(sub.choices) == sorted(COMMANDS)
 
 
-# realize's -o and --sample-time help lack the word (its help text belongs to the impulse-
-# response work of issue 22; reported there)
-@pytest.mark.parametrize("command", [c for c in COMMANDS if c != "realize"])
+@pytest.mark.parametrize("command", COMMANDS)
 def test_every_option_that_takes_a_value_says_its_default(command):
     from plantcore.cli import _build_parser
 

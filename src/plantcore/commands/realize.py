@@ -38,11 +38,11 @@ def register(subparsers):
                "written; 2 bad input; 3 numerical breakdown.")
     p.add_argument("data", metavar="DATA", help="impulse-response data (.npz or .csv)")
     p.add_argument("-o", "--output", required=True, metavar="OUT",
-                   help="model file to write (.toml, .json or .npz)")
+                   help="model file to write (.toml, .json or .npz; required)")
     p.add_argument("--order", type=int, default=None,
                    help="order of the model (default: read from the Hankel singular values)")
     p.add_argument("--sample-time", type=float, default=None, dest="sample_time",
-                   help="sample time of the data in seconds (else the file's; without any, "
+                   help="sample time of the data in seconds (default: the file's; without any, "
                         "the data are read as the expansion coefficients of a continuous-time "
                         "model)")
     p.add_argument("--noise-level", type=float, default=None, dest="noise_level",
