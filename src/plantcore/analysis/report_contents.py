@@ -23,8 +23,8 @@ from plantcore.core.rank import DEFAULT_RELATIVE_TOLERANCE
 from plantcore.core.safe_norms import frobenius
 from plantcore.reduction.balanced import balanced_truncation
 from plantcore.reduction.equivalence import check_equivalence
+from plantcore.reduction.norms import _equilibrated, shared_response
 from plantcore.reduction.norms import peak_gain as _peak_gain
-from plantcore.reduction.norms import shared_response
 from plantcore.structure.placement import report_placement
 from plantcore.structure.zeros import transmission_zeros
 
@@ -107,7 +107,8 @@ def _singular_values(model, w: np.ndarray) -> np.ndarray:
     out = np.full((w.size, k), np.nan)
     schur = None
     if model.n > SCHUR_RESPONSE_STATES and not getattr(model, "is_sparse", False):
-        schur = shared_response(model.A, model.B, model.C, model.D, model.is_discrete)
+        # the equilibrated arrays, as the peak gain uses: the Schur form is shared with it
+        schur = shared_response(*_equilibrated(model), model.is_discrete)
     for i, wi in enumerate(w):
         if schur is not None:
             G = schur.response(float(wi * model.dt) if model.is_discrete else float(wi))

@@ -35,6 +35,7 @@ from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.core.rank import any_fragile
 from plantcore.core.safe_norms import frobenius
 from plantcore.reduction.power_of_two_scaling import model_scaling
+from plantcore.structure.modes import schur_eigenvalue_condition
 
 __all__ = ["PeakGain", "h2_norm", "peak_gain"]
 
@@ -200,7 +201,7 @@ def _poles_within_accuracy(response: _FrequencyResponse, discrete: bool,
     as a pair about ``sqrt(eps) ||A||`` away from 0 (a finite "peak" of ``1e14`` or more),
     while its condition number ``~ 1 / sqrt(eps)`` widens the test to cover that distance.
     ``kappa`` is read from the complex Schur form already held by ``response``
-    (:func:`_schur_eigenvalue_condition`, two triangular solves per pole) for at most
+    (:func:`plantcore.structure.modes.schur_eigenvalue_condition`, two triangular solves per pole) for at most
     ``_ACCURACY_CHECKS`` poles within ``_ACCURACY_REACH`` of the boundary.
     """
     if response.n == 0:
@@ -217,35 +218,8 @@ def _poles_within_accuracy(response: _FrequencyResponse, discrete: bool,
     near = near[np.argsort(distance[near], kind="stable")][:_ACCURACY_CHECKS]
     tol = BOUNDARY_FACTOR * _EPS * scale
     found = [k for k in near
-             if distance[k] <= tol * _schur_eigenvalue_condition(response.T, int(k))]
+             if distance[k] <= tol * schur_eigenvalue_condition(response.T, int(k))]
     return lam[np.array(found, dtype=int)]
-
-
-def _schur_eigenvalue_condition(T: np.ndarray, k: int) -> float:
-    """Condition number of the eigenvalue ``T[k, k]`` of the complex upper triangle ``T``.
-
-    With ``lambda = T[k, k]`` the right eigenvector is ``(x, 1, 0)`` and the left one
-    ``(0, 1, y)``, where ``(T_11 - lambda I) x = -t_12`` and
-    ``(T_22 - lambda I)^H y = -conj(t_21)`` are triangular; since ``y^H x = 1`` the condition
-    number ``||x|| ||y|| / |y^H x|`` is ``sqrt(1 + ||x||^2) sqrt(1 + ||y||^2)`` (Wilkinson
-    1965, chapter 2).  Vanishing pivots (other copies of the eigenvalue) are replaced by
-    ``eps max|T|``, which makes the vectors large, as they are for a defective eigenvalue.
-    """
-    n = T.shape[0]
-    lam = T[k, k]
-    floor = _EPS * (float(np.max(np.abs(T))) + 1e-300)
-
-    def solve(block, rhs, trans):
-        M = np.array(block, dtype=complex)
-        pivots = np.diagonal(M) - lam
-        M[np.diag_indices_from(M)] = np.where(np.abs(pivots) < floor, floor, pivots)
-        with np.errstate(all="ignore"):
-            z = scipy.linalg.solve_triangular(M, rhs, trans=trans, check_finite=False)
-        return math.hypot(1.0, frobenius(z)) if np.all(np.isfinite(z)) else math.inf
-
-    right = solve(T[:k, :k], -T[:k, k], "N") if k > 0 else 1.0
-    left = solve(T[k + 1:, k + 1:], -np.conj(T[k, k + 1:]), "C") if k < n - 1 else 1.0
-    return right * left
 
 
 def _pole_frequency(lam: complex, discrete: bool) -> float:

@@ -265,6 +265,14 @@ class ModalCertificate:
 
 # --- building blocks ---------------------------------------------------------------------
 
+def eigenvector_conditions(VL: np.ndarray, VR: np.ndarray) -> np.ndarray:
+    """Condition numbers ``1 / |w^H v|`` of the eigenvalues from unit left and right
+    eigenvectors (columns of ``VL`` and ``VR``; Wilkinson 1965, chapter 2); ``inf`` where
+    the two are orthogonal."""
+    overlap = np.abs(np.einsum("ij,ij->j", VL.conj(), VR))
+    return np.where(overlap > 0, 1.0 / np.maximum(overlap, 1e-300), math.inf)
+
+
 def offset_mean(z: np.ndarray) -> complex:
     """The mean of the nearby values ``z`` as the mean of their offsets from the first one:
     no overflow near the largest floats.  A group closed under conjugation (LAPACK returns
@@ -727,8 +735,7 @@ def modal_certificate(A, B, C, *, scale: float, tol: float,
         return None
     VL = VL / frobenius_of_columns(VL)
     VR = VR / frobenius_of_columns(VR)
-    overlap = np.abs(np.einsum("ij,ij->j", VL.conj(), VR))
-    kappa = np.where(overlap > 0, 1.0 / np.maximum(overlap, 1e-300), math.inf)
+    kappa = eigenvector_conditions(VL, VR)
     norm_A = float(frobenius(A))
     # the residuals ||w^H (A - lambda I)|| and ||(A - lambda I) v||, measured, plus the
     # rounding of measuring them (sqrt(n) eps ||A||, common practice for the typical

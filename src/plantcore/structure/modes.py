@@ -50,10 +50,11 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.linalg
 
-from plantcore.core.safe_norms import frobenius
+from plantcore.core.safe_norms import frobenius, frobenius_of_columns
 from plantcore.structure.certificate import (
     _clusters,
     close_pairs,
+    eigenvector_conditions,
     offset_mean,
     schur_eigenvalues,
 )
@@ -171,10 +172,7 @@ def _clustered_eigenvalues(A_block: np.ndarray, tol: float) -> np.ndarray:
     if not candidates.any():
         return values
     values, VL, VR = scipy.linalg.eig(A_block, left=True, right=True)
-    VL = VL / np.linalg.norm(VL, axis=0)
-    VR = VR / np.linalg.norm(VR, axis=0)
-    overlap = np.abs(np.einsum("ij,ij->j", VL.conj(), VR))
-    kappa = np.where(overlap > 0, 1.0 / np.maximum(overlap, 1e-300), math.inf)
+    kappa = eigenvector_conditions(VL / frobenius_of_columns(VL), VR / frobenius_of_columns(VR))
     return _conditioned_means(values, kappa, _candidates(values, tol), tol)
 
 
@@ -211,39 +209,39 @@ def _clustered_schur_eigenvalues(schur, tol: float) -> np.ndarray:
     T = schur.T if real else schur.complex[0]
     kappa = np.ones(values.size)
     for k in np.flatnonzero(candidates):
-        kappa[k] = _triangle_condition(T, k)
+        kappa[k] = schur_eigenvalue_condition(T, k)
     return _conditioned_means(values, kappa, candidates, tol)
 
 
-def _triangle_condition(T: np.ndarray, k: int) -> float:
-    """Condition number ``||x|| ||y|| / |y^H x|`` of the eigenvalue ``T[k, k]`` of the upper
-    triangle ``T``: right eigenvector ``x`` (zero below ``k``) and left eigenvector ``y``
-    (zero above ``k``) by back substitution, with ``x_k = y_k = 1`` so that ``y^H x = 1``
-    (J. H. Wilkinson, *The Algebraic Eigenvalue Problem*, 1965, chapter 2).  Pivots that
-    vanish (other copies of the eigenvalue) are lifted to ``eps ||T||`` for the solves,
-    which makes the vectors, and so ``kappa``, large: the copies then link up."""
-    lam = T[k, k]
+def schur_eigenvalue_condition(T: np.ndarray, k: int) -> float:
+    """Condition number of the eigenvalue ``T[k, k]`` of the upper triangle ``T`` (real or
+    complex).
+
+    With ``lambda = T[k, k]`` the right eigenvector is ``(x, 1, 0)`` and the left one
+    ``(0, 1, y)``, where ``(T_11 - lambda I) x = -t_12`` and
+    ``(T_22 - lambda I)^H y = -conj(t_21)`` are triangular; since ``y^H x = 1`` the condition
+    number ``||x|| ||y|| / |y^H x|`` is ``sqrt(1 + ||x||^2) sqrt(1 + ||y||^2)`` (J. H.
+    Wilkinson, *The Algebraic Eigenvalue Problem*, 1965, chapter 2).  Vanishing pivots
+    (other copies of the eigenvalue) are replaced by ``eps max|T|``, which makes the vectors
+    large, as they are for a defective eigenvalue: the copies then link up.  Shared with
+    the peak gain's boundary test (:mod:`plantcore.reduction.norms`).
+    """
     n = T.shape[0]
-    floor = _EPS * (float(np.abs(T).max()) + 1e-300)
+    lam = T[k, k]
+    floor = _EPS * (float(np.max(np.abs(T))) + 1e-300)
+    dtype = complex if np.iscomplexobj(T) else float
 
-    def shifted(block):
-        M = np.array(block, dtype=complex if np.iscomplexobj(T) else float)
-        d = M.diagonal() - lam
-        d = np.where(np.abs(d) < floor, floor, d)
-        M[np.diag_indices_from(M)] = d
-        return M
+    def solve(block, rhs, trans):
+        M = np.array(block, dtype=dtype)
+        pivots = np.diagonal(M) - lam
+        M[np.diag_indices_from(M)] = np.where(np.abs(pivots) < floor, floor, pivots)
+        with np.errstate(all="ignore"):
+            z = scipy.linalg.solve_triangular(M, rhs, trans=trans, check_finite=False)
+        return math.hypot(1.0, frobenius(z)) if np.all(np.isfinite(z)) else math.inf
 
-    norm_x = norm_y = 1.0
-    with np.errstate(over="ignore", invalid="ignore"):
-        if k > 0:
-            x = scipy.linalg.solve_triangular(shifted(T[:k, :k]), -T[:k, k])
-            norm_x = math.hypot(1.0, float(np.linalg.norm(x)))
-        if k < n - 1:
-            y = scipy.linalg.solve_triangular(shifted(T[k + 1:, k + 1:]), -np.conj(T[k, k + 1:]),
-                                              trans="C")
-            norm_y = math.hypot(1.0, float(np.linalg.norm(y)))
-    value = norm_x * norm_y
-    return value if math.isfinite(value) else math.inf
+    right = solve(T[:k, :k], -T[:k, k], "N") if k > 0 else 1.0
+    left = solve(T[k + 1:, k + 1:], -np.conj(T[k, k + 1:]), "C") if k < n - 1 else 1.0
+    return right * left
 
 
 def _stability_data(p, schur=None) -> tuple[float, np.ndarray]:
