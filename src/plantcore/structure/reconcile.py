@@ -38,8 +38,8 @@ from plantcore.core.rank import FRAGILITY_FACTOR, RankDecision
 from plantcore.core.safe_norms import frobenius
 from plantcore.structure.certificate import controllable_basis, schur_eigenvalues
 
-__all__ = ["bounded_agreement", "certificate_decisions", "confirm_window", "spectral_decomposition",
-           "within_bounds"]
+__all__ = ["bounded_agreement", "certificate_decisions", "confirm_window", "deflated_note",
+           "spectral_decomposition", "within_bounds"]
 
 
 def _sizes_text(sizes) -> str:
@@ -173,6 +173,7 @@ def certificate_decisions(cert, staircase_sizes, *, decided: bool = False,
                               ("o", "modal certificate: modes not unobservable",
                                here[1] + here[3])):
         kept, dropped = cert.counts_summary(side)
+        label += deflated_note(cert, side)
         text = outcome
         if conflict:
             text = (f"the staircase gives the parts {_sizes_text(staircase_sizes)}, the PBH "
@@ -180,6 +181,16 @@ def certificate_decisions(cert, staircase_sizes, *, decided: bool = False,
         out.append(RankDecision(label, n - lost, n, kept, dropped, t, conflict=conflict,
                                 check_only=not decided, window_outcome=text))
     return tuple(out)
+
+
+def deflated_note(cert, side: str) -> str:
+    """The label's note on the clusters one side's count keeps by their measure on the
+    deflated pair (see :func:`plantcore.structure.certificate._deflate`); empty if none."""
+    count = len(cert._deflated(side))
+    if not count:
+        return ""
+    return (f" ({count} cluster(s) whose whole-model measure lies inside the window kept by "
+            "their measure on the deflated pair, all above the window)")
 
 
 def certificate_finds_more(cert_sizes, staircase_sizes) -> bool:

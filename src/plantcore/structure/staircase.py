@@ -31,6 +31,7 @@ from plantcore.structure.reconcile import (
     MILD_SCALING_ORDERS,
     bounded_text,
     confirm_window,
+    deflated_note,
     supersede,
     undecided_text,
 )
@@ -262,7 +263,8 @@ def _certificate_check(cert, rank: int, label: str, *, decided: bool = False,
         outcome = (f"the staircase gives rank {rank}, the PBH measures {counts[t]}"
                    + (f"; {outcome}" if outcome else ""))
     kept, dropped = cert.counts_summary("c")
-    return (RankDecision(f"modal certificate: modes not {word}", counts[t], n, kept, dropped,
+    return (RankDecision(f"modal certificate: modes not {word}" + deflated_note(cert, "c"),
+                         counts[t], n, kept, dropped,
                          t, conflict=conflict, check_only=not decided,
                          window_outcome=outcome),)
 
