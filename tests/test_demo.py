@@ -8,6 +8,7 @@ import re
 
 import numpy as np
 import pytest
+from folder_snapshot import hidden_entries, snapshot
 
 import plantcore as pc
 from plantcore.cli import main
@@ -79,6 +80,89 @@ def test_demo_refuses_a_non_empty_folder(tmp_path, capsys):
     assert len(said.err.strip().splitlines()) == 1 and "not empty" in said.err
     assert os.listdir(tmp_path) == ["keep.txt"]
     assert (tmp_path / "keep.txt").read_text(encoding="utf-8") == "mine"
+
+
+def test_demo_refusal_without_force_points_to_force(tmp_path, capsys):
+    (tmp_path / "report.html").write_text("an earlier demo", encoding="utf-8")
+    assert main(["demo", "-o", str(tmp_path)]) == 2
+    err = capsys.readouterr().err
+    assert "not empty" in err and "give --force to replace one that holds only the demo's" in err
+    assert os.listdir(tmp_path) == ["report.html"]
+
+
+def _earlier_demo(demo_run, tmp_path):
+    """A copy of the module's demo folder, every file marked as coming from the old run."""
+    import shutil
+
+    folder = tmp_path / "out"
+    shutil.copytree(demo_run[1], folder)
+    for name in os.listdir(folder):
+        with open(folder / name, "ab") as f:
+            f.write(b"\nfrom the earlier run\n")
+    return folder
+
+
+def test_demo_force_replaces_its_own_earlier_output(demo_run, tmp_path, capsys):
+    folder = _earlier_demo(demo_run, tmp_path)
+    # an earlier run of the other example counts as the demo's own output as well
+    assert main(["demo", "-o", str(folder), "--force", "--example", "motion_axis"]) == 0
+    assert "14 -> 6 states" in capsys.readouterr().out
+    assert sorted(os.listdir(folder)) == sorted(DEMO_FILES)
+    for name in DEMO_FILES:
+        assert b"from the earlier run" not in (folder / name).read_bytes(), name
+    assert pc.load_model(folder / "original_model.toml").n == 14
+    assert sorted(os.listdir(tmp_path)) == ["out"]           # no staging or backup left
+
+
+@pytest.mark.parametrize("foreign", ["file", "subfolder", "symlink"])
+def test_demo_force_refuses_a_folder_with_anything_else(demo_run, tmp_path, capsys,
+                                                        monkeypatch, foreign):
+    import plantcore.analysis
+
+    folder = _earlier_demo(demo_run, tmp_path)
+    if foreign == "file":
+        (folder / "notes.txt").write_text("mine", encoding="utf-8")
+        named = "the file 'notes.txt'"
+    elif foreign == "subfolder":
+        (folder / "plots").mkdir()
+        named = "the folder 'plots'"
+    else:
+        os.remove(folder / "placement.txt")
+        os.symlink(tmp_path / "elsewhere.txt", folder / "placement.txt")
+        named = "the symbolic link 'placement.txt'"
+    before = snapshot(tmp_path)
+
+    def no_work(*args, **kwargs):
+        raise AssertionError("the folder must be refused before any work")
+
+    monkeypatch.setattr(plantcore.analysis, "collect_report", no_work)
+    assert main(["demo", "-o", str(folder), "--force"]) == 2
+    said = capsys.readouterr()
+    assert said.out == "" and len(said.err.strip().splitlines()) == 1
+    assert f"holds {named}, which the demo does not write" in said.err
+    assert "--force only replaces a folder holding the demo's own output" in said.err
+    assert snapshot(tmp_path) == before
+
+
+def test_an_interrupted_forced_demo_keeps_the_earlier_folder(demo_run, tmp_path, monkeypatch):
+    from plantcore import files
+
+    folder = _earlier_demo(demo_run, tmp_path)
+    before = snapshot(tmp_path)
+    calls = []
+    original = files.atomic_write_text
+
+    def fail_on_second(*args, **kwargs):
+        calls.append(args[0])
+        if len(calls) == 2:
+            raise SystemExit(143)  # as SIGTERM arrives (cleanup_on_terminate)
+        return original(*args, **kwargs)
+
+    monkeypatch.setattr(files, "atomic_write_text", fail_on_second)  # the demo imports it late
+    with pytest.raises(SystemExit):
+        run_demo(folder, echo=None, progress=False, force=True)
+    assert len(calls) == 2
+    assert snapshot(tmp_path) == before and hidden_entries(tmp_path) == []
 
 
 def test_demo_refuses_a_file_and_a_missing_parent(tmp_path):

@@ -10,6 +10,7 @@ import textwrap
 
 import numpy as np
 import pytest
+from folder_snapshot import hidden_entries, snapshot
 
 import plantcore as pc
 from plantcore.cli import main
@@ -218,20 +219,20 @@ BAD_FILES = [
      "colour", "unknown key"),
     ("B = [[1.0]]\nC = [[1.0]]\n[parameter_grid]\nm = { values = [1.0] }\n", "A", "missing"),
     ("A = [[1.0]]\nB = [[1.0]]\nC = [[1.0]]\n", "parameter_grid", "missing"),
-    ("A = [[1.0]]\nB = [[1.0]]\nC = [[1.0]]\n[parameter_grid]\nm = { values = [1.0] }\n"
+    (("A = [[1.0]]\nB = [[1.0]]\nC = [[1.0]]\n[parameter_grid]\nm = { values = [1.0] }\n"
      "[random_draws]\nseed = 1\ncount = 2\n[random_draws.parameters]\n"
-     "m = { distribution = \"uniform\", low = 0.0, high = 1.0 }\n", "random_draws", "not both"),
+     "m = { distribution = \"uniform\", low = 0.0, high = 1.0 }\n"), "random_draws", "not both"),
     ("A = [[1.0]]\nB = [[1.0]]\nC = [[1.0]]\n[parameter_grid]\nm = { start = 0.0, stop = 1.0, count = 0 }\n",
      "parameter_grid.m.count", ">= 1"),
     ("A = [[1.0]]\nB = [[1.0]]\nC = [[1.0]]\n[parameter_grid]\nm = { start = 0.0, count = 3 }\n",
      "parameter_grid.m", "missing 'stop'"),
     ("A = [[1.0]]\nB = [[1.0]]\nC = [[1.0]]\n[parameter_grid]\nm = { values = [1.0, \"x\"] }\n",
      "parameter_grid.m.values", "finite number"),
-    ("A = [[1.0]]\nB = [[1.0]]\nC = [[1.0]]\n[random_draws]\nseed = 1\ncount = 2\n"
-     "[random_draws.parameters]\nm = { distribution = \"triangle\", low = 0.0, high = 1.0 }\n",
+    (("A = [[1.0]]\nB = [[1.0]]\nC = [[1.0]]\n[random_draws]\nseed = 1\ncount = 2\n"
+     "[random_draws.parameters]\nm = { distribution = \"triangle\", low = 0.0, high = 1.0 }\n"),
      "random_draws.parameters.m.distribution", "choose one of"),
-    ("A = [[1.0]]\nB = [[1.0]]\nC = [[1.0]]\n[random_draws]\nseed = 1\ncount = 2\n"
-     "[random_draws.parameters]\nm = { distribution = \"normal\", mean = 0.0 }\n",
+    (("A = [[1.0]]\nB = [[1.0]]\nC = [[1.0]]\n[random_draws]\nseed = 1\ncount = 2\n"
+     "[random_draws.parameters]\nm = { distribution = \"normal\", mean = 0.0 }\n"),
      "random_draws.parameters.m", "standard_deviation"),
     ("A = [[1.0, 0.0], [0.0, 1.0]]\nB = [[1.0]]\nC = [[1.0, 0.0]]\n[parameter_grid]\nm = { values = [1.0] }\n",
      "B", "has 1 rows but A is 2 x 2"),
@@ -305,6 +306,69 @@ def test_cli_writes_table_plots_and_summary(tmp_path, capsys):
     spec_bytes = spec.read_bytes()
     assert main(["sweep", str(spec), "-o", str(spec), "--executor", "serial"]) == 2
     assert spec.read_bytes() == spec_bytes
+
+
+SMALL_GRID = ("coupling = { values = [0.0, 0.25, 0.5] }\n"
+              "area = { start = 1.0, stop = 2.0, count = 2 }\n")
+
+
+def test_cli_force_replaces_an_earlier_sweep_whole(tmp_path, capsys):
+    good = write(tmp_path, TWO_TANKS.replace(SMALL_GRID, "coupling = { values = [0.0, 0.5] }\n"
+                                              "area = { values = [1.0] }\n"), "good.toml")
+    failing = write(tmp_path, TWO_TANKS.replace(SMALL_GRID, "coupling = { values = [0.0, 0.5] }"
+                                                 "\narea = { values = [0.0] }\n"), "bad.toml")
+    out = tmp_path / "sweep"
+    assert main(["sweep", str(good), "-o", str(out), "--executor", "serial"]) == 0
+    assert {"margins.png", "structure.png"} <= set(os.listdir(out))
+    # every point of the second run fails: it writes no plots, and none of the old ones stay
+    assert main(["sweep", str(failing), "-o", str(out), "--executor", "serial", "--force"]) == 0
+    assert "(2 failed)" in capsys.readouterr().out
+    assert sorted(os.listdir(out)) == ["index.html", "summary.md", "table.csv"]
+    assert "## Failed points (2;" in (out / "summary.md").read_text(encoding="utf-8")
+    assert hidden_entries(tmp_path) == []
+    # and once more with the good specification: the plots are back
+    assert main(["sweep", str(good), "-o", str(out), "--executor", "serial", "--force"]) == 0
+    assert {"margins.png", "structure.png", "table.csv"} <= set(os.listdir(out))
+    assert hidden_entries(tmp_path) == []
+
+
+@pytest.mark.parametrize("foreign, named", [
+    ("file", "the file 'notes.txt'"),
+    ("subfolder", "the folder 'old'"),
+    ("symlink", "the symbolic link 'summary.md'"),
+    ("spec", "the input"),
+])
+def test_cli_force_refuses_a_folder_that_is_not_a_sweep_output(tmp_path, capsys, monkeypatch,
+                                                               foreign, named):
+    import importlib
+
+    sweep_module = importlib.import_module("plantcore.sweeps.sweep")  # the package exports
+    out = tmp_path / "sweep"
+    out.mkdir()
+    (out / "table.csv").write_text("an earlier table\n", encoding="utf-8")
+    spec = write(tmp_path, TWO_TANKS)
+    if foreign == "file":
+        (out / "notes.txt").write_text("mine", encoding="utf-8")
+    elif foreign == "subfolder":
+        (out / "old").mkdir()
+        (out / "old" / "table.csv").write_text("older", encoding="utf-8")
+    elif foreign == "symlink":
+        os.symlink(spec, out / "summary.md")
+    else:  # the specification, even under a name a sweep writes, inside the folder
+        spec = write(out, TWO_TANKS, "summary.md")
+    before = snapshot(tmp_path)
+
+    def no_work(*args, **kwargs):
+        raise AssertionError("the folder must be refused before the sweep runs")
+
+    monkeypatch.setattr(sweep_module, "sweep", no_work)  # the command imports it late
+    assert main(["sweep", str(spec), "-o", str(out), "--executor", "serial", "--force"]) == 2
+    said = capsys.readouterr()
+    err = said.err.strip().splitlines()
+    assert said.out == "" and len(err) == 1 and f"holds {named}" in err[0]
+    assert ("--force never replaces a folder holding an input file" if foreign == "spec" else
+            "--force only replaces a folder holding a sweep's own output") in err[0]
+    assert snapshot(tmp_path) == before
 
 
 @pytest.mark.parametrize("extra, problem", [

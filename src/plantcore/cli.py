@@ -114,6 +114,21 @@ def _add_force(parser) -> None:
                         help="replace an existing output file (never an input file)")
 
 
+_FOLDER_POLICY = (
+    "An existing, non-empty output folder is kept: the command refuses it before computing "
+    f"anything unless {_FORCE} is given. With {_FORCE} the folder is replaced whole, and only "
+    "when it holds nothing but files this command writes (an earlier run's output); a folder "
+    "holding any other file, a subfolder, a symbolic link or an input file is refused. The "
+    "new folder is written under a hidden name next to it first, and the old one is put back "
+    "if the replacement fails or is interrupted.")
+
+
+def _add_folder_force(parser, owner: str) -> None:
+    parser.add_argument(_FORCE, action="store_true", dest="force",
+                        help=f"replace an existing folder whole when it holds only {owner}'s "
+                             "own files (default: a non-empty folder is refused)")
+
+
 # --- subcommands -----------------------------------------------------------------------------
 # Each handler takes the parsed arguments and returns an exit code.  Handlers live here only
 # as thin glue; numerics and formatting belong to the library and report modules.
@@ -306,7 +321,8 @@ def _cmd_demo(args) -> int:
     from plantcore.commands.progress_option import progress_setting
     from plantcore.demo import run_demo
 
-    run_demo(args.output, example=args.example, progress=progress_setting(args))
+    run_demo(args.output, example=args.example, progress=progress_setting(args),
+             force=args.force)
     return EXIT_OK
 
 
@@ -347,7 +363,7 @@ def _cmd_sweep(args) -> int:
     from plantcore.sweeps.sweep import sweep
 
     spec = load_sweep_spec(args.spec)
-    check_output_folder(args.output)
+    check_output_folder(args.output, force=args.force, inputs=(args.spec,))
     executor = args.executor or ("dask" if args.scheduler else "local")
     if executor == "dask" and not args.scheduler:
         raise ValueError("--executor dask needs --scheduler ADDRESS (e.g. tcp://127.0.0.1:8786).")
@@ -365,7 +381,7 @@ def _cmd_sweep(args) -> int:
 
     result = sweep(spec.build, spec.points, executor=executor, scheduler=args.scheduler,
                    reduced_order=reduced_order, tol=tol, progress=progress_setting(args))
-    files = write_sweep_folder(result, args.output, spec=spec)
+    files = write_sweep_folder(result, args.output, spec=spec, force=args.force)
     print(f"swept {len(result.rows)} points in {result.elapsed_seconds:.1f} s "
           f"({len(result.failed)} failed); wrote {len(files)} files to {args.output}")
     for row in result.failed[:3]:
@@ -459,12 +475,14 @@ def _build_parser() -> argparse.ArgumentParser:
     add_progress_option(p)
     # --- demo ---
     p = sub.add_parser("demo", help="run inspect, reduce, compare and report on a packaged example",
-                       epilog=_EXIT_CODES["demo"])
+                       epilog=_EXIT_CODES["demo"] + " " + _FOLDER_POLICY)
     p.add_argument("-o", "--output", default=None, metavar="FOLDER",
-                   help="new (or empty) folder for the results; default "
-                        "plantcore-demo-YYYYMMDD-HHMMSS in the working directory")
+                   help="new (or empty) folder for the results, or with --force one holding "
+                        "an earlier demo; default plantcore-demo-YYYYMMDD-HHMMSS in the "
+                        "working directory")
     p.add_argument("--example", default="thermal_process",
                    help="packaged example to use (default thermal_process; also motion_axis)")
+    _add_folder_force(p, "the demo")
     add_progress_option(p)
     # --- audit ---
     p = sub.add_parser("audit", help="observability audit of the Jacobians a linearized "
@@ -485,10 +503,12 @@ def _build_parser() -> argparse.ArgumentParser:
     add_progress_option(p)
     # --- sweep ---
     p = sub.add_parser("sweep", help="analyze a model family over a grid or random draws of "
-                                     "its parameters", epilog=_EXIT_CODES["sweep"])
+                                     "its parameters",
+                       epilog=_EXIT_CODES["sweep"] + " " + _FOLDER_POLICY)
     p.add_argument("spec", help="sweep specification (.toml) with expressions in parameters")
     p.add_argument("-o", "--output", required=True,
-                   help="new (or empty) folder for the table, plots and summary (required)")
+                   help="new (or empty) folder for the table, plots and summary, or with "
+                        "--force one holding an earlier sweep (required)")
     p.add_argument("--executor", choices=("serial", "local", "dask"), default=None,
                    help="where the points run (default: local process pool, or dask with "
                         "--scheduler)")
@@ -498,6 +518,7 @@ def _build_parser() -> argparse.ArgumentParser:
                    help="also measure the error of a balanced truncation to this order "
                         "(default: the spec's [analysis] reduced_order, else none)")
     p.add_argument("--tol", type=float, default=None, help=_TOL_HELP)
+    _add_folder_force(p, "a sweep")
     add_progress_option(p)
     # --- commands in modules of their own (plantcore.commands) ---
     import importlib

@@ -15,9 +15,12 @@
    temperatures is uncontrollable) and recommend the set that separates them
    (:func:`plantcore.suggest_actuators`).
 
-Everything is computed before anything is written; the files then go into a folder that did
-not exist (or was empty) through :func:`plantcore.files.atomic_write`, so an existing folder's
-contents are never replaced and no half-written file is ever left behind.  Only files
+Everything is computed before anything is written; the files are then written into a hidden
+folder next to the target and moved into place whole
+(:func:`plantcore.files.output_folder.write_output_folder`), so no half-written folder is ever
+left behind.  The target must not exist or be empty; with ``force=True`` (``plantcore demo
+--force``) a folder holding only files the demo writes (:data:`DEMO_FILES`) is replaced whole,
+and any other folder is still refused.  Only files
 packaged with plantcore are read, through :mod:`importlib.resources`, so the demo works
 offline right after ``pip install``.
 """
@@ -102,37 +105,23 @@ def default_demo_folder(base=".", now=None) -> Path:
     return Path(base) / f"plantcore-demo-{now:%Y%m%d-%H%M%S}"
 
 
-def _check_folder(folder) -> Path | None:
-    """Refuse a folder the demo may not write into (before any work is done)."""
+def _check_folder(folder, *, force: bool = False, inputs=()) -> Path | None:
+    """Refuse a folder the demo may not write into (before any work is done).
+
+    None (a new time-stamped folder) is always accepted; otherwise the folder policy of
+    :func:`plantcore.files.output_folder.check_output_folder_policy` with the demo's files.
+    """
+    from plantcore.files.output_folder import check_output_folder_policy
+
     if folder is None:
         return None
-    path = Path(os.fsdecode(os.fspath(folder)))
-    if path.exists():
-        if not path.is_dir():
-            raise ValueError(f"{path}: exists and is not a folder; give a new folder name.")
-        if any(path.iterdir()):
-            raise ValueError(f"{path}: the folder exists and is not empty; the demo never "
-                             "overwrites files, so give a new or an empty folder.")
-    elif not path.parent.is_dir():
-        raise ValueError(f"{path}: the folder {path.parent} does not exist; create it first.")
-    return path
+    return check_output_folder_policy(os.fsdecode(os.fspath(folder)), DEMO_FILES, force=force,
+                                      inputs=inputs, owner="the demo")
 
 
-def _make_folder(folder) -> tuple[Path, bool]:
-    """Create the output folder; return it and whether this call created it.
-
-    A given folder may exist only when empty.  Without a folder, a new one with a time stamp
-    is made in the working directory (a suffix ``-2``, ``-3``, ... avoids a clash).
-    """
-    path = _check_folder(folder)
-    if path is not None:
-        if path.exists():
-            return path, False
-        try:
-            path.mkdir()
-        except FileExistsError:  # appeared in the meantime: check it again
-            return _make_folder(folder)
-        return path, True
+def _new_default_folder() -> Path:
+    """Reserve a new folder ``plantcore-demo-YYYYMMDD-HHMMSS`` in the working directory (a
+    suffix ``-2``, ``-3``, ... avoids a clash); it stays empty until the demo moves in."""
     base = default_demo_folder()
     for k in range(1, 100):
         path = base if k == 1 else base.with_name(f"{base.name}-{k}")
@@ -140,7 +129,7 @@ def _make_folder(folder) -> tuple[Path, bool]:
             path.mkdir()
         except FileExistsError:
             continue
-        return path, True
+        return path
     raise ValueError(f"{base}: could not find a new folder name; give one with -o.")  # pragma: no cover
 
 
@@ -243,14 +232,14 @@ def _written_models(contents):
 
 
 def run_demo(folder=None, *, example: str = "thermal_process", tol=None, echo=print,
-             progress=None) -> DemoResult:
+             progress=None, force: bool = False) -> DemoResult:
     """Inspect, reduce, certify and report a packaged example, writing every result.
 
     Parameters
     ----------
     folder : str or os.PathLike, optional
-        Where to write; it must not exist yet, or be empty.  Default: a new folder
-        ``plantcore-demo-YYYYMMDD-HHMMSS`` in the working directory.
+        Where to write; it must not exist yet, or be empty (unless ``force``).  Default: a new
+        folder ``plantcore-demo-YYYYMMDD-HHMMSS`` in the working directory.
     example : str, optional
         Which packaged example (see :func:`plantcore.list_examples`).
     tol : float, optional
@@ -259,6 +248,12 @@ def run_demo(folder=None, *, example: str = "thermal_process", tol=None, echo=pr
         Called with the summary text (default :func:`print`); None for silence.
     progress : bool or None, optional
         Progress on standard error: None (default) when it is a terminal.
+    force : bool, default False
+        Replace an existing folder whole, but only when it holds nothing except regular files
+        with names of :data:`DEMO_FILES` (the output of an earlier demo, of any example);
+        a folder with anything else in it (another file, a subfolder, a symbolic link) is
+        refused.  The new files are written into a hidden folder next to the target first,
+        and the old folder is put back if the replacement fails or is interrupted.
 
     Returns
     -------
@@ -267,7 +262,8 @@ def run_demo(folder=None, *, example: str = "thermal_process", tol=None, echo=pr
     Raises
     ------
     ValueError
-        Unknown example, or a folder that exists and is not empty (nothing is written).
+        Unknown example, or a folder that exists and is not empty (without ``force``), or holds
+        anything but the demo's files (with ``force``); nothing is written.
 
     Examples
     --------
@@ -282,12 +278,13 @@ def run_demo(folder=None, *, example: str = "thermal_process", tol=None, echo=pr
     from plantcore.analysis import collect_report
     from plantcore.examples import example_path
     from plantcore.files import atomic_write_text, load_model, save_model
+    from plantcore.files.output_folder import write_output_folder
     from plantcore.reports.html import render_html
     from plantcore.structure.placement import suggest_actuators
 
     source = example_path(example)            # ValueError for an unknown example
     model = load_model(source)
-    _check_folder(folder)                     # refuse a non-empty folder before any work
+    _check_folder(folder, force=force, inputs=(source,))  # refuse before any work
     contents = collect_report(model, tol=tol, source=os.path.basename(source), progress=progress)
     contents, written_models = _written_models(contents)
     placement = suggest_actuators(model, _scenario_candidates(example, model), tol=tol)
@@ -303,26 +300,31 @@ def run_demo(folder=None, *, example: str = "thermal_process", tol=None, echo=pr
         texts["reduced_model_check.txt"] = contents.reduced_certificate.to_text() + "\n"
     models = {"original_model.toml": model, **written_models}
 
-    path, created = _make_folder(folder)
-    written = {}
-    try:
+    def fill(staging: Path) -> list:
+        names = []
         for name in DEMO_FILES:
             if name in models:
-                written[name] = save_model(models[name], path / name, inputs=(source,))
+                save_model(models[name], staging / name, inputs=(source,))
             elif name in texts:
-                written[name] = atomic_write_text(path / name, texts[name], inputs=(source,))
-    except BaseException:  # a failure, Ctrl-C or SIGTERM: leave no half-written demo folder
-        for done in written.values():
-            try:
-                os.remove(done)
-            except OSError:
-                pass
+                atomic_write_text(staging / name, texts[name], inputs=(source,))
+            else:
+                continue
+            names.append(name)
+        return names
+
+    created = folder is None
+    path = _new_default_folder() if created else Path(os.fsdecode(os.fspath(folder)))
+    try:
+        names = write_output_folder(path, fill, DEMO_FILES, force=force, inputs=(source,),
+                                    owner="the demo")
+    except BaseException:  # a failure, Ctrl-C or SIGTERM: no reserved folder is left either
         if created:
             try:
                 path.rmdir()
             except OSError:
                 pass
         raise
+    written = {name: path / name for name in names}
     summary = _summary(contents, example, path, written, placement)
     if echo is not None:
         echo(summary)

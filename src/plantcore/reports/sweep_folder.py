@@ -24,9 +24,11 @@ one, the :class:`plantcore.sweeps.spec.SweepSpec` it came from) and formats it.
     with their captions, links to the other files, and the caution.  It needs no network
     and shows the plots from the folder, so keep the folder together.
 
-The folder is first written under a temporary name next to it and then renamed, so it
-appears complete or not at all.  An existing, non-empty folder is refused (nothing in it is
-ever overwritten, and so neither is the specification file).
+The folder is first written under a hidden name next to it and then renamed, so it appears
+complete or not at all (:func:`plantcore.files.output_folder.write_output_folder`).  An
+existing, non-empty folder is refused; with ``force=True`` (``plantcore sweep --force``) a
+folder holding nothing but files named in :data:`OUTPUT_FILES` (an earlier sweep's output) is
+replaced whole, and one holding anything else, or the specification file, is still refused.
 """
 
 from __future__ import annotations
@@ -34,8 +36,6 @@ from __future__ import annotations
 import itertools
 import math
 import os
-import secrets
-import shutil
 from collections import Counter
 from numbers import Real
 from pathlib import Path
@@ -43,6 +43,7 @@ from pathlib import Path
 import numpy as np
 
 from plantcore.core.wording import SAFETY_CAUTION
+from plantcore.files.output_folder import check_output_folder_policy, write_output_folder
 
 __all__ = ["OUTPUT_FILES", "check_output_folder", "plot_sweep_map", "summary_html",
            "summary_markdown", "write_sweep_folder"]
@@ -62,44 +63,58 @@ _YES, _NO, _FAILED = "#2f7d4f", "#b8323a", "#8a8a8a"
 
 # --- the folder ---------------------------------------------------------------------------------
 
-def check_output_folder(folder) -> Path:
-    """Refuse an output folder that exists and is not empty, or is a file.
+def check_output_folder(folder, *, force: bool = False, inputs=()) -> Path:
+    """Refuse an output folder the sweep may not write (a file, or a folder not allowed).
 
-    Returns the folder as a :class:`pathlib.Path`.  Called before the sweep runs, so bad
-    output settings cost nothing.
+    Parameters
+    ----------
+    folder : str or os.PathLike
+        The output folder; missing parent folders will be created.
+    force : bool, default False
+        False: the folder must not exist or be empty.  True: it may also hold an earlier
+        sweep's output (regular files named in :data:`OUTPUT_FILES`, nothing else), which
+        will be replaced whole.
+    inputs : iterable of paths, optional
+        Input files of the run (the specification); a folder holding one is always refused.
+
+    Returns
+    -------
+    pathlib.Path
+        The folder.  Called before the sweep runs, so bad output settings cost nothing.
+
+    Raises
+    ------
+    ValueError
+        One line naming the folder, and with ``force`` the first entry that is not a file of
+        a sweep's own.
     """
-    path = Path(os.fspath(folder))
-    if path.exists() and not path.is_dir():
-        raise ValueError(f"{path}: is a file; give a folder name for the sweep output.")
-    if path.is_dir() and any(path.iterdir()):
-        raise ValueError(f"{path}: the folder exists and is not empty; plantcore writes a sweep "
-                         "into a new or empty folder and never overwrites files. Choose "
-                         "another folder.")
-    return path
+    return check_output_folder_policy(folder, OUTPUT_FILES, force=force, inputs=inputs,
+                                      owner="a sweep", make_parents=True)
 
 
-def write_sweep_folder(result, folder, *, spec=None) -> list[Path]:
+def write_sweep_folder(result, folder, *, spec=None, force: bool = False) -> list[Path]:
     """Write the table, plots and summary of a sweep into a new folder.
 
     Parameters
     ----------
     result : SweepResult
     folder : str or os.PathLike
-        Must not exist, or be empty.  Missing parent folders are created.
+        Must not exist, or be empty (unless ``force``).  Missing parent folders are created.
     spec : SweepSpec, optional
-        The specification the sweep came from (for the summary).
+        The specification the sweep came from (for the summary; its file is never inside a
+        folder that is replaced).
+    force : bool, default False
+        Replace an existing folder whole when it holds only an earlier sweep's output (see
+        :func:`check_output_folder`); files of the old run that this one does not write (a
+        plot, the Parquet table) do not survive.  The old folder is put back if writing or
+        the replacement fails or is interrupted.
 
     Returns
     -------
     list of pathlib.Path
         The files written, in the order of :data:`OUTPUT_FILES`.
     """
-    target = check_output_folder(folder)
-    parent = target.parent
-    parent.mkdir(parents=True, exist_ok=True)
-    staging = parent / f".{target.name}.partial-{secrets.token_hex(4)}"
-    staging.mkdir()
-    try:
+    def fill(staging: Path) -> list[str]:
         names = []
         (staging / "table.csv").write_text(result.to_csv_text(), encoding="utf-8")
         names.append("table.csv")
@@ -116,13 +131,12 @@ def write_sweep_folder(result, folder, *, spec=None) -> list[Path]:
         text = summary_markdown(result, spec=spec, files=names, notes=[parquet_note, plot_note])
         (staging / "summary.md").write_text(text, encoding="utf-8")
         (staging / "index.html").write_text(summary_html(text, plots=plots), encoding="utf-8")
-        check_output_folder(target)  # still new or empty after the sweep ran
-        if target.is_dir():
-            target.rmdir()
-        os.rename(staging, target)
-    except BaseException:
-        shutil.rmtree(staging, ignore_errors=True)
-        raise
+        return names
+
+    inputs = () if spec is None else (spec.path,)
+    names = write_output_folder(folder, fill, OUTPUT_FILES, force=force, inputs=inputs,
+                                owner="a sweep", make_parents=True)
+    target = Path(os.fspath(folder))
     return [target / name for name in names]
 
 
