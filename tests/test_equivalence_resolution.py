@@ -305,3 +305,18 @@ def test_difference_realized_only_when_small_or_asked():
     # cancellation (the order is counted, capped at 60), while the verdict is the same
     assert asked.equivalent and 0 <= asked.difference_order <= 60
     assert asked.difference_order_method.startswith("minimal realization of the 60-state")
+
+
+def test_rotated_copies_at_spread_1e12_are_never_answered_dishonestly():
+    # The study's rotated-copy probe: a model against its orthogonally rotated copy (and the
+    # copy with C scaled by 1 + 1e-6), judged against the exact (60-digit) responses of the
+    # stored matrices.  Seed 0, continuous time: the rounding of the rotation alone moves the
+    # exact response by about 2e-5 of the peak gain, so "equivalent to the attainable
+    # accuracy X" (X above that) is the honest answer for both pairs.
+    study = _study()
+    counts = study.rotated_probe(2, spreads=(12,))
+    for kind in ("rotated", "rotated, C scaled"):
+        assert counts[(12, kind, "pairs")] == 4
+        assert counts[(12, kind, "dishonest")] == 0
+    assert counts[(12, "rotated", "rounding alone above 1e-6")] >= 1
+    assert counts[(12, "rotated, C scaled", "not equivalent")] >= 1   # resolvable ones found
