@@ -12,6 +12,13 @@ measured; and random stable models.
 
     OPENBLAS_NUM_THREADS=1 python benchmarks/bench_modes.py --quick     # n = 100, 400
     python benchmarks/bench_modes.py --sizes 100 400 1000 1412 --repeats 3
+
+``--boundary`` times instead the boundary test's ``sigma_min(A - mu I)`` at every eigenvalue's
+boundary point of a damped beam (``bench_real.damped_beam``) on one Schur form, the points
+in lock step (blocked multi-shift solves) against one point at a time, interleaved, and
+reports the largest difference of the values:
+
+    python benchmarks/bench_modes.py --boundary --sizes 1000 1412 --repeats 3
 """
 
 from __future__ import annotations
@@ -74,6 +81,40 @@ def measure(model, threads: int, repeats: int) -> dict:
     return {name: statistics.median(t) for name, t in times.items()}
 
 
+def boundary(n: int, threads: int, repeats: int) -> dict:
+    """Seconds for ``sigma_min(A - mu I)`` at the boundary points of the ``n``-state damped
+    beam's eigenvalues, lock step and one point at a time (medians), and the largest
+    difference of the two answers, relative and in units of ``eps ||A||_F``."""
+    from bench_real import damped_beam
+
+    from plantcore.structure import pbh_measures as pm
+
+    A = damped_beam(n).A
+    measures = pm.PBHMeasures(A)
+    _ = measures.schur.complex                  # the factorizations, outside the timing
+    points = [complex(0.0, v.imag) for v in np.linalg.eigvals(A) if v.imag >= 0]
+    empty = np.zeros((n, 0))
+    size = pm.MULTI_SHIFT_SIZE
+    times = {"lock step": [], "one point": []}
+    values = {}
+    with threadpool_limits(threads):
+        for _ in range(repeats):
+            for name, limit in (("lock step", 0), ("one point", 10**9)):
+                pm.MULTI_SHIFT_SIZE = limit
+                try:
+                    start = time.perf_counter()
+                    values[name] = measures.smallest(empty, points, "c")
+                    times[name].append(time.perf_counter() - start)
+                finally:
+                    pm.MULTI_SHIFT_SIZE = size
+    gap = np.abs(values["lock step"] - values["one point"])
+    out = {name: statistics.median(t) for name, t in times.items()}
+    out["points"] = len(points)
+    out["relative"] = float(np.max(gap / values["one point"]))
+    out["rounding"] = float(np.max(gap)) / (np.finfo(float).eps * np.linalg.norm(A))
+    return out
+
+
 def main(argv=None) -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--sizes", type=int, nargs="+", default=[100, 400, 1000, 1412])
@@ -81,19 +122,45 @@ def main(argv=None) -> None:
     parser.add_argument("--threads", type=int, nargs="+", default=[1, 2])
     parser.add_argument("--quick", action="store_true", help="n = 100 and 400, one repeat")
     parser.add_argument("--no-random", action="store_true", help="spring chains only")
+    parser.add_argument("--boundary", action="store_true",
+                        help="the boundary test's sigma_min, lock step against one point")
     args = parser.parse_args(argv)
     sizes, repeats = ([100, 400], 1) if args.quick else (args.sizes, args.repeats)
-    print("| model | BLAS threads | eig (s) | classify_modes (s) | ratio | distances (s) | ratio |")
-    print("|---|---:|---:|---:|---:|---:|---:|")
+    if args.boundary:
+        _table(["damped beam, states", "points", "BLAS threads", "one point (s)",
+                "lock step (s)", "ratio", "largest difference: relative, in eps ||A||_F"],
+               _boundary_rows(sizes, args.threads, repeats))
+        return
+    _table(["model", "BLAS threads", "eig (s)", "classify_modes (s)", "ratio",
+            "distances (s)", "ratio"], _mode_rows(sizes, args, repeats))
+
+
+def _table(header, rows) -> None:
+    """A markdown table, each row printed as soon as it is measured."""
+    print("| " + " | ".join(header) + " |")
+    print("|---|" + "---:|" * (len(header) - 1))
+    for cells in rows:
+        print("| " + " | ".join(cells) + " |", flush=True)
+
+
+def _boundary_rows(sizes, thread_counts, repeats):
+    for n in sizes:
+        for threads in thread_counts:
+            t = boundary(n, threads, repeats)
+            yield [str(n), str(t["points"]), str(threads), f"{t['one point']:.3g}",
+                   f"{t['lock step']:.3g}", f"{t['one point'] / t['lock step']:.2f}",
+                   f"{t['relative']:.1e}, {t['rounding']:.2g}"]
+
+
+def _mode_rows(sizes, args, repeats):
     for n in sizes:
         models = [spring_chain(n)] + ([] if args.no_random else [random_stable(n)])
         for model in models:
             for threads in args.threads:
                 t = measure(model, threads, repeats)
-                print(f"| {model.name} | {threads} | {t['eig']:.3g} | {t['classify_modes']:.3g} | "
-                      f"{t['classify_modes'] / t['eig']:.1f} | {t['distances']:.3g} | "
-                      f"{t['distances'] / t['eig']:.1f} |", flush=True)
-
+                yield [model.name, str(threads), f"{t['eig']:.3g}", f"{t['classify_modes']:.3g}",
+                       f"{t['classify_modes'] / t['eig']:.1f}", f"{t['distances']:.3g}",
+                       f"{t['distances'] / t['eig']:.1f}"]
 
 if __name__ == "__main__":
     main()

@@ -1,0 +1,113 @@
+"""sigma_min(A - mu I) at many points in lock step (plantcore.structure.pbh_measures) against
+the one-point iteration and a dense SVD."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from plantcore.structure import pbh_measures as pm
+
+
+def _beam(modes: int, damping: float = 5e-3) -> np.ndarray:
+    """Lightly damped modes, frequencies close together at the bottom: the boundary test's
+    hard case (close singular values of every shifted triangle), in rotated coordinates."""
+    omega = (np.arange(1, modes + 1) - 0.5) ** 2 * 2.5
+    W = np.diag(omega)
+    A = np.block([[np.zeros((modes, modes)), W], [-W, -2 * damping * W]])
+    Q, _ = np.linalg.qr(np.random.default_rng(7).standard_normal((2 * modes, 2 * modes)))
+    return Q.T @ A @ Q
+
+
+def _boundary_points(A) -> np.ndarray:
+    values = np.linalg.eigvals(A)
+    return np.array([complex(0.0, v.imag) for v in values if v.imag >= 0])
+
+
+def _rounding(T) -> float:
+    """Rounding level of a value ``||(T - mu I) z||``: eps ||T||_F (its absolute error)."""
+    return np.finfo(float).eps * float(np.linalg.norm(T))
+
+
+def _one_point(R0, shift):
+    R = np.array(R0, order="F")
+    R[np.diag_indices_from(R)] -= shift
+    return pm._triangle_smallest(R)[0]
+
+
+@pytest.mark.parametrize("lock_step, budget", [(128, None), (3, None), (64, 60)])
+def test_lock_step_agrees_with_one_point_iteration(lock_step, budget):
+    """Same values to rounding level, with many runs at once, a few, and with a memory budget
+    so small that runs wait for storage (and so grow their storage one run at a time)."""
+    A = _beam(30)
+    measures = pm.PBHMeasures(A)
+    T, _ = measures.schur.pair(np.zeros((60, 0)), "c", False)
+    shifts = np.conj(_boundary_points(A))
+    plain, floors = pm._plain_shifts(T, shifts)
+    assert plain.all()
+    got = pm._shifted_smallest(T, shifts, floors, lock_step=lock_step, budget=budget)
+    want = np.array([_one_point(T, mu) for mu in shifts])
+    assert_allclose(got, want, rtol=1e-12, atol=_rounding(T))
+    dense = [np.linalg.svd(A - lam * np.eye(60), compute_uv=False)[-1]
+             for lam in _boundary_points(A)]
+    assert np.all(got >= np.array(dense) * (1 - 1e-12))      # attained: an upper bound
+    assert_allclose(got, dense, rtol=1e-8)
+
+
+def test_runs_needing_more_steps_than_stored_at_first():
+    """Runs that go beyond the first storage (one stored vector) and up to the step limit."""
+    A = _beam(20, damping=1e-4)
+    measures = pm.PBHMeasures(A)
+    T, _ = measures.schur.pair(np.zeros((40, 0)), "c", False)
+    shifts = np.conj(_boundary_points(A))
+    _, floors = pm._plain_shifts(T, shifts)
+    first = pm._FIRST_ROOM
+    try:
+        pm._FIRST_ROOM = 1
+        got = pm._shifted_smallest(T, shifts, floors)
+    finally:
+        pm._FIRST_ROOM = first
+    assert_allclose(got, [_one_point(T, mu) for mu in shifts], rtol=1e-12, atol=_rounding(T))
+
+
+def test_shifts_needing_a_floor_or_scaling_are_left_to_the_one_point_path():
+    T = np.asfortranarray(np.triu(np.ones((4, 4))) + np.diag([0.0, 1.0, 2.0, 3.0]))
+    plain, floors = pm._plain_shifts(T, np.array([1.0, 0.5, 2.0**450, 0.0]))
+    assert plain.tolist() == [False, True, False, True]
+    # the floor of the one-point code: 1e-3 eps (max |row 0| + max |pivot|)
+    assert floors[1] == 1e-3 * np.finfo(float).eps * (1.0 + 3.5 + 1e-300)
+    zero = pm._plain_shifts(np.zeros((3, 3)), np.array([0.0]))[0]
+    assert not zero[0]
+
+
+def test_smallest_routes_many_points_through_the_lock_step(monkeypatch):
+    """The measures' answers are the same with the lock step on and off, for complex points,
+    real points (real triangle), exact eigenvalues (pivot floor) and both sides."""
+    rng = np.random.default_rng(3)
+    n = 40
+    A = rng.standard_normal((n, n)) / np.sqrt(n)
+    A[:, 0] = 0.0                                 # an exact eigenvalue 0
+    A = np.block([[A, np.zeros((n, 4))], [np.zeros((4, n)), np.diag([1.0, 2.0, 3.0, 4.0])]])
+    upper = [v for v in np.linalg.eigvals(A) if v.imag >= 0]
+    points = upper + [0.5, -0.25, 0.0, 2.0] + list(1j * rng.standard_normal(6))
+    empty = {"c": np.zeros((n + 4, 0)), "o": np.zeros((0, n + 4))}
+
+    def values(size):
+        monkeypatch.setattr(pm, "MULTI_SHIFT_SIZE", size)
+        monkeypatch.setattr(pm, "MULTI_SHIFT_POINTS", 2)
+        measures = pm.PBHMeasures(A)
+        return {side: measures.smallest(empty[side], points, side) for side in "co"}
+
+    called = []
+    original = pm._shifted_smallest
+    monkeypatch.setattr(pm, "_shifted_smallest",
+                        lambda *a, **k: called.append(len(a[1])) or original(*a, **k))
+    one = values(10**9)
+    assert not called
+    many = values(0)
+    assert called and sum(called) >= len(points)      # both sides, most points lock step
+    for side in "co":
+        assert_allclose(many[side], one[side], rtol=1e-12, atol=_rounding(A))
+        dense = [np.linalg.svd(A - lam * np.eye(n + 4), compute_uv=False)[-1] for lam in points]
+        assert_allclose(many[side], dense, rtol=1e-8, atol=1e-14)
