@@ -15,11 +15,19 @@ Families:
   contribution lies below the noise; no method can see those, and the right answer is
   then the number of states the data show.
 
-For each model the study also counts the *visible order*: the largest number, over the
-windows of samples the realization examined (``fit.window_orders``), of singular values of
-the noise-free Hankel matrix that exceed the spectral norm of the actual noise Hankel matrix
-of that window.  By Weyl's inequality a state below it can be hidden by the noise; a model
-is *identifiable* when its visible order is its true order.  A second, model-intrinsic
+For each model the study also counts the *visible order*, decided from the true response
+and the drawn noise before the model is realized: the largest number, over the windows of
+samples the realization examines (the first 300, 200, 133, 89, 59 and 39 samples), of
+singular values of the noise-free Hankel matrix that exceed the spectral norm of the actual
+noise Hankel matrix of that window.  By Weyl's inequality a state below it can be hidden by
+the noise; a model is *identifiable* when its visible order is its true order.  The
+generators make unidentifiable data too (the separated family 16 of 200 at seed 2026; the
+15 of them whose order is missed have a weakest state at 0.04-0.99 of the noise norm in its
+best window), so the target is reported over all data and over the identifiable data.  The
+5 identifiable misses there (estimated level) have it at 1.03-1.92 of the noise norm in
+their best window, short of the floor there (mean plus 5 standard deviations of the noise,
+1.1-1.8 times the actual norm, with a level estimated 0-19 % high); with the true level
+given, 3 of them remain.  A second, model-intrinsic
 criterion (column ``identifiable by Gramians``): every Hankel singular value of the model from
 its own Gramians (:func:`plantcore.hankel_singular_values`) exceeds the expected spectral
 norm of the noise Hankel matrix of the whole record (noise level times the mean norm of
@@ -38,9 +46,16 @@ Outcomes per family and order band: ``right`` (order = true order), ``right, unf
 ``wrong, unflagged`` (the failure that must not happen), and how many of the unflagged wrong
 answers miss only states that are not visible (``hidden``).
 
+The last lines give the target (the true order on at least 95 % of the data) per family and
+noise-level mode, over all data and over the identifiable data; ``--misses`` then describes
+each wrong order: true and found order, visible order, the window and Hankel shape used,
+the floor and the noise level against the actual noise, the data's and the noise-free Hankel
+singular values around the true order over the actual noise norm ``||E||``, and the
+noise-free value number ``n`` over ``||E||`` in every window.
+
 Run (one BLAS thread; a few minutes on a loaded 2-core machine)::
 
-    OPENBLAS_NUM_THREADS=1 python benchmarks/impulse_realization_study.py --count 200
+    OPENBLAS_NUM_THREADS=1 python benchmarks/impulse_realization_study.py --count 200 --misses
 """
 
 from __future__ import annotations
@@ -57,11 +72,17 @@ from plantcore import (
     markov_parameters,
     realize_impulse_response,
 )
-from plantcore.reduction.impulse_realization import _block_hankel, _hankel_shape, _noise_spectra
+from plantcore.reduction.impulse_realization import (
+    _block_hankel,
+    _hankel_shape,
+    _noise_spectra,
+    _window_lengths,
+)
 
 SAMPLES = 300
 SNR_DB = 40.0
 BANDS = ((2, 10), (11, 20), (21, 30), (31, 40))
+TARGET = 0.95  # issue 22: the true order on at least 95 % of the data
 
 
 def _model(rng, family: str):
@@ -85,16 +106,42 @@ def _model(rng, family: str):
                            rng.standard_normal((p, m)), dt=1.0)
 
 
-def _visible_order(exact, noise, fit) -> int:
-    """Most noise-free Hankel singular values above the actual noise norm in any window."""
+def _visible_order(exact, noise) -> int:
+    """Most noise-free Hankel singular values above the actual noise norm in any window the
+    realization examines (decided from the true response and the noise alone)."""
     best = 0
-    for samples, _ in fit.window_orders:
-        L = samples - 1
-        q = (L + 1) // 2 + (L + 1) % 2
-        clean = scipy.linalg.svdvals(_block_hankel(exact, q, L + 1 - q))
-        e_norm = np.linalg.norm(_block_hankel(noise, q, L + 1 - q), 2)
+    for L in _window_lengths(SAMPLES - 1):
+        q, r = _hankel_shape(L)
+        clean = scipy.linalg.svdvals(_block_hankel(exact, q, r))
+        e_norm = np.linalg.norm(_block_hankel(noise, q, r), 2)
         best = max(best, int(np.count_nonzero(clean > e_norm)))
     return best
+
+
+def _describe_miss(family, index, mode, model, exact, noise, fit, visible) -> str:
+    """One miss: orders, shapes, and the values around the true order against the noise."""
+    n, q, r = model.n, fit.block_rows, fit.block_columns
+    clean = scipy.linalg.svdvals(_block_hankel(exact, q, r))
+    e_norm = np.linalg.norm(_block_hankel(noise, q, r), 2)
+    low, s = max(min(fit.order, n) - 2, 0), fit.hankel_singular_values
+    ratios = []
+    for L in _window_lengths(SAMPLES - 1):
+        qq, rr = _hankel_shape(L)
+        c = scipy.linalg.svdvals(_block_hankel(exact, qq, rr))
+        if c.size >= n:
+            ratios.append(f"{L + 1}: {c[n - 1] / np.linalg.norm(_block_hankel(noise, qq, rr), 2):.2f}")
+    return (f"{family} #{index} ({mode} level): true order {n}, found {fit.order} "
+            f"({'fragile' if fit.fragile else 'UNFLAGGED'}), visible {visible}, {model.n_outputs} x "
+            f"{model.n_inputs}, record {SAMPLES}, window {fit.window_samples} samples, Hankel "
+            f"{q} x {r} blocks; floor / ||E|| = {fit.noise_floor / e_norm:.2f}, noise level used / "
+            f"RMS of the actual noise = {fit.noise_level / np.sqrt(np.mean(noise[1:] ** 2)):.3f}\n"
+            f"    Hankel values {low + 1}..{n + 1} / ||E||: data {_values(s[low:n + 1] / e_norm)}; "
+            f"noise-free {_values(clean[low:n + 1] / e_norm)}\n"
+            f"    noise-free value {n} / ||E|| per window: {', '.join(ratios)}")
+
+
+def _values(x) -> str:
+    return " ".join(f"{v:.2f}" for v in x)
 
 
 def _band(n: int) -> str:
@@ -102,7 +149,8 @@ def _band(n: int) -> str:
     return f"{low}-{high}"
 
 
-def run(count: int, seed: int):
+def run(count: int, seed: int, misses=None):
+    """The outcome table; ``misses`` (a list) collects a description of each wrong order."""
     rng = np.random.default_rng(seed)
     table = {}
     keys = ("models", "right", "right_unflagged", "identifiable", "right_identifiable",
@@ -113,7 +161,7 @@ def run(count: int, seed: int):
             for mode in ("estimated", "given"):
                 table[(family, f"{low}-{high}", mode)] = dict.fromkeys(keys, 0) | {
                     "noise_ratio": []}
-        for _ in range(count):
+        for index in range(count):
             model = _model(rng, family)
             exact = markov_parameters(model, SAMPLES).values
             sigma = np.sqrt(np.mean(exact[1:] ** 2)) / 10 ** (SNR_DB / 20)
@@ -124,10 +172,10 @@ def run(count: int, seed: int):
             expected = sigma * float(_noise_spectra(SAMPLES - 1, model.n_outputs,
                                                     model.n_inputs, q, r)[:, 0].mean())
             intrinsic = bool(np.all(hankel_singular_values(model) > expected))
+            visible = _visible_order(exact, noise)
             for mode in ("estimated", "given"):
                 fit = realize_impulse_response(data, sample_time=1.0,
                                                noise_level=sigma if mode == "given" else None)
-                visible = _visible_order(exact, noise, fit)
                 row = table[(family, _band(model.n), mode)]
                 row["models"] += 1
                 row["too_high"] += fit.order > model.n
@@ -140,6 +188,9 @@ def run(count: int, seed: int):
                     row["right_identifiable"] += visible == model.n
                     row["right_gramian_identifiable"] += intrinsic
                     continue
+                if misses is not None:
+                    misses.append(_describe_miss(family, index, mode, model, exact, noise, fit,
+                                                 visible))
                 row["wrong_margin"] = max(row["wrong_margin"],
                                           fit.signal_margin if fit.order else 0.0)
                 if fit.fragile:
@@ -154,9 +205,12 @@ def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--count", type=int, default=200, help="models per family")
     parser.add_argument("--seed", type=int, default=2026)
+    parser.add_argument("--misses", action="store_true",
+                        help="describe every wrong order after the table")
     args = parser.parse_args(argv)
     start = time.perf_counter()
-    table = run(args.count, args.seed)
+    misses = [] if args.misses else None
+    table = run(args.count, args.seed, misses)
     print(f"{SAMPLES} samples, {SNR_DB:g} dB, orders 2-40, 1-3 inputs and outputs, seed "
           f"{args.seed}; {time.perf_counter() - start:.0f} s")
     print("| family | orders | noise level | models | right | right, unflagged | identifiable | "
@@ -190,6 +244,27 @@ def main(argv=None):
                   f"{sum(r['identifiable'] for r in every)}, too high "
                   f"{sum(r['too_high'] for r in every)}, wrong and unflagged "
                   f"{sum(r['wrong_unflagged'] for r in every)}")
+    print(f"Target: the true order on at least {TARGET:.0%} of the data.")
+    for family in ("separated", "random"):
+        for mode in ("estimated", "given"):
+            every = [table[(family, f"{lo}-{hi}", mode)] for lo, hi in BANDS]
+            right, models = (sum(r[k] for r in every) for k in ("right", "models"))
+            found, ident = (sum(r[k] for r in every) for k in ("right_identifiable", "identifiable"))
+            print(f"{family}, {mode} noise level: all data {right} / {models} "
+                  f"({_rate(right, models)}, {_verdict(right, models)}); identifiable data "
+                  f"{found} / {ident} ({_rate(found, ident)}, {_verdict(found, ident)}); "
+                  f"{models - ident} not identifiable (a state below the noise norm in every "
+                  "window)")
+    for line in misses or ():
+        print(line)
+
+
+def _rate(part: int, whole: int) -> str:
+    return f"{100.0 * part / whole:.1f} %" if whole else "-"
+
+
+def _verdict(part: int, whole: int) -> str:
+    return "met" if whole and part >= TARGET * whole else "not met"
 
 
 if __name__ == "__main__":

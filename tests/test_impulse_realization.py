@@ -9,6 +9,7 @@ from plantcore.reduction.impulse_realization import (
     _block_hankel,
     _hankel_shape,
     _noise_spectra,
+    _window_lengths,
     realize_impulse_response,
 )
 from plantcore.reduction.markov import markov_parameters
@@ -268,3 +269,16 @@ def test_sequential_floor_finds_a_state_the_plain_noise_floor_misses():
     assert fit.order == 16 and fit.fragile
     s = fit.hankel_singular_values
     assert s[15] > fit.noise_floor > s[16]
+
+
+def test_windows_examined_are_the_documented_lengths():
+    # The studies decide identifiability from _window_lengths before realizing; the
+    # realization must examine exactly those windows (L, L / 1.5, ..., at least 30).
+    assert _window_lengths(299) == [299, 199, 132, 88, 58, 38]
+    assert _window_lengths(44) == [44] and _window_lengths(45) == [45, 30]
+    rng = np.random.default_rng(2031)
+    model = _modal(rng, 6, 2, 1, radius=(0.9, 0.97))
+    exact, noise, sigma = _forty_db(rng, model, 300)
+    fit = realize_impulse_response(exact + noise, sample_time=1.0, noise_level=sigma)
+    assert [samples for samples, _ in fit.window_orders] == [L + 1 for L in _window_lengths(299)]
+    assert fit.order == 6
