@@ -10,7 +10,8 @@ Families:
 
 * ``separated``: poles of modulus 0.90-0.97 at evenly spread angles (a jittered grid over
   (0.1, 3.0) rad), Gaussian B and C: every mode rings long enough to stand above the
-  noise, so the true order is identifiable from the data.
+  noise unless its residue is small; 16 of 200 models (seeds 2026 and 4242 alike) have a
+  state below the noise norm in every window, so not every order is identifiable.
 * ``random``: poles of modulus 0.5-0.95 at random angles: many models have modes whose
   contribution lies below the noise; no method can see those, and the right answer is
   then the number of states the data show.
