@@ -432,3 +432,21 @@ def test_uncounted_cluster_with_narrow_margins_stays_fragile(index):
             wrong += 1
             assert fragile, (quantity, value)
     assert wrong >= 1
+
+
+def test_strongly_rescaled_models_keep_the_flag_the_deflated_measure_would_lift():
+    # Trust study seed 20261203, scaled model 276 (states scaled by 2^k, |k| <= 30): the
+    # observability staircase drops an observable mode at 3.5e-13, just below the window;
+    # the answer (2, truth 3) is flagged only through two kept modes measured at 2e-10 and
+    # 7e-10 inside the window.  The deflated measure would keep those two clearly and lift
+    # the flag, leaving a wrong answer unflagged; on strongly rescaled models it is not used.
+    from four_block import load_known_structure
+
+    from plantcore.structure.reconcile import strongly_rescaled
+
+    km = load_known_structure().draw("scaled", (20261203, 276))
+    assert km.sizes[0] + km.sizes[2] == 3
+    form = pc.observability_staircase(km.model())
+    assert form.rank == 3 or form.fragile          # right, or flagged: never wrong and silent
+    assert strongly_rescaled(np.array([1.0, 2.0 ** 11])) and not strongly_rescaled(
+        np.array([1.0, 2.0 ** 10])) and not strongly_rescaled(None)

@@ -49,6 +49,7 @@ from plantcore.structure.reconcile import (
     certificate_finds_more,
     confirm_window,
     spectral_decomposition,
+    strongly_rescaled,
     supersede,
 )
 from plantcore.structure.staircase import _input_gains, _scale_of
@@ -209,7 +210,8 @@ def _certificate(p: _Prepared):
         if hit is not None and hit[0]() is p.model:
             _RECENT_CERTIFICATES.move_to_end(key)
             return hit[1]
-    cert = modal_certificate(p.A, p.B_dec, p.C_dec, scale=p.scale, tol=p.tol, keep_schur=True)
+    cert = modal_certificate(p.A, p.B_dec, p.C_dec, scale=p.scale, tol=p.tol, keep_schur=True,
+                             deflate=not strongly_rescaled(p.s))
     if cert is not None:
         with _RECENT_LOCK:
             _RECENT_CERTIFICATES[key] = (weakref.ref(p.model),

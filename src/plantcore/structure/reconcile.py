@@ -39,7 +39,7 @@ from plantcore.core.safe_norms import frobenius
 from plantcore.structure.certificate import controllable_basis, schur_eigenvalues
 
 __all__ = ["bounded_agreement", "certificate_decisions", "confirm_window", "deflated_note",
-           "spectral_decomposition", "within_bounds"]
+           "spectral_decomposition", "strongly_rescaled", "within_bounds"]
 
 
 def _sizes_text(sizes) -> str:
@@ -223,6 +223,15 @@ def _with_undecided(outcome: str, cert) -> str:
 #: user's own for confirming a dropped value (see :func:`confirm_window`).
 MILD_SCALING_ORDERS = 10
 
+def strongly_rescaled(state_scaling) -> bool:
+    """True when the equilibration rescaled the states by more than
+    :data:`MILD_SCALING_ORDERS` binary orders (largest over smallest factor)."""
+    if state_scaling is None or not np.size(state_scaling):
+        return False
+    spread = float(np.max(state_scaling)) / float(np.min(state_scaling))
+    return spread > 2.0 ** MILD_SCALING_ORDERS
+
+
 #: Beyond :data:`MILD_SCALING_ORDERS`, the equilibrated coordinates still confirm a dropped
 #: value when the balancing's algebraic connectivity is at least this many times the
 #: tolerance (the top of the window; see :func:`confirm_window`).
@@ -281,9 +290,8 @@ def confirm_window(decisions, cert, sizes, *, rank: int | None = None,
                             and d.largest_dropped >= d.tolerance / FRAGILITY_FACTOR
                             for d in decisions)
     dropped_too = True
-    if dropped_in_window and state_scaling is not None and np.size(state_scaling):
-        spread = float(np.max(state_scaling)) / float(np.min(state_scaling))
-        dropped_too = spread <= 2.0 ** MILD_SCALING_ORDERS
+    if dropped_in_window:
+        dropped_too = not strongly_rescaled(state_scaling)
         if not dropped_too and connectivity is not None:
             dropped_too = connectivity() >= WELL_DETERMINED_CONNECTIVITY * t
     return tuple(d if d.check_only or d.superseded

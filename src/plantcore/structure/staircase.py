@@ -28,10 +28,10 @@ from plantcore.core.safe_norms import frobenius, frobenius_of_columns, frobenius
 from plantcore.structure.balancing_connectivity import balancing_connectivity
 from plantcore.structure.certificate import modal_certificate, schur_eigenvalues
 from plantcore.structure.reconcile import (
-    MILD_SCALING_ORDERS,
     bounded_text,
     confirm_window,
     deflated_note,
+    strongly_rescaled,
     supersede,
     undecided_text,
 )
@@ -145,7 +145,7 @@ def _controllability(model, tol, label="controllability"):
     del B_e
     # the modal certificate (controllability side only); reduce_staircase copies A_e
     cert = modal_certificate(A_e, B_s, np.zeros((0, model.n)), scale=scale, tol=tol,
-                             keep_schur=True)
+                             keep_schur=True, deflate=not strongly_rescaled(eq.state_scaling))
     red = reduce_staircase(A_e, B_s, C_e, scale=scale, tol=tol, label=label)
     rank = int(sum(red.blocks))
     check = _certificate_check(cert, rank, label, staircase_decisions=red.decisions)
@@ -160,8 +160,7 @@ def _controllability(model, tol, label="controllability"):
     # the equilibrated arrays are kept only where the window rule may ask how well the
     # balancing is determined (states rescaled beyond MILD_SCALING_ORDERS)
     s = eq.state_scaling
-    kept = (A_e, B_s, C_e) if s.size and s.max() > s.min() * 2.0 ** MILD_SCALING_ORDERS \
-        else None
+    kept = (A_e, B_s, C_e) if strongly_rescaled(s) else None
     del A_e, C_e, B_s
     U = red.form_U()
     red.transforms.clear()
