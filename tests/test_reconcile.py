@@ -450,3 +450,44 @@ def test_strongly_rescaled_models_keep_the_flag_the_deflated_measure_would_lift(
     assert form.rank == 3 or form.fragile          # right, or flagged: never wrong and silent
     assert strongly_rescaled(np.array([1.0, 2.0 ** 11])) and not strongly_rescaled(
         np.array([1.0, 2.0 ** 10])) and not strongly_rescaled(None)
+
+
+def test_strongly_rescaled_model_with_well_determined_balancing_uses_the_deflated_measure():
+    # Trust study seed 20261203, scaled model 201 (n = 13, parts (1, 0, 9, 3), states
+    # scaled by 2^k, |k| <= 30): right, but flagged only because kept modes measured
+    # inside the window on the whole model, while the balanced scaling is well determined
+    # (algebraic connectivity above 100 tol), so the deflated measure may decide them.
+    # Measured on the scaled family (300 models, seed 20261203): 278 right and unflagged
+    # with the deflated measure refused on every strongly rescaled model, 293 with it
+    # allowed where the balancing is well determined; 0 wrong and unflagged either way.
+    from four_block import load_known_structure
+
+    from plantcore.core.equilibration import equilibrate
+    from plantcore.structure.balancing_connectivity import balancing_connectivity
+    from plantcore.structure.reconcile import (WELL_DETERMINED_CONNECTIVITY,
+                                               deflation_allowed, strongly_rescaled)
+
+    km = load_known_structure().draw("scaled", (20261203, 201))
+    assert tuple(km.sizes) == (1, 0, 9, 3)
+    for quantity, got in _answers(km).items():
+        value, fragile = got
+        assert km.accepts(quantity, value, False) and not fragile, quantity
+    # the rule itself: mild scaling always allows it; strong scaling asks the connectivity
+    calls = []
+
+    def connectivity(value):
+        return lambda: calls.append(value) or value
+
+    tol = 5e-11
+    assert deflation_allowed(np.array([1.0, 2.0 ** 10]), connectivity(0.0), tol)
+    assert calls == []                       # evaluated only when the scaling is strong
+    strong = np.array([1.0, 2.0 ** 11])
+    assert deflation_allowed(strong, connectivity(WELL_DETERMINED_CONNECTIVITY * tol), tol)
+    assert not deflation_allowed(strong, connectivity(0.99 * WELL_DETERMINED_CONNECTIVITY
+                                                      * tol), tol)
+    # model 276 (the test above) is strongly rescaled with a poorly determined balancing
+    bad = load_known_structure().draw("scaled", (20261203, 276)).model()
+    eq = equilibrate(bad.A, bad.B, bad.C)
+    assert strongly_rescaled(eq.state_scaling)
+    A_e, B_e, C_e = eq.apply(bad.A, bad.B, bad.C)
+    assert balancing_connectivity(A_e, B_e, C_e) < WELL_DETERMINED_CONNECTIVITY * tol

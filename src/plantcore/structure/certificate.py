@@ -755,8 +755,9 @@ def modal_certificate(A, B, C, *, scale: float, tol: float,
     deflate : bool
         Measure the kept clusters inside the window again on the deflated pair (see
         :func:`_deflate`).  Callers pass False for a model whose states the equilibration
-        rescaled strongly (:func:`plantcore.structure.reconcile.strongly_rescaled`): there
-        the measures depend on the balancing, and a flag that the deflated measure would
+        rescaled strongly and whose balanced scaling is poorly determined
+        (:func:`plantcore.structure.reconcile.deflation_allowed`): there the measures
+        depend on where the balancing stopped, and a flag that the deflated measure would
         lift may be the only sign of a dropped mode that other coordinates keep (trust
         study seed 20261203, ``scaled`` model 276: an observable mode dropped at 3.5e-13,
         just below the window, flagged only through two kept modes at 2e-10 and 7e-10).

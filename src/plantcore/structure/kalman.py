@@ -48,8 +48,8 @@ from plantcore.structure.reconcile import (
     certificate_decisions,
     certificate_finds_more,
     confirm_window,
+    deflation_allowed,
     spectral_decomposition,
-    strongly_rescaled,
     supersede,
 )
 from plantcore.structure.staircase import _input_gains, _scale_of
@@ -211,7 +211,8 @@ def _certificate(p: _Prepared):
             _RECENT_CERTIFICATES.move_to_end(key)
             return hit[1]
     cert = modal_certificate(p.A, p.B_dec, p.C_dec, scale=p.scale, tol=p.tol, keep_schur=True,
-                             deflate=not strongly_rescaled(p.s))
+                             deflate=deflation_allowed(
+                                 p.s, lambda: balancing_connectivity(p.A, p.B, p.C), p.tol))
     if cert is not None:
         with _RECENT_LOCK:
             _RECENT_CERTIFICATES[key] = (weakref.ref(p.model),

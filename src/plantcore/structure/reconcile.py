@@ -39,6 +39,7 @@ from plantcore.core.safe_norms import frobenius
 from plantcore.structure.certificate import controllable_basis, schur_eigenvalues
 
 __all__ = ["bounded_agreement", "certificate_decisions", "confirm_window", "deflated_note",
+           "deflation_allowed",
            "spectral_decomposition", "strongly_rescaled", "within_bounds"]
 
 
@@ -236,6 +237,21 @@ def strongly_rescaled(state_scaling) -> bool:
 #: value when the balancing's algebraic connectivity is at least this many times the
 #: tolerance (the top of the window; see :func:`confirm_window`).
 WELL_DETERMINED_CONNECTIVITY = FRAGILITY_FACTOR
+
+
+def deflation_allowed(state_scaling, connectivity, tol: float) -> bool:
+    """Whether the modal certificate may use its deflated measure (see
+    :func:`plantcore.structure.certificate._deflate`) on a model: always when the
+    equilibration rescaled the states by at most :data:`MILD_SCALING_ORDERS` binary orders,
+    and beyond that only when the balanced scaling is well determined (``connectivity``, a
+    callable giving the algebraic connectivity of the balanced system matrix, at least
+    :data:`WELL_DETERMINED_CONNECTIVITY` ``tol``), the rule :func:`confirm_window` applies
+    to a dropped value.  Where the balancing may have shrunk a real coupling to rounding,
+    a flag that the deflated measure would lift can be the only sign of a dropped mode
+    (trust study seed 20261203, ``scaled`` model 276: connectivity 1.4e-6 tol)."""
+    if not strongly_rescaled(state_scaling):
+        return True
+    return connectivity() >= WELL_DETERMINED_CONNECTIVITY * tol
 
 
 def undecided_text(count: int) -> str:

@@ -30,6 +30,7 @@ from plantcore.structure.certificate import modal_certificate, schur_eigenvalues
 from plantcore.structure.reconcile import (
     bounded_text,
     confirm_window,
+    deflation_allowed,
     deflated_note,
     strongly_rescaled,
     supersede,
@@ -145,7 +146,9 @@ def _controllability(model, tol, label="controllability"):
     del B_e
     # the modal certificate (controllability side only); reduce_staircase copies A_e
     cert = modal_certificate(A_e, B_s, np.zeros((0, model.n)), scale=scale, tol=tol,
-                             keep_schur=True, deflate=not strongly_rescaled(eq.state_scaling))
+                             keep_schur=True, deflate=deflation_allowed(
+                                 eq.state_scaling,
+                                 lambda: balancing_connectivity(A_e, B_s, C_e), tol))
     red = reduce_staircase(A_e, B_s, C_e, scale=scale, tol=tol, label=label)
     rank = int(sum(red.blocks))
     check = _certificate_check(cert, rank, label, staircase_decisions=red.decisions)
