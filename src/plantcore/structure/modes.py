@@ -59,7 +59,7 @@ from plantcore.structure.certificate import (
     schur_eigenvalues,
 )
 from plantcore.structure.kalman import PART_NAMES, _complement, _prepare, kalman_decomposition
-from plantcore.structure.pbh_measures import PBHMeasures, threads_for_size
+from plantcore.structure.pbh_measures import MARGIN_RESIDUAL, PBHMeasures, threads_for_size
 
 __all__ = ["BOUNDARY_TOLERANCE", "NARROW_MARGIN", "Mode", "classify_modes"]
 
@@ -341,7 +341,7 @@ def _margins(measures: PBHMeasures, X, side: str, values, cache: dict) -> list[f
     value and is filled in."""
     keys = [_upper(lam) for lam in values]
     todo = list(dict.fromkeys(k for k in keys if k not in cache))
-    for key, value in zip(todo, measures.smallest(X, todo, side)):
+    for key, value in zip(todo, measures.smallest(X, todo, side, rtol=MARGIN_RESIDUAL)):
         cache[key] = float(value)
     return [cache[k] for k in keys]
 
