@@ -12,6 +12,12 @@ measured; and random stable models.
 
     OPENBLAS_NUM_THREADS=1 python benchmarks/bench_modes.py --quick     # n = 100, 400
     python benchmarks/bench_modes.py --sizes 100 400 1000 1412 --repeats 3
+    python benchmarks/bench_modes.py --models random beam --sizes 500 1000 1412 2000 \
+        --repeats 1 --skip-distances        # issue 17: classify_modes against eig alone
+
+``--models`` picks the families (``chain``: the spring chain above, ``random``: random stable,
+``beam``: the lightly damped beam ``bench_real.damped_beam`` of the report benchmark);
+``--skip-distances`` times only ``classify_modes`` and ``eig``.
 
 ``--boundary`` times instead the boundary test's ``sigma_min(A - mu I)`` at every eigenvalue's
 boundary point of a damped beam (``bench_real.damped_beam``) on one Schur form, the points
@@ -60,17 +66,29 @@ def random_stable(states: int, *, inputs: int = 3, outputs: int = 3, seed: int =
                               name=f"random stable, {states} states")
 
 
-def _calls(model):
-    return {
+def _calls(model, distances: bool = True):
+    calls = {
         "eig": lambda: np.linalg.eig(model.A),
         "classify_modes": lambda: pc.classify_modes(model),
-        "distances": lambda: (distance_to_uncontrollability(model),
-                              distance_to_unobservability(model)),
     }
+    if distances:
+        calls["distances"] = lambda: (distance_to_uncontrollability(model),
+                                      distance_to_unobservability(model))
+    return calls
 
 
-def measure(model, threads: int, repeats: int) -> dict:
-    calls = _calls(model)
+def damped_beam(states: int) -> pc.StateSpaceModel:
+    """The lightly damped beam of the real-model benchmark (``bench_real.damped_beam``)."""
+    from bench_real import damped_beam as beam
+
+    return beam(states)
+
+
+MODELS = {"chain": spring_chain, "random": random_stable, "beam": damped_beam}
+
+
+def measure(model, threads: int, repeats: int, distances: bool = True) -> dict:
+    calls = _calls(model, distances)
     times = {name: [] for name in calls}
     with threadpool_limits(threads):
         for _ in range(repeats):
@@ -122,6 +140,10 @@ def main(argv=None) -> None:
     parser.add_argument("--threads", type=int, nargs="+", default=[1, 2])
     parser.add_argument("--quick", action="store_true", help="n = 100 and 400, one repeat")
     parser.add_argument("--no-random", action="store_true", help="spring chains only")
+    parser.add_argument("--models", nargs="+", choices=sorted(MODELS), default=None,
+                        help="model families (default: chain and random)")
+    parser.add_argument("--skip-distances", action="store_true",
+                        help="time classify_modes and eig only")
     parser.add_argument("--boundary", action="store_true",
                         help="the boundary test's sigma_min, lock step against one point")
     args = parser.parse_args(argv)
@@ -153,14 +175,15 @@ def _boundary_rows(sizes, thread_counts, repeats):
 
 
 def _mode_rows(sizes, args, repeats):
+    families = args.models or (["chain"] if args.no_random else ["chain", "random"])
     for n in sizes:
-        models = [spring_chain(n)] + ([] if args.no_random else [random_stable(n)])
-        for model in models:
+        for model in (MODELS[name](n) for name in families):
             for threads in args.threads:
-                t = measure(model, threads, repeats)
+                t = measure(model, threads, repeats, not args.skip_distances)
+                distances = ([f"{t['distances']:.3g}", f"{t['distances'] / t['eig']:.1f}"]
+                             if "distances" in t else ["-", "-"])
                 yield [model.name, str(threads), f"{t['eig']:.3g}", f"{t['classify_modes']:.3g}",
-                       f"{t['classify_modes'] / t['eig']:.1f}", f"{t['distances']:.3g}",
-                       f"{t['distances'] / t['eig']:.1f}"]
+                       f"{t['classify_modes'] / t['eig']:.1f}"] + distances
 
 if __name__ == "__main__":
     main()
