@@ -108,12 +108,18 @@ def io_scaled(B, C, scale: float):
     B = np.array(B, dtype=float)
     C = np.array(C, dtype=float)
     if scale > 0:
-        for j in range(B.shape[1]):
-            nb = frobenius(B[:, j])
-            if nb > 0:
-                B[:, j] *= _pow2(scale / nb)
-        for i in range(C.shape[0]):
-            nc = frobenius(C[i, :])
-            if nc > 0:
-                C[i, :] *= _pow2(scale / nc)
+        # each column's (row's) norm on its own, as frobenius computes it; the powers of two
+        # for all of them in one vectorized call (the same elementwise values)
+        B *= _gains(scale, [frobenius(B[:, j]) for j in range(B.shape[1])])[None, :]
+        C *= _gains(scale, [frobenius(C[i, :]) for i in range(C.shape[0])])[:, None]
     return B, C
+
+
+def _gains(scale: float, norms) -> np.ndarray:
+    """``_pow2(scale / norm)`` for each positive norm, 1 where a norm is zero."""
+    norms = np.asarray(norms, dtype=float)
+    out = np.ones(norms.size)
+    positive = norms > 0
+    if np.any(positive):
+        out[positive] = _pow2(scale / norms[positive])
+    return out

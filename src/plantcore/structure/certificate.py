@@ -153,24 +153,34 @@ class ModalCertificate:
     _uncounted_o: frozenset = field(repr=False, default=frozenset())
     _deflated_c: dict = field(repr=False, default_factory=dict)
     _deflated_o: dict = field(repr=False, default_factory=dict)
+    # counts and sizes already computed, by (what, side, tolerance): the record-keeping asks
+    # for the same ones many times; not an init field, so dataclasses.replace starts afresh
+    _memo: dict = field(repr=False, default_factory=dict, init=False, compare=False)
 
     @property
     def n(self) -> int:
         return int(self.multiplicities.sum())
 
     def _count(self, side: str, t: float) -> np.ndarray:
+        key = ("count", side, float(t))
+        if key not in self._memo:
+            self._memo[key] = self._counted(side, t)
+        return self._memo[key].copy()
+
+    def _counted(self, side: str, t: float) -> np.ndarray:
         up = self.controllability if side == "c" else self.observability
         low = self.controllability_lower if side == "c" else self.observability_lower
         copies = self._copies_c if side == "c" else self._copies_o
-        deflated = self._deflated(side)
-        out = np.zeros(self.multiplicities.size, dtype=int)
-        for i in range(out.size):
-            if low[i] > t or up[i] > t:
-                continue          # (an unmeasured cluster is only ever asked inside its bounds)
-            if deflated.get(i, 0.0) > t:
-                continue          # kept by its measure on the deflated pair (see _deflate)
-            values = copies[i] if copies and copies[i] is not None else np.array([up[i]])
-            out[i] = max(1, int(np.count_nonzero(values <= t)))
+        # (an unmeasured cluster is only ever asked inside its bounds)
+        counted = ~((low > t) | (up > t))
+        for i, value in self._deflated(side).items():
+            if value > t:
+                counted[i] = False   # kept by its measure on the deflated pair (see _deflate)
+        out = counted.astype(int)    # one copy, unless the cluster's copies were measured
+        if copies:
+            for i in np.flatnonzero(counted):
+                if copies[i] is not None:
+                    out[i] = max(1, int(np.count_nonzero(copies[i] <= t)))
         return np.minimum(out, self.multiplicities)
 
     def undecided(self, t: float | None = None) -> int:
@@ -243,6 +253,13 @@ class ModalCertificate:
         """The four Kalman part sizes the certificate implies at the tolerance ``t``:
         (controllable and observable, controllable unobservable, uncontrollable observable,
         uncontrollable and unobservable)."""
+        t = self.tolerance if t is None else t
+        key = ("sizes", "", float(t))
+        if key not in self._memo:
+            self._memo[key] = self._sizes_at(t)
+        return self._memo[key]
+
+    def _sizes_at(self, t: float) -> tuple:
         k = self.multiplicities
         u, v = self.uncontrollable_copies(t), self.unobservable_copies(t)
         # Copies that are both uncontrollable and unobservable: the smaller count where a
@@ -278,22 +295,40 @@ class ModalCertificate:
         low = self.controllability_lower if side == "c" else self.observability_lower
         copies = self._copies_c if side == "c" else self._copies_o
         deflated = self._deflated(side)
-        kept, dropped = [math.inf], [0.0]
-        for i in range(self.multiplicities.size):
-            if deflated.get(i, 0.0) > t:
-                kept.append(float(deflated[i]))
-                continue
-            values = copies[i] if copies and copies[i] is not None else None
-            if values is None:
-                (dropped if up[i] <= t else kept).append(float(up[i] if up[i] <= t else low[i]))
-                continue
-            below = values[values <= t]
-            above = values[values > t]
-            if below.size:
-                dropped.append(float(below.max()))
-            if above.size:
-                kept.append(float(above.min()))
-        return min(kept), max(dropped)
+        k = self.multiplicities.size
+        # one figure kept and one dropped at most per cluster (NaN: none), in cluster order
+        kept, dropped = np.full(k, np.nan), np.full(k, np.nan)
+        measured = (np.array([c is not None for c in copies], dtype=bool) if copies
+                    else np.zeros(k, dtype=bool))
+        by_deflation = np.zeros(k, dtype=bool)
+        for i, value in deflated.items():
+            if value > t:
+                by_deflation[i] = True
+                kept[i] = value
+        plain = ~by_deflation & ~measured
+        below = up <= t
+        dropped[plain & below] = up[plain & below]
+        kept[plain & ~below] = low[plain & ~below]
+        for i in np.flatnonzero(~by_deflation & measured):
+            values = copies[i]
+            under, over = values[values <= t], values[values > t]
+            if under.size:
+                dropped[i] = under.max()
+            if over.size:
+                kept[i] = over.min()
+        return _first_extreme(kept, np.argmin, math.inf), _first_extreme(dropped, np.argmax, 0.0)
+
+
+def _first_extreme(values: np.ndarray, arg, start: float) -> float:
+    """``min([start, *values])`` (``arg=np.argmin``) or ``max`` (``np.argmax``) as Python
+    computes it over the values that are not NaN: the first value that beats ``start``
+    and every earlier one, or ``start`` itself."""
+    values = values[~np.isnan(values)]
+    if values.size:
+        best = values[arg(values)]
+        if (best < start) if arg is np.argmin else (best > start):
+            return float(best)
+    return start
 
 
 # --- building blocks ---------------------------------------------------------------------
@@ -350,7 +385,12 @@ def _clusters(values: np.ndarray, radii: np.ndarray, base: float) -> np.ndarray:
     if n < 2:
         return labels
     bound = {k: 2.0 * (n * _EPS) ** (1.0 / k) * base for k in range(2, _MAX_CLUSTER + 1)}
-    pairs = close_pairs(values, bound[_MAX_CLUSTER])
+    # Only pairs within 2 min(r_i, r_j) are kept below, so the search reaches no further
+    # than twice the largest radius (widened by 1e-6 relative, far beyond the few units
+    # in the last place by which the tree's distance and |lambda_i - lambda_j| can differ):
+    # the same pairs survive, without listing the O(n^2) pairs within the widest ring.
+    reach = min(bound[_MAX_CLUSTER], 2.0 * float(radii.max()) * (1.0 + 1e-6))
+    pairs = close_pairs(values, reach)
     if not pairs.size:
         return labels
     dist = np.abs(values[pairs[:, 0]] - values[pairs[:, 1]])
