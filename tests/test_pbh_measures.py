@@ -111,3 +111,65 @@ def test_smallest_routes_many_points_through_the_lock_step(monkeypatch):
         assert_allclose(many[side], one[side], rtol=1e-12, atol=_rounding(A))
         dense = [np.linalg.svd(A - lam * np.eye(n + 4), compute_uv=False)[-1] for lam in points]
         assert_allclose(many[side], dense, rtol=1e-8, atol=1e-14)
+
+
+def _pbh_model(n: int = 30, seed: int = 11):
+    """A random model with an exact eigenvalue 0 (pivot floor) and real eigenvalues beside
+    complex pairs, three inputs and two outputs."""
+    rng = np.random.default_rng(seed)
+    A = rng.standard_normal((n, n)) / np.sqrt(n)
+    A[:, 0] = 0.0
+    return A, rng.standard_normal((n, 3)), rng.standard_normal((2, n))
+
+
+def _dense_pbh(A, X, lam, side):
+    shifted = A - lam * np.eye(A.shape[0])
+    M = np.hstack([shifted, X]) if side == "c" else np.vstack([shifted, X])
+    return np.linalg.svd(M, compute_uv=False)[-1]
+
+
+def test_margins_with_the_shared_work_triangle_equal_fresh_copies(monkeypatch):
+    """One work triangle for all the points of a call (copied in slabs of columns) gives
+    the values of a fresh copy per point, bit for bit, on both sides and arithmetics."""
+    monkeypatch.setattr(pm, "_COPY_BLOCK", 7)           # several slabs, a ragged last one
+    A, B, C = _pbh_model()
+    points = [complex(v) for v in np.linalg.eigvals(A) if v.imag >= 0] + [0.3, 0.0, 0.5j]
+    measures = pm.PBHMeasures(A)
+    for X, side in ((B, "c"), (C, "o")):
+        shared = measures.smallest(X, points, side)
+        fresh = [measures._one(X, lam, side) for lam in points]
+        np.testing.assert_array_equal(shared, fresh)
+        dense = [_dense_pbh(A, X, lam, side) for lam in points]
+        assert_allclose(shared, dense, rtol=1e-8, atol=1e-14)
+
+
+@pytest.mark.parametrize("power", [450, -450])
+def test_margins_of_a_model_scaled_beyond_the_bounds_scale_exactly(power):
+    """Far from 1 in size the bounds on ||R||_F do not skip the scaling test: the values
+    scale with the model by the same power of two."""
+    A, B, C = _pbh_model(n=12, seed=5)
+    points = [complex(v) for v in np.linalg.eigvals(A) if v.imag >= 0][:5] + [0.25]
+    s = 2.0 ** power
+    plain, scaled = pm.PBHMeasures(A), pm.PBHMeasures(A * s)
+    for X, side in ((B, "c"), (C, "o")):
+        expect = plain.smallest(X, points, side) * s
+        got = scaled.smallest(X * s, [lam * s for lam in points], side)
+        assert np.all(np.isfinite(got))
+        assert_allclose(got, expect, rtol=1e-10)
+
+
+def test_margin_residual_keeps_values_attained_and_within_its_bound():
+    """Stopping at MARGIN_RESIDUAL instead of 1e-8: every value still at least the dense
+    SVD's (attained, up to rounding) and within the documented 1e-6 relative of it."""
+    A, B, C = _pbh_model(n=60, seed=2)
+    points = [complex(v) for v in np.linalg.eigvals(A) if v.imag >= 0]
+    measures = pm.PBHMeasures(A)
+    for X, side in ((B, "c"), (C, "o")):
+        loose = measures.smallest(X, points, side, rtol=pm.MARGIN_RESIDUAL)
+        tight = measures.smallest(X, points, side)
+        dense = np.array([_dense_pbh(A, X, lam, side) for lam in points])
+        rounding = 1e2 * np.finfo(float).eps * np.linalg.norm(np.hstack([A, B]) if side == "c"
+                                                             else np.vstack([A, C]))
+        assert np.all(loose >= dense - rounding)
+        assert_allclose(loose, dense, rtol=pm.MARGIN_RESIDUAL, atol=rounding)
+        assert_allclose(loose, tight, rtol=pm.MARGIN_RESIDUAL, atol=rounding)

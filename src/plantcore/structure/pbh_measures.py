@@ -51,6 +51,32 @@ around the loop over points (threadpoolctl), which is faster than two threads on
 memory-bound triangular solves and leaves the other core to the caller; the lock step's
 products too are faster on one thread than on two on the shared machine (n = 1,412, 706
 points: 4.3 s against 5.9-6.8 s).
+
+Cost of one margin (issue 17).  With a non-empty ``X`` each point costs one copy of the
+triangle, one ``?tpqrt`` and a few Lanczos steps; at n = 1,000 (random stable model, three
+inputs and outputs, one thread) about 8 ms for ``?tpqrt``, 1.5 ms for the copy and 5 ms
+for the 7 steps' solves.  Kept: the points of one call share one work triangle, of which
+only the upper trapezoid of each slab of columns is copied; the scaling test uses bounds on
+``||R||_F`` instead of a pass over the array; the start vector is drawn once; the block of
+``?tpqrt`` is :data:`TPQRT_BLOCK`; the mode table stops at :data:`MARGIN_RESIDUAL`.
+Evaluated and not kept:
+
+* *Start vectors from the eigenvectors* (the null vector of the shifted triangle, one
+  solve): 8.30 against 8.44 steps per margin (100 points, n = 1,000): the minimizing
+  vector of a well controllable mode is not near its eigenvector; and on a nearly normal
+  model a start orthogonal to the minimizing vector could let the iteration stop at the
+  second singular value.
+* *Only the part of the triangle at the eigenvalue's Schur position.*  Split at that
+  position, ``R`` is block upper triangular, so ``sigma_min(R)`` is at most that of either
+  diagonal block, but not equal to it: on a random model (n = 200, three outputs) the
+  leading block's value was 1.4 to 35 times the whole one.
+* *Real arithmetic for real eigenvalues of a form with complex pairs* (a rotation pass per
+  point to remove the 2 x 2 blocks, then ``dtpqrt``, about a third of ``ztpqrt``): a random
+  model has about ``sqrt(2 n / pi)`` real eigenvalues, some 2.5 % of the margins at
+  n = 1,000, and the rotation pass costs about as much as the copy.
+* *Several points at once* (a multi-shift ``?tpqrt``): every point's ``R`` differs
+  everywhere and must be written, so only the copy would be shared; two Python threads
+  over points were no faster than one on the shared two-core machine.
 """
 
 from __future__ import annotations
