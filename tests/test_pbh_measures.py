@@ -143,10 +143,11 @@ def test_margins_with_the_shared_work_triangle_equal_fresh_copies(monkeypatch):
         assert_allclose(shared, dense, rtol=1e-8, atol=1e-14)
 
 
-@pytest.mark.parametrize("power", [450, -450])
+@pytest.mark.parametrize("power", [450, -450, 600, -600])
 def test_margins_of_a_model_scaled_beyond_the_bounds_scale_exactly(power):
-    """Far from 1 in size the bounds on ||R||_F do not skip the scaling test: the values
-    scale with the model by the same power of two."""
+    """Far from 1 in size the bounds on ||R||_F do not skip the scaling test (at 2^600 their
+    squares overflow, at 2^-600 they underflow): the values scale with the model by the same
+    power of two, and nothing warns (the suite turns RuntimeWarnings into errors)."""
     A, B, C = _pbh_model(n=12, seed=5)
     points = [complex(v) for v in np.linalg.eigvals(A) if v.imag >= 0][:5] + [0.25]
     s = 2.0 ** power

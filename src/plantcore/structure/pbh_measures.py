@@ -182,6 +182,7 @@ class PBHMeasures:
         # The Schur form caches its arrangement of X by id(X): every X handed in is kept
         # alive here, so that no later array can take over its id while the cache lives.
         self._held: list = []
+        self._norms: dict = {}      # id of a pair triangle -> (triangle, Frobenius norm)
 
     @property
     def schur(self) -> _Schur:
@@ -283,8 +284,11 @@ class PBHMeasures:
         # ||R||_F = ||[T - shift I; bottom]||_F (R is the triangle of an orthogonal
         # factorization) lies between these two, from the pair's cached norm and O(n)
         # terms: the scaling test of _triangle_smallest without a pass over the n x n array
-        own = _squared(diagonal - shift) + _squared(bottom)
-        bounds = (math.sqrt(own), math.sqrt(self._pair_norm(T) ** 2 + own))
+        # (a bound that overflows is infinite, one that underflows zero: then the pass is made)
+        with np.errstate(all="ignore"):
+            own = _squared(diagonal - shift) + _squared(bottom)
+            whole = self._pair_norm(T)
+            bounds = (math.sqrt(own), math.sqrt(whole * whole + own))
         value, z = _triangle_smallest(R, None if start is None else start[1], rtol,
                                       frobenius=bounds)
         return (value, z, real) if vector else value
@@ -292,10 +296,10 @@ class PBHMeasures:
     def _pair_norm(self, T) -> float:
         """``||T||_F`` of a cached pair triangle, computed once (kept by ``id`` with ``T``,
         which the Schur form keeps alive)."""
-        norms = self.__dict__.setdefault("_norms", {})
-        entry = norms.get(id(T))
+        entry = self._norms.get(id(T))
         if entry is None or entry[0] is not T:
-            entry = norms[id(T)] = (T, float(np.linalg.norm(T)))
+            with np.errstate(all="ignore"):
+                entry = self._norms[id(T)] = (T, float(np.linalg.norm(T)))
         return entry[1]
 
 
