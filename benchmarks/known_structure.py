@@ -76,7 +76,12 @@ policy, and both are measured, never assumed:
   smallest PBH value of the constructed controllable pair (parts 1-2, in an orthonormal
   basis of its subspace in the hidden coordinates) and of the constructed observable pair
   (parts 1 and 3, dually), evaluated at the eigenvalues of those parts (known from the
-  construction).  It is measured up to :data:`MARGIN_MAX_STATES` states (``nan`` above).
+  construction) and, where the construction repeats an eigenvalue (defective blocks,
+  blocks shared between parts), also at the computed eigenvalues of the pair and of the
+  whole model and on a grid around the repeated eigenvalue refined by a local search
+  (see :func:`_pbh_distance`: at a repeated eigenvalue the value at the eigenvalue itself
+  overstated the margin by up to ten orders).  It is measured up to
+  :data:`MARGIN_MAX_STATES` states (``nan`` above).
   When it is below 1e-8 the constructed parts are themselves weak: the constructed
   answer is right, and so is any answer that only *removes* (no more controllable,
   observable or minimal states than constructed, ``alternative_sizes = None``), if it
@@ -124,6 +129,7 @@ from typing import NamedTuple
 
 import numpy as np
 import scipy.linalg
+import scipy.optimize
 
 __all__ = [
     "EXACT_MAX_STATES",
@@ -584,6 +590,61 @@ def _min_pbh(A: np.ndarray, X: np.ndarray, points) -> float:
     return best
 
 
+def _repeated_points(points) -> np.ndarray:
+    """The points that occur more than once (to rounding), one of each."""
+    pts = np.asarray(points, dtype=complex).ravel()
+    pts = np.where(pts.imag < 0, pts.conj(), pts)
+    key = np.round(pts.real, 12) + 1j * np.round(pts.imag, 12)
+    values, counts = np.unique(key, return_counts=True)
+    return values[counts > 1]
+
+
+def _pbh_distance(A: np.ndarray, X: np.ndarray, points, scale: float, whole=()) -> float:
+    """``min sigma_min([A - lambda I, X])`` over ``points`` and, around every repeated
+    point, over a polar grid (radii ``1e-4 .. 0.5`` of ``scale``, 16 angles) refined by a
+    local search: an upper bound of the distance to uncontrollability, which is the
+    minimum over all complex ``lambda`` (R. Eising, "Between controllable and
+    uncontrollable", Systems & Control Letters 4(5), 263-264, 1984).  At a repeated
+    (defective, or shared between blocks) eigenvalue the value at the eigenvalue itself
+    can exceed that minimum by many orders: measured on the ``repeated`` family, seed
+    20261203 model 155, 5.9e-6 at the eigenvalue -1 against 2e-16 on this search, and a
+    model with one more unobservable mode lies within 8e-14 (a reordered Schur form of
+    ``A + L C`` with the cluster's output rows of norm 9.3e-15, exactly block
+    triangular once they are zeroed); seed 2060040533 model 84, 3.6e-9 on the grid
+    alone against 8e-19 at the whole model's computed eigenvalues (``whole``)."""
+    best = _min_pbh(A, X, points)
+    extra = _repeated_points(points)
+    if not extra.size:
+        return best
+    k = A.shape[0]
+    Xc = X.astype(complex)
+
+    def value(z: complex) -> float:
+        return float(scipy.linalg.svdvals(np.hstack([A - z * np.eye(k), Xc]))[-1])
+
+    # the computed eigenvalues of the pair's own matrix and of the whole model: rounding
+    # scatters a defective eigenvalue into a ring, and the dips of sigma_min lie on it
+    rings = np.concatenate([np.linalg.eigvals(A)] + [np.asarray(w, dtype=complex).ravel()
+                                                     for w in whole])
+    if rings.size:
+        best = min(best, min(value(z) for z in rings))
+    radii = np.geomspace(1e-4, 0.5, 13) * scale
+    angles = np.exp(2j * np.pi * np.arange(16) / 16)
+    for centre in extra:
+        grid = centre + (radii[:, None] * angles[None, :]).ravel()
+        near = rings[np.abs(rings - centre) <= 0.5 * scale]
+        grid = np.concatenate([grid, near])
+        values = np.array([value(z) for z in grid])
+        start = grid[int(np.argmin(values))]
+        best = min(best, float(values.min()))
+        found = scipy.optimize.minimize(lambda v: value(complex(v[0], v[1])),
+                                        [start.real, start.imag], method="Nelder-Mead",
+                                        options={"xatol": 1e-10 * scale, "fatol": 0.0,
+                                                 "maxiter": 400})
+        best = min(best, float(found.fun))
+    return best
+
+
 def pbh_value(A, B, C, lam, side: str = "controllability") -> float:
     """The relative PBH value of a model at one point, in plantcore's scaling.
 
@@ -619,7 +680,8 @@ def _structure_margin(A, B, C, T, Ti, sizes, eigs, max_states=MARGIN_MAX_STATES)
     constructed controllable subspace (columns of ``T`` of parts 1-2); the observable pair
     is the dual, on an orthonormal basis of the span of the rows of ``T^-1`` of parts 1 and
     3.  Evaluated at the eigenvalues of those parts (``eigs``: per-part eigenvalues known
-    from the construction), relative to the hidden model's scale.
+    from the construction) and, for repeated ones, around them (:func:`_pbh_distance`),
+    relative to the hidden model's scale.
     """
     n = A.shape[0]
     if n > max_states:
@@ -627,15 +689,20 @@ def _structure_margin(A, B, C, T, Ti, sizes, eigs, max_states=MARGIN_MAX_STATES)
     s = _model_scale(A, B, C)
     n1, n2, n3, _ = sizes
     values = []
+    repeated = _repeated_points(np.concatenate([np.asarray(e, dtype=complex).ravel()
+                                                for e in eigs])).size > 0
+    whole = np.linalg.eigvals(A) if repeated else np.zeros(0, dtype=complex)
     if n1 + n2:
         Q = np.linalg.qr(T[:, :n1 + n2])[0]
         pts = np.concatenate([eigs[0], eigs[1]])
-        values.append(_min_pbh(Q.T @ A @ Q, Q.T @ _columns_to(B, s), pts) / s)
+        values.append(_pbh_distance(Q.T @ A @ Q, Q.T @ _columns_to(B, s), pts, s,
+                                    whole=(whole,)) / s)
     rows = np.r_[0:n1, n1 + n2:n1 + n2 + n3]
     if rows.size:
         W = np.linalg.qr(Ti[rows, :].T)[0]
         pts = np.concatenate([eigs[0], eigs[2]])
-        values.append(_min_pbh(W.T @ A.T @ W, W.T @ _columns_to(C.T, s), pts) / s)
+        values.append(_pbh_distance(W.T @ A.T @ W, W.T @ _columns_to(C.T, s), pts, s,
+                                    whole=(whole,)) / s)
     return min(values) if values else math.inf
 
 
