@@ -58,7 +58,9 @@ stays right for the hard ones:
    *Matrix Computations*, 4th ed., 2013, section 7.6), where its block ``(T_22, B_2)``
    holds only its own eigenvalues, and the count is ``k`` minus the controllable dimension
    of that small pair, decided by an orthogonal staircase at each tolerance of the window
-   (P. Van Dooren 1981, see :func:`_staircase_run`).
+   (P. Van Dooren 1981, see :func:`_staircase_run`).  Where that staircase would be as long
+   as the one being checked the cluster is left uncounted here; the callers then count it
+   by feedback invariance (:mod:`plantcore.structure.feedback_count`).
 
 4. *Deflated measure, where the whole model's measure lies inside the window.*  The
    measure of the whole model at a kept eigenvalue is also small when an uncontrollable

@@ -43,6 +43,7 @@ from plantcore.core.rank import RankDecision, any_fragile, resolve_tolerance
 from plantcore.core.safe_norms import frobenius
 from plantcore.structure.balancing_connectivity import balancing_connectivity
 from plantcore.structure.certificate import modal_certificate
+from plantcore.structure.feedback_count import resolve_uncounted
 from plantcore.structure.pbh_measures import one_blas_thread
 from plantcore.structure.reconcile import (
     certificate_decisions,
@@ -213,6 +214,7 @@ def _certificate(p: _Prepared):
     cert = modal_certificate(p.A, p.B_dec, p.C_dec, scale=p.scale, tol=p.tol, keep_schur=True,
                              deflate=deflation_allowed(
                                  p.s, lambda: balancing_connectivity(p.A, p.B, p.C), p.tol))
+    cert = resolve_uncounted(cert, p.A, p.B_dec, p.C_dec)
     if cert is not None:
         with _RECENT_LOCK:
             _RECENT_CERTIFICATES[key] = (weakref.ref(p.model),

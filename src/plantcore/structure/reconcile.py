@@ -101,7 +101,9 @@ def bounded_text(cert, staircase_decisions) -> str:
     (900 models, fresh seed 2060040533): three observability staircases were wrong with
     every kept value above 0.07 relative (1e9 tol) and the dropped one at 3e-16, and on
     600 more (seeds 20261203 and 777) 40 wrong answers kept values from 1 tol to 4e8 tol:
-    no margin separates them from the right ones.
+    no margin separates them from the right ones.  The count by feedback invariance
+    (:mod:`plantcore.structure.feedback_count`) is tried first; this text applies where it
+    could not count.
     """
     own = [d for d in staircase_decisions if not (d.check_only or d.superseded)]
     kept = min([d.smallest_kept for d in own] + [math.inf])
@@ -109,9 +111,10 @@ def bounded_text(cert, staircase_decisions) -> str:
     count = len(cert._uncounted)
     return (f"the certificate bounds but cannot count the copies of {count} repeated "
             "eigenvalue cluster(s) (counting them would take a staircase as long as the one "
-            "checked); the staircase's count lies within the bounds across the window, but "
-            f"beside such a cluster its margins (smallest kept {kept:.2g}, largest dropped "
-            f"{dropped:.2g}) are no proof: no second method decides")
+            "checked, and the copies that stay under a state feedback could not be counted "
+            "across the window either); the staircase's count lies within the bounds across "
+            f"the window, but beside such a cluster its margins (smallest kept {kept:.2g}, "
+            f"largest dropped {dropped:.2g}) are no proof: no second method decides")
 
 
 def _bounded_decisions(cert, staircase_sizes, outside, staircase_decisions) -> tuple:

@@ -27,6 +27,7 @@ from plantcore.core.rank import FRAGILITY_FACTOR, RankDecision, any_fragile, res
 from plantcore.core.safe_norms import frobenius, frobenius_of_columns, frobenius_of_rows
 from plantcore.structure.balancing_connectivity import balancing_connectivity
 from plantcore.structure.certificate import modal_certificate, schur_eigenvalues
+from plantcore.structure.feedback_count import resolve_uncounted
 from plantcore.structure.reconcile import (
     bounded_text,
     confirm_window,
@@ -149,6 +150,7 @@ def _controllability(model, tol, label="controllability"):
                              keep_schur=True, deflate=deflation_allowed(
                                  eq.state_scaling,
                                  lambda: balancing_connectivity(A_e, B_s, C_e), tol))
+    cert = resolve_uncounted(cert, A_e, B_s, np.zeros((0, model.n)))
     red = reduce_staircase(A_e, B_s, C_e, scale=scale, tol=tol, label=label)
     rank = int(sum(red.blocks))
     check = _certificate_check(cert, rank, label, staircase_decisions=red.decisions)
