@@ -591,12 +591,14 @@ def _min_pbh(A: np.ndarray, X: np.ndarray, points) -> float:
 
 
 def _repeated_points(points) -> np.ndarray:
-    """The points that occur more than once (to rounding), one of each."""
+    """The points that occur more than once (to rounding), one of each, and of a
+    conjugate pair the one in the upper half plane (the PBH value of a real pair is the
+    same at both); a conjugate pair itself is not a repetition."""
     pts = np.asarray(points, dtype=complex).ravel()
-    pts = np.where(pts.imag < 0, pts.conj(), pts)
     key = np.round(pts.real, 12) + 1j * np.round(pts.imag, 12)
     values, counts = np.unique(key, return_counts=True)
-    return values[counts > 1]
+    values = values[counts > 1]
+    return values[values.imag >= 0]
 
 
 def _pbh_distance(A: np.ndarray, X: np.ndarray, points, scale: float, whole=()) -> float:
