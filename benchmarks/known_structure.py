@@ -601,7 +601,8 @@ def _repeated_points(points) -> np.ndarray:
     return values[values.imag >= 0]
 
 
-def _pbh_distance(A: np.ndarray, X: np.ndarray, points, scale: float, whole=()) -> float:
+def _pbh_distance(A: np.ndarray, X: np.ndarray, points, scale: float,
+                  whole: np.ndarray | None = None) -> float:
     """``min sigma_min([A - lambda I, X])`` over ``points`` and, around every repeated
     point, over a polar grid (radii ``1e-4 .. 0.5`` of ``scale``, 16 angles) refined by a
     local search: an upper bound of the distance to uncontrollability, which is the
@@ -626,8 +627,8 @@ def _pbh_distance(A: np.ndarray, X: np.ndarray, points, scale: float, whole=()) 
 
     # the computed eigenvalues of the pair's own matrix and of the whole model: rounding
     # scatters a defective eigenvalue into a ring, and the dips of sigma_min lie on it
-    rings = np.concatenate([np.linalg.eigvals(A)] + [np.asarray(w, dtype=complex).ravel()
-                                                     for w in whole])
+    rings = np.concatenate([np.linalg.eigvals(A),
+                            np.zeros(0, dtype=complex) if whole is None else whole])
     if rings.size:
         best = min(best, min(value(z) for z in rings))
     radii = np.geomspace(1e-4, 0.5, 13) * scale
@@ -698,13 +699,13 @@ def _structure_margin(A, B, C, T, Ti, sizes, eigs, max_states=MARGIN_MAX_STATES)
         Q = np.linalg.qr(T[:, :n1 + n2])[0]
         pts = np.concatenate([eigs[0], eigs[1]])
         values.append(_pbh_distance(Q.T @ A @ Q, Q.T @ _columns_to(B, s), pts, s,
-                                    whole=(whole,)) / s)
+                                    whole=whole) / s)
     rows = np.r_[0:n1, n1 + n2:n1 + n2 + n3]
     if rows.size:
         W = np.linalg.qr(Ti[rows, :].T)[0]
         pts = np.concatenate([eigs[0], eigs[2]])
         values.append(_pbh_distance(W.T @ A.T @ W, W.T @ _columns_to(C.T, s), pts, s,
-                                    whole=(whole,)) / s)
+                                    whole=whole) / s)
     return min(values) if values else math.inf
 
 

@@ -50,7 +50,13 @@ import dataclasses
 import numpy as np
 
 from plantcore.core.rank import FRAGILITY_FACTOR
-from plantcore.structure.certificate import ModalCertificate, controllable_basis, modal_certificate
+from plantcore.structure.certificate import (
+    ModalCertificate,
+    _nearest,
+    controllable_basis,
+    modal_certificate,
+    schur_eigenvalues,
+)
 
 __all__ = ["GAINS", "resolve_uncounted"]
 
@@ -80,7 +86,8 @@ def _feedback_count(A, X, *, scale: float, tol: float, gain: float) -> _Feedback
     G = np.random.default_rng(_SEED).standard_normal((m, n))
     G *= gain / float(np.linalg.norm(G, 2))
     A_f = A + X @ G
-    cert = modal_certificate(A_f, X, np.zeros((0, n)), scale=scale, tol=tol, deflate=False)
+    cert = modal_certificate(A_f, X, np.zeros((0, n)), scale=scale, tol=tol, deflate=False,
+                             keep_schur=True)
     if cert is None or cert.has_uncounted():
         return None
     factor = 1.0 + gain
@@ -92,8 +99,11 @@ def _feedback_count(A, X, *, scale: float, tol: float, gain: float) -> _Feedback
     if len(counts) != 1:
         return None
     kept, dropped = cert.counts_summary("c")
-    return _FeedbackCount(counts.pop(), kept / factor, dropped * factor, cert,
-                          np.linalg.eigvals(A_f), factor)
+    # the computed eigenvalues, from the certificate's own Schur form where it made one
+    eigenvalues = (schur_eigenvalues(cert.schur[0]) if cert.schur is not None
+                   else np.linalg.eigvals(A_f))
+    return _FeedbackCount(counts.pop(), kept / factor, dropped * factor,
+                          dataclasses.replace(cert, schur=None), eigenvalues, factor)
 
 
 def _clean(found: _FeedbackCount) -> bool:
@@ -105,7 +115,7 @@ def _clean(found: _FeedbackCount) -> bool:
     count = fc.uncontrollable_copies()
     if np.any((count > 0) & (count < fc.multiplicities)):
         return False
-    owner = np.array([int(np.argmin(np.abs(fc.eigenvalues - z))) for z in found.eigenvalues])
+    owner = _nearest(found.eigenvalues, fc.eigenvalues)
     for j in np.nonzero(count)[0]:
         mine = owner == j
         if np.all(mine):
@@ -148,11 +158,10 @@ def _window(t: float) -> tuple:
 
 def _fixed_copies(cert, group, found: _FeedbackCount) -> dict | None:
     """Copies of each cluster of ``group`` that stay under the feedback, or None when the
-    picture is not clean: every cluster of ``A + X K`` nearest to the group must be wholly
-    fixed (all its copies uncontrollable) or wholly moved across the widened window, and
-    the fixed ones must lie within a quarter of the distance of the nearest eigenvalue
-    that moved (else a moved copy may have landed among them, or a scattered ring of
-    fixed copies been split)."""
+    picture is not clean (on top of :func:`_clean`): the count of every cluster of
+    ``A + X K`` must be the same across the widened window, and the fixed copies nearest
+    to a cluster of the group must lie within a quarter of the distance from its centre
+    of every other computed eigenvalue."""
     fc = found.cert
     reps = cert.eigenvalues
     lo, hi = cert.tolerance / FRAGILITY_FACTOR, cert.tolerance * FRAGILITY_FACTOR
@@ -160,25 +169,20 @@ def _fixed_copies(cert, group, found: _FeedbackCount) -> dict | None:
     counts = np.array([fc.uncontrollable_copies(x) for x in points])
     if np.any(counts != counts[0]):
         return None
-    nearest = np.array([int(np.argmin(np.abs(reps - z))) for z in fc.eigenvalues])
-    fixed_cluster = counts[0] == fc.multiplicities
-    fixed = {c: 0 for c in group}
-    for j in np.nonzero(np.isin(nearest, group))[0]:
-        if 0 < counts[0][j] < fc.multiplicities[j]:
-            return None                       # a cluster partly fixed, partly moved
-        if fixed_cluster[j]:
-            fixed[int(nearest[j])] += int(fc.multiplicities[j])
-    # every computed eigenvalue of A + X K, by the cluster of A + X K it is nearest to
-    owner = np.array([int(np.argmin(np.abs(fc.eigenvalues - z))) for z in found.eigenvalues])
+    nearest = _nearest(fc.eigenvalues, reps)
+    fixed_cluster = counts[0] == fc.multiplicities      # (_clean: no cluster is partly fixed)
+    owner = _nearest(found.eigenvalues, fc.eigenvalues)
+    fixed = {}
     for c in group:
-        mine = np.isin(owner, np.nonzero((nearest == c) & fixed_cluster)[0])
-        distance = np.abs(found.eigenvalues - reps[c])
-        if not np.any(mine):
-            continue
-        if np.any(~mine) and distance[~mine].min() <= 4.0 * distance[mine].max():
-            return None
+        mine_clusters = np.nonzero((nearest == c) & fixed_cluster)[0]
+        fixed[c] = int(fc.multiplicities[mine_clusters].sum())
         if fixed[c] > int(cert.multiplicities[c]):
             return None
+        mine = np.isin(owner, mine_clusters)
+        if np.any(mine) and np.any(~mine):
+            distance = np.abs(found.eigenvalues - reps[c])
+            if distance[~mine].min() <= 4.0 * distance[mine].max():
+                return None
     return fixed
 
 
@@ -195,15 +199,18 @@ def _resolve_side(cert, side, A, X, scale, tol):
         return None
     others = others.pop()
 
+    chosen = {}
+
     def accept(found):
         fixed = _fixed_copies(cert, group, found)
+        chosen["fixed"] = fixed
         return fixed is not None and sum(fixed.values()) == found.count - others and \
             len(set(fixed.values())) == 1
 
     found = _first_count(A, X, scale=scale, tol=tol, accept=accept)
     if found is None:
         return None
-    fixed = _fixed_copies(cert, group, found)
+    fixed = chosen["fixed"]
     values = {}
     for c in group:
         k = int(cert.multiplicities[c])

@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import collections
 import dataclasses
+import functools
 import math
 import threading
 import warnings
@@ -104,6 +105,12 @@ class _Prepared:
     B_dec: np.ndarray      # inputs rescaled for rank decisions
     C_dec: np.ndarray      # outputs rescaled for rank decisions
     scale: float
+
+    @functools.cached_property
+    def connectivity(self) -> float:
+        """How well the balancing is determined (:func:`balancing_connectivity`), computed
+        once for the deflation rule and the window rule of a call."""
+        return balancing_connectivity(self.A, self.B, self.C)
 
 
 def _prepare(model, tol) -> _Prepared:
@@ -213,7 +220,7 @@ def _certificate(p: _Prepared):
             return hit[1]
     cert = modal_certificate(p.A, p.B_dec, p.C_dec, scale=p.scale, tol=p.tol, keep_schur=True,
                              deflate=deflation_allowed(
-                                 p.s, lambda: balancing_connectivity(p.A, p.B, p.C), p.tol))
+                                 p.s, lambda: p.connectivity, p.tol))
     cert = resolve_uncounted(cert, p.A, p.B_dec, p.C_dec)
     if cert is not None:
         with _RECENT_LOCK:
@@ -546,7 +553,7 @@ def _decomposition(p: _Prepared) -> KalmanDecomposition:
     del T_e, Ti_e
     sizes = PartSizes(n1, n2, n3c, n4)
     decisions = confirm_window(decisions, cert, sizes, state_scaling=p.s,
-                               connectivity=lambda: balancing_connectivity(p.A, p.B, p.C))
+                               connectivity=lambda: p.connectivity)
     if cert is not None and certificate_finds_more(cert.sizes(), sizes):
         spectral = spectral_decomposition(p.A, p.B, p.C, cert)
         if spectral is not None:

@@ -11,7 +11,6 @@ from plantcore.core.errors import NumericalBreakdown
 from plantcore.core.model import StateSpaceModel
 from plantcore.core.rank import any_fragile
 from plantcore.core.safe_norms import frobenius
-from plantcore.structure.balancing_connectivity import balancing_connectivity
 from plantcore.structure.kalman import _decompose, _prepare, _start
 from plantcore.structure.pbh_measures import one_blas_thread
 from plantcore.structure.reconcile import certificate_decisions, confirm_window
@@ -151,7 +150,7 @@ def _minimal(model, tol) -> MinimalRealization:
             staircase_like = (r, nc - r, n - nc, 0)   # the conflict is recorded below
         decisions = confirm_window(
             decisions, cert, staircase_like, state_scaling=p.s,
-            connectivity=lambda: balancing_connectivity(p.A, p.B, p.C))
+            connectivity=lambda: p.connectivity)
         decisions = decisions + certificate_decisions(
             cert, staircase_like, part4_unknown=disagree, staircase_decisions=decisions)
     # The minimal model is the leading block of the second staircase, in the coordinates

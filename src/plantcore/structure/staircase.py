@@ -15,6 +15,8 @@ have full row rank.  The observability staircase is the dual form
 
 from __future__ import annotations
 
+import functools
+
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -145,11 +147,15 @@ def _controllability(model, tol, label="controllability"):
     B_s, _ = io_scaled(B_e, C_e, scale)
     g = _input_gains(B_e, B_s)
     del B_e
+    # how well the balancing is determined, asked (once) only where the states were
+    # rescaled beyond MILD_SCALING_ORDERS, by the deflation rule and the window rule
+    s = eq.state_scaling
+    connectivity = (functools.cache(lambda: balancing_connectivity(A_e, B_s, C_e))
+                    if strongly_rescaled(s) else None)
     # the modal certificate (controllability side only); reduce_staircase copies A_e
     cert = modal_certificate(A_e, B_s, np.zeros((0, model.n)), scale=scale, tol=tol,
-                             keep_schur=True, deflate=deflation_allowed(
-                                 eq.state_scaling,
-                                 lambda: balancing_connectivity(A_e, B_s, C_e), tol))
+                             keep_schur=True,
+                             deflate=deflation_allowed(s, connectivity, tol))
     cert = resolve_uncounted(cert, A_e, B_s, np.zeros((0, model.n)))
     red = reduce_staircase(A_e, B_s, C_e, scale=scale, tol=tol, label=label)
     rank = int(sum(red.blocks))
@@ -162,17 +168,13 @@ def _controllability(model, tol, label="controllability"):
             decisions = (supersede(red.decisions) + tuple(decisions)
                          + _certificate_check(cert, int(sum(blocks)), label, decided=True))
             return model, eq, A_t, B_t / g[None, :], C_t, U, blocks, decisions
-    # the equilibrated arrays are kept only where the window rule may ask how well the
-    # balancing is determined (states rescaled beyond MILD_SCALING_ORDERS)
-    s = eq.state_scaling
-    kept = (A_e, B_s, C_e) if strongly_rescaled(s) else None
-    del A_e, C_e, B_s
+    del A_e, C_e, B_s     # (kept by ``connectivity`` only on strongly rescaled models)
     U = red.form_U()
     red.transforms.clear()
     B_t = red.B / g[None, :]  # back to the user's input units (exact: powers of two)
     decisions = confirm_window(
         tuple(red.decisions), cert, None, rank=rank, state_scaling=s,
-        connectivity=None if kept is None else lambda: balancing_connectivity(*kept)) + check
+        connectivity=connectivity) + check
     return model, eq, red.A, B_t, red.C, U, red.blocks, decisions
 
 
