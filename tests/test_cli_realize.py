@@ -77,6 +77,10 @@ def test_continuous_coefficients_and_noisy_file(tmp_path, capsys):
     report = json.loads(capsys.readouterr().out)
     assert report["order"] == 3 and report["noise_level_source"] == "given"
     assert report["fragile"]
+    # The residual search ran and added nothing: its one step is recorded, below threshold.
+    assert report["hankel_order"] == 3 and len(report["residual_search"]) == 1
+    step = report["residual_search"][0]
+    assert step["states"] == 3 and step["statistic"] < step["threshold"]
 
 
 def _write(path, text):

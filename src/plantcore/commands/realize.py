@@ -126,6 +126,10 @@ def _as_dict(fit, args) -> dict:
         "window_samples": fit.window_samples,
         "window_orders": [list(pair) for pair in fit.window_orders],
         "plateau_ratio": _number(fit.plateau_ratio),
+        "hankel_order": fit.hankel_order,
+        "residual_search": [{"states": states, "statistic": float(statistic),
+                             "threshold": float(threshold)}
+                            for states, statistic, threshold in fit.residual_search],
         "time_scale": float(fit.time_scale),
         "reproduction_error": float(fit.reproduction_error),
         "reproduction_rms": float(fit.reproduction_rms),
@@ -169,6 +173,14 @@ def _as_text(fit, args) -> str:
         (f"evidence: gap sigma_n / sigma_n+1 = {fit.gap:.4g}, "
         f"sigma_n / floor = {fit.signal_margin:.4g}"),
         f"decision: {_decision_line(fit.decision)}",
+    ]
+    if fit.residual_search:
+        found = fit.automatic_order - fit.hankel_order
+        searched = "; ".join(f"{states} states: {statistic:.3g} (threshold {threshold:.3g})"
+                             for states, statistic, threshold in fit.residual_search)
+        lines.append(f"residual search: {found} state(s) found below the Hankel floor "
+                     f"({fit.hankel_order} above it); statistic per search: {searched}")
+    lines += [
         (f"fit to the data: relative error {fit.reproduction_error:.3g}, "
         f"rms deviation {fit.reproduction_rms:.3g}"),
     ]
