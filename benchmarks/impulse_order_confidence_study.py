@@ -114,6 +114,10 @@ def run(count: int, seed: int):
 
 def _tally(row, fit, true_order: int, visible_order: int):
     row["models"] += 1
+    row.setdefault("search_ratios", []).append(
+        max((statistic / threshold for _, statistic, threshold in fit.residual_search),
+            default=0.0))
+    row["search_added"] = row.get("search_added", 0) + (fit.order > fit.hankel_order)
     row["too_high"] += fit.order > true_order
     row["visible_order"] += fit.order == visible_order
     if not fit.fragile and fit.order:
@@ -135,14 +139,16 @@ def main(argv=None):
           f"{time.perf_counter() - start:.0f} s")
     print("| family | weakest state / noise norm | models | right, unflagged | right, fragile | "
           "wrong, fragile | wrong, unflagged | order too high | order = visible order | "
-          "smallest unflagged margin |")
-    print("|---|---|---:|---:|---:|---:|---:|---:|---:|---:|")
+          "smallest unflagged margin | residual search added states | largest search "
+          "statistic / threshold |")
+    print("|---|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|")
     for (family, band), row in rows.items():
         shown = f"{band[0]:g}-{band[1]:g}" if band else "0.02-0.3 (others 300-1e4)"
         margin = f"{min(row['margins']):.3g}" if row["margins"] else "-"
         print(f"| {family} | {shown} | {row['models']} | {row['right_unflagged']} | "
               f"{row['right_fragile']} | {row['wrong_fragile']} | {row['wrong_unflagged']} | "
-              f"{row['too_high']} | {row['visible_order']} | {margin} |")
+              f"{row['too_high']} | {row['visible_order']} | {margin} | "
+              f"{row.get('search_added', 0)} | {max(row.get('search_ratios', [0.0])):.3g} |")
 
 
 if __name__ == "__main__":
