@@ -24,8 +24,8 @@ noise Hankel matrix of that window.  By Weyl's inequality a state below it can b
 the noise; a model is *identifiable* when its visible order is its true order.  The
 generators make unidentifiable data too (the separated family 16 of 200 at seeds 2026 and
 7), so the target is reported over all data and over the identifiable data.  With the
-residual search (:mod:`plantcore.reduction.damped_exponentials`), 189 (seed 2026) and 190
-(seed 7) of the 200 separated models are found, 183 of 184 identifiable ones at both seeds;
+residual search (:mod:`plantcore.reduction.damped_exponentials`), 189 (seed 2026) and
+189-190 (seed 7) of the 200 separated models are found, 183 of 184 identifiable ones at both seeds;
 the misses left have a state almost inside the others' responses or far below the noise
 (README).  A second, model-intrinsic
 criterion (column ``identifiable by Gramians``): every Hankel singular value of the model from

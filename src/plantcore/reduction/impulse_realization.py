@@ -414,7 +414,7 @@ def realize_impulse_response(data, *, sample_time=None, order=None, noise_level=
        damped exponential on a grid of poles.  The strongest is added (a pair, a real pole,
        or a real pole of the fit made a pair), the poles refined again, and the residual
        energy removed, over the noise variance (the generalized likelihood ratio for one
-       more pole in white noise), is compared with the mean plus 5 standard deviations of
+       more pole in white noise), is compared with the mean plus 7 standard deviations of
        the grid statistic for 24 seeded white-noise draws with the fit's span projected out.
        Above it the update is kept and the search repeats (``residual_search``).  A mode
        whose response is nearly that of a stronger neighbour adds a small *new* direction
