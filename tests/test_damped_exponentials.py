@@ -91,7 +91,7 @@ def test_white_noise_rarely_passes_the_threshold():
     fit = fit_poles(*_split_poles(np.linalg.eigvals(model.A)), h[1:].reshape(L, 2),
                     refine=False)
     grid = _Grid(L, fit.basis)
-    threshold = grid.threshold(fit.basis, 2)
+    threshold = grid.threshold(2)
     passed = 0
     for _ in range(60):
         e = rng.standard_normal((L, 2))
@@ -161,6 +161,7 @@ def test_models_whose_order_the_hankel_values_show_get_no_extra_state():
     # Seeded draws of 40 dB data (noise RMS / 100) of minimal models of order 2-12 whose
     # every state stands well above the noise: the search must not add a state.
     rng = np.random.default_rng(12)
+    checked = 0
     for _ in range(12):
         n = int(rng.integers(2, 13))
         pairs = [(rng.uniform(0.6, 0.9), rng.uniform(0.3, 2.8)) for _ in range(n // 2)]
@@ -172,7 +173,9 @@ def test_models_whose_order_the_hankel_values_show_get_no_extra_state():
         noise[0] = 0.0
         fit = realize_impulse_response(exact + noise, sample_time=1.0, noise_level=sigma)
         if fit.hankel_order == n:
+            checked += 1
             assert fit.order == n, fit.residual_search
+    assert checked >= 10  # premise: the Hankel values show the order of most of them
 
 
 def test_search_records_one_step_when_nothing_is_missing():

@@ -43,8 +43,8 @@ The search, after the Hankel order ``n`` is read:
    and the pair removes no more than the threshold beyond it, and the pair otherwise.
    After an update the search repeats.
    Refining lets a neighbour of a missing pole move back once the pole is there, so this
-   statistic exceeds the grid's for a real state (separated model 52 at seed 2026: 59
-   against 30); on noise it exceeds it by a few noise variances, one reason for the
+   statistic exceeds the grid's for a real state (separated model 52 at seed 2026, from
+   its fit with 36 states: 59 against 30); on noise it exceeds it by a few noise variances, one reason for the
    stricter rule of note 3.
 
 References
@@ -275,7 +275,7 @@ class _Grid:
     already moved the fit's poles there."""
 
     def __init__(self, L: int, Q: np.ndarray):
-        self.L, self.nfft = L, _fft_size(L)
+        self.L, self.Q, self.nfft = L, Q, _fft_size(L)
         half = self.nfft // 2
         k = np.arange(L)
         self.rows = []
@@ -326,9 +326,11 @@ class _Grid:
                     pole = complex(rho * np.exp(2j * np.pi * j / self.nfft))
         return best, pole
 
-    def threshold(self, Q: np.ndarray, c: int) -> float:
+    def threshold(self, c: int) -> float:
         """Mean plus ``_NULL_STDS`` standard deviations of the statistic of seeded unit white
-        noise with the span of ``Q`` projected out (the residual of a fit to noise alone)."""
+        noise (``c`` channels) with the span of ``Q`` projected out (the residual of a fit to
+        noise alone)."""
+        Q = self.Q
         rng = np.random.default_rng(_NULL_SEED)
         values = []
         for _ in range(_NULL_DRAWS):
@@ -409,11 +411,10 @@ def _real_poles(fit: ExponentialFit):
     return out
 
 
-def _scan(fit: ExponentialFit, Y: np.ndarray, level: float):
-    """The statistic of the fit's residual, its pole, the threshold and the grid."""
+def _scan(fit: ExponentialFit, Y: np.ndarray):
+    """The strongest grid pole of the fit's residual, the threshold and the grid."""
     grid = _Grid(Y.shape[0], fit.basis)
-    statistic, pole = grid.strongest(fit.residual)
-    return statistic / level ** 2, pole, grid.threshold(fit.basis, Y.shape[1]), grid
+    return grid.strongest(fit.residual)[1], grid.threshold(Y.shape[1]), grid
 
 
 def search_missing_states(h: np.ndarray, level: float, poles: np.ndarray,
@@ -432,7 +433,7 @@ def search_missing_states(h: np.ndarray, level: float, poles: np.ndarray,
     for _ in range(_MAX_STEPS):
         if fit.states >= max_states:
             break
-        _, pole, threshold, grid = _scan(fit, Y, level)
+        pole, threshold, grid = _scan(fit, Y)
         candidate, removed = _update(fit, pole, grid, Y, level, threshold, max_states)
         steps.append((fit.states, removed, threshold))
         if candidate is None:

@@ -508,7 +508,7 @@ def realize_impulse_response(data, *, sample_time=None, order=None, noise_level=
                            "order from the Hankel singular values")
     raw = decision.rank
     hankel_order = automatic = best.count
-    search = None
+    search = base = None
     if best.noise_rules and automatic < full.n_max:
         base = _realization(h, U, s, Vt, automatic, p, m, sample_time, inputs, outputs, name)
         search = search_missing_states(h, level, np.linalg.eigvals(base.A), full.n_max)
@@ -590,8 +590,8 @@ def realize_impulse_response(data, *, sample_time=None, order=None, noise_level=
         model = StateSpaceModel(A_m, B_m, C_m, h[0], sample_time, inputs=inputs,
                                 outputs=outputs, name=name)
     if model is None or not search.added:
-        kung = _realization(h, U, s_model, Vt, chosen, p, m, sample_time, inputs, outputs,
-                            name)
+        kung = base if base is not None and chosen == hankel_order else \
+            _realization(h, U, s_model, Vt, chosen, p, m, sample_time, inputs, outputs, name)
         if model is None or _misfit(kung, h) <= _misfit(model, h):
             model = kung
         else:
