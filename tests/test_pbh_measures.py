@@ -7,6 +7,7 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
+import plantcore as pc
 from plantcore.structure import pbh_measures as pm
 
 
@@ -174,3 +175,61 @@ def test_margin_residual_keeps_values_attained_and_within_its_bound():
         assert np.all(loose >= dense - rounding)
         assert_allclose(loose, dense, rtol=pm.MARGIN_RESIDUAL, atol=rounding)
         assert_allclose(loose, tight, rtol=pm.MARGIN_RESIDUAL, atol=rounding)
+
+
+# --- BLAS threads by model size (issue 17, item 6) -------------------------------------------
+
+def _blas_threads() -> int:
+    from threadpoolctl import threadpool_info
+    counts = [entry["num_threads"] for entry in threadpool_info() if entry["user_api"] == "blas"]
+    return max(counts) if counts else 1
+
+
+def test_state_count_reads_every_accepted_form_and_zero_otherwise():
+    from plantcore.structure.pbh_measures import state_count
+    A = np.zeros((7, 7))
+    assert state_count(pc.StateSpaceModel(A, np.ones((7, 1)), np.ones((1, 7)))) == 7
+    assert state_count((A, np.ones((7, 1)), np.ones((1, 7)))) == 7
+    assert state_count([A.tolist(), [[1]] * 7, [[1] * 7]]) == 7
+    assert state_count("plant.toml") == 0
+    assert state_count((np.ones(3),)) == 0
+
+
+def test_calls_up_to_the_size_limit_run_on_one_blas_thread_and_larger_ones_unchanged():
+    from threadpoolctl import threadpool_limits
+
+    from plantcore.structure.pbh_measures import ONE_THREAD_SIZE, threads_by_size
+
+    @threads_by_size(2)
+    def seen(first, second):
+        return _blas_threads()
+
+    small = (np.zeros((5, 5)), np.ones((5, 1)), np.ones((1, 5)))
+    large = (np.zeros((ONE_THREAD_SIZE + 1,) * 2),)
+    with threadpool_limits(2, user_api="blas"):
+        outside = _blas_threads()
+        assert seen(small, small) == 1
+        assert seen(small, large) == outside          # the larger model decides
+        assert _blas_threads() == outside             # the limit ends with the call
+    assert seen.__name__ == "seen"
+
+
+def test_public_calls_carry_the_size_rule(monkeypatch):
+    # a decorated public call keeps its name and documentation and computes on one thread
+    from threadpoolctl import threadpool_limits
+
+    from plantcore.reduction import balanced
+    seen = []
+    original = balanced._hsv_and_factors
+
+    def spy(*args, **kwargs):
+        seen.append(_blas_threads())
+        return original(*args, **kwargs)
+
+    monkeypatch.setattr(balanced, "_hsv_and_factors", spy)
+    model = pc.StateSpaceModel(np.diag([-1.0, -2.0, -3.0]), np.ones((3, 1)), np.ones((1, 3)))
+    with threadpool_limits(2, user_api="blas"):
+        pc.hankel_singular_values(model)
+    assert pc.hankel_singular_values.__name__ == "hankel_singular_values"
+    assert pc.hankel_singular_values.__doc__.startswith("Hankel singular values")
+    assert seen == [1]

@@ -40,7 +40,7 @@ from plantcore.reduction.power_of_two_scaling import model_scaling
 from plantcore.structure.certificate import _Schur
 from plantcore.structure.kalman import _prepare
 from plantcore.structure.modes import _stability, _stability_data
-from plantcore.structure.pbh_measures import schur_from_form
+from plantcore.structure.pbh_measures import schur_from_form, threads_by_size
 
 __all__ = ["EQUAL_HSV_RTOL", "ReducedModel", "balanced_truncation", "hankel_singular_values", "truncation_error"]
 
@@ -188,6 +188,7 @@ def _hsv_and_factors(sp: _Split, discrete: bool, *, vectors: bool = True):
     return s, Rc, Ro, U, Vt.T
 
 
+@threads_by_size()
 def hankel_singular_values(model) -> np.ndarray:
     """Hankel singular values of the stable part of a model, largest first.
 
@@ -352,6 +353,7 @@ def _check_options(order, max_error):
     return order, max_error
 
 
+@threads_by_size()
 def balanced_truncation(model, order=None, max_error=None) -> ReducedModel:
     """Reduce a model by balanced truncation, with a guaranteed error bound.
 

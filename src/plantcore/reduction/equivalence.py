@@ -39,6 +39,7 @@ from plantcore.reduction.equivalence_resolution import (
     shared_matrices,
 )
 from plantcore.reduction.norms import PeakGain, _equilibrated, _peak_gain, peak_gain
+from plantcore.structure.pbh_measures import threads_by_size
 
 __all__ = ["EquivalenceCertificate", "FrequencyCheck", "check_equivalence"]
 
@@ -503,6 +504,7 @@ REALIZE_LIMIT = 40
 BLOCK_PEAK_LIMIT = 200
 
 
+@threads_by_size(2)
 def check_equivalence(a, b, tol: float = 1e-9, *, exact: bool = False,
                       reference_peak_gain=None,
                       realize_difference: bool | None = None) -> EquivalenceCertificate:

@@ -17,6 +17,7 @@ from plantcore.core.model import as_model
 from plantcore.reduction.gramians import _cholesky_factor, _fmt
 from plantcore.structure.kalman import _prepare
 from plantcore.structure.modes import _stability, _stability_data
+from plantcore.structure.pbh_measures import threads_by_size
 
 __all__ = ["Gramian", "controllability_gramian", "observability_gramian"]
 
@@ -50,6 +51,7 @@ class Gramian:
     residual: float
 
 
+@threads_by_size()
 def controllability_gramian(model) -> Gramian:
     """The controllability Gramian ``P`` and its Cholesky factor.
 
@@ -93,6 +95,7 @@ def controllability_gramian(model) -> Gramian:
     return _gramian(model, "controllability")
 
 
+@threads_by_size()
 def observability_gramian(model) -> Gramian:
     """The observability Gramian ``Q`` and its Cholesky factor.
 

@@ -20,7 +20,7 @@ from plantcore.core.model import as_model
 from plantcore.core.safe_norms import frobenius
 from plantcore.structure.kalman import _prepare
 from plantcore.structure.modes import _stability, _stability_data
-from plantcore.structure.pbh_measures import _Schur, one_blas_thread
+from plantcore.structure.pbh_measures import _Schur, one_blas_thread, threads_by_size
 
 __all__ = ["GramianFactors", "gramian_factors"]
 
@@ -246,6 +246,7 @@ class GramianFactors:
     observability: np.ndarray = field(repr=False)
 
 
+@threads_by_size()
 def gramian_factors(model) -> GramianFactors:
     """Cholesky factors of the controllability and observability Gramians.
 

@@ -36,6 +36,7 @@ from plantcore.core.rank import any_fragile
 from plantcore.core.safe_norms import frobenius
 from plantcore.reduction.power_of_two_scaling import model_scaling
 from plantcore.structure.modes import schur_eigenvalue_condition
+from plantcore.structure.pbh_measures import threads_by_size
 
 __all__ = ["PeakGain", "h2_norm", "peak_gain"]
 
@@ -805,6 +806,7 @@ def _iterate(A, B, C, D, discrete: bool, rel_tol: float, response=None):
 
 # --- public functions -------------------------------------------------------------------------
 
+@threads_by_size()
 def peak_gain(model, *, rel_tol: float = 1e-10) -> PeakGain:
     """The peak gain of the frequency response (L-infinity norm) and where it occurs.
 
@@ -1042,6 +1044,7 @@ def _peak_gain_of(model: StateSpaceModel, rel_tol: float, pole_scale: float) -> 
                     decisions, any_fragile(decisions), evaluations, rounding)
 
 
+@threads_by_size()
 def h2_norm(model) -> float:
     """The H2 norm: the root of the energy of the impulse response.
 

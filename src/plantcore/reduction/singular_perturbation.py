@@ -37,6 +37,7 @@ from plantcore.core.derived_names import balanced_state_names
 from plantcore.core.model import StateSpaceModel, as_model
 from plantcore.reduction.balanced import balanced_truncation, truncation_error
 from plantcore.reduction.norms import peak_gain
+from plantcore.structure.pbh_measures import threads_by_size
 
 __all__ = [
     "EliminatedStates",
@@ -202,6 +203,7 @@ def _steady_state(A, B, C, D, discrete: bool) -> np.ndarray:
     return D - C @ scipy.linalg.solve(A, B)
 
 
+@threads_by_size()
 def balanced_residualization(model, *, order=None, max_error=None) -> ResidualizedModel:
     r"""Reduce a model by singular perturbation of a balanced realization (keeps ``G(0)``).
 
@@ -316,6 +318,7 @@ def _truncate(A, B, C, D, keep, drop, discrete, what):
 _ELIMINATION_METHODS = {"residualize": _residualize, "truncate": _truncate}
 
 
+@threads_by_size()
 def eliminate_states(model, states, *, method="residualize") -> EliminatedStates:
     r"""Eliminate the states a user names, by residualization or by truncation.
 

@@ -19,6 +19,7 @@ from plantcore.core.equilibration import equilibrate
 from plantcore.core.model import as_model
 from plantcore.core.rank import RankDecision, any_fragile, decide_rank, resolve_tolerance
 from plantcore.structure.minimal import minimal_realization
+from plantcore.structure.pbh_measures import threads_by_size
 
 __all__ = ["SteadyStateGain", "steady_state_gain"]
 
@@ -60,6 +61,7 @@ class SteadyStateGain:
         return any_fragile(self.decisions)
 
 
+@threads_by_size()
 def steady_state_gain(model, *, tol=None) -> SteadyStateGain:
     """The steady-state gain ``G(0)`` (continuous) or ``G(1)`` (discrete) of every channel.
 

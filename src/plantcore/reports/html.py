@@ -48,6 +48,7 @@ from plantcore.reports.placement_section import placement_report_html
 from plantcore.reports.plots import PART_LABELS, eigenvalue_plot, frequency_plot, hankel_plot
 from plantcore.reports.style import escape, html_fragment, html_number, html_page
 from plantcore.reports.text import decision_method, shown_removed_modes
+from plantcore.structure.pbh_measures import threads_by_size
 from plantcore.structure.removed_modes import hidden_mode_message
 
 __all__ = [
@@ -629,6 +630,7 @@ def _check_output(path, protected) -> None:
                                                     "refusing to overwrite an input, choose another name.")
 
 
+@threads_by_size()
 def write_html_report(model, path, *, tol=None, order=None, max_error=None, source=None,
                       inputs=(), progress=None, overwrite: bool = True):
     """Write the HTML report of a model to ``path`` (atomically).

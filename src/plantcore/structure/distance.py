@@ -19,7 +19,7 @@ from plantcore.core.safe_norms import frobenius
 from plantcore.core.wording import shown_eigenvalue
 from plantcore.structure.kalman import _prepare
 from plantcore.structure.modes import _CLUSTER_FACTOR, _EPS, _clustered_eigenvalues, _upper
-from plantcore.structure.pbh_measures import PBHMeasures, one_blas_thread
+from plantcore.structure.pbh_measures import PBHMeasures, one_blas_thread, threads_by_size
 
 __all__ = ["DistanceEstimate", "distance_to_uncontrollability", "distance_to_unobservability"]
 
@@ -495,6 +495,7 @@ def _distances(p, modes=None, whole=None) -> tuple[DistanceEstimate, DistanceEst
          lambda points: on_A.smallest(p.C_dec, points, "o"), (on_A, p.C_dec, "o"))]))
 
 
+@threads_by_size()
 def distance_to_uncontrollability(model) -> DistanceEstimate:
     """Estimate how far the model is from the nearest uncontrollable model.
 
@@ -591,6 +592,7 @@ def _distance_of_model(model, which: int) -> DistanceEstimate:
     return dataclasses.replace(estimate, at=complex(estimate.at) * unit)
 
 
+@threads_by_size()
 def distance_to_unobservability(model) -> DistanceEstimate:
     """Estimate how far the model is from the nearest unobservable model.
 

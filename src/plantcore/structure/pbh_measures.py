@@ -94,7 +94,8 @@ from plantcore.structure.certificate import _Schur
 from plantcore.structure.multi_shift import solve_shifted
 
 __all__ = ["MARGIN_RESIDUAL", "MAX_STEPS", "MULTI_SHIFT_POINTS", "MULTI_SHIFT_SIZE", "ONE_THREAD_SIZE",
-           "PBHMeasures", "one_blas_thread", "schur_from_form", "threads_for_size"]
+           "PBHMeasures", "one_blas_thread", "schur_from_form", "state_count", "threads_by_size",
+           "threads_for_size"]
 
 _EPS = np.finfo(float).eps
 
@@ -134,17 +135,53 @@ def one_blas_thread():
     return _CONTROLLER[0].limit(limits=1)
 
 
-ONE_THREAD_SIZE = 200
+ONE_THREAD_SIZE = 800
 
-"""Up to this many states a whole mode table or analysis runs on one BLAS thread: its
-factorizations are too small for a second thread to pay for its start, and the loops of
-small operations around them only slow down with it (issue 17, item 6)."""
+"""Up to this many states a whole call (mode table, analysis, norms, Gramians, Hankel
+singular values, certificate, report) runs on one BLAS thread: its factorizations are too
+small for a second thread to pay for its start, and the loops of small operations around
+them only slow down with it (issue 17, item 6).  Measured on the 2-core machine, quiet,
+2026-12-05 (``python benchmarks/bench_real.py --sizes 400 700 --beams 700 --ports 3
+--no-unstable --repeats 1 --threads 1 2``): with two threads every call *and* every
+reference routine was slower at n = 348-700 (``peak_gain`` on the 700-state beam 1.28 s on
+one thread, 9.43 s on two; ``ab13dd`` 4.03 s and 12.4 s; ``eig`` 0.21 s and 0.74 s), while at
+n = 1,000 ``peak_gain`` (3.55 s, 2.59 s) and ``eig`` (0.64 s, 0.49 s) gained from the second
+thread.  Was 200."""
 
 
 def threads_for_size(n: int):
     """:func:`one_blas_thread` for a model of at most :data:`ONE_THREAD_SIZE` states, else
     a context that changes nothing (the large factorizations use every BLAS thread)."""
     return one_blas_thread() if n <= ONE_THREAD_SIZE else contextlib.nullcontext()
+
+
+def state_count(model) -> int:
+    """The number of states of a model argument as the public calls accept it (a model
+    object with ``A``, or a tuple ``(A, B, C[, D])``), read without converting it; 0 when it
+    cannot be read (the call itself then reports the problem)."""
+    A = getattr(model, "A", None)
+    if A is None and isinstance(model, (tuple, list)) and model:
+        A = model[0]
+    try:
+        shape = np.shape(A)
+    except Exception:                      # an object numpy cannot read: the call says why
+        return 0
+    return int(shape[0]) if len(shape) == 2 else 0
+
+
+def threads_by_size(models: int = 1):
+    """Decorator for a public call whose first ``models`` positional arguments are models:
+    the call runs under :func:`threads_for_size` of the largest of their state counts, so
+    no call is slower with the default BLAS thread count than with one thread on models up
+    to :data:`ONE_THREAD_SIZE` states (issue 17, item 6)."""
+    def decorate(function):
+        @functools.wraps(function)
+        def call(*args, **kwargs):
+            n = max((state_count(m) for m in args[:models]), default=0)
+            with threads_for_size(n):
+                return function(*args, **kwargs)
+        return call
+    return decorate
 
 
 class _GivenSchur(_Schur):

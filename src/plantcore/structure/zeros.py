@@ -27,6 +27,7 @@ from plantcore.core.model import as_model
 from plantcore.core.rank import RankDecision, any_fragile, decide_rank, resolve_tolerance
 from plantcore.core.safe_norms import frobenius, frobenius_of_columns, frobenius_of_rows
 from plantcore.structure.minimal import minimal_realization
+from plantcore.structure.pbh_measures import threads_by_size
 
 __all__ = ["TransmissionZeros", "transmission_zeros"]
 
@@ -67,6 +68,7 @@ class TransmissionZeros:
         return any_fragile(self.decisions)
 
 
+@threads_by_size()
 def transmission_zeros(model, *, tol=None, realization="minimal") -> TransmissionZeros:
     """The finite zeros, the number of zeros at infinity and the normal rank of a model.
 
