@@ -290,3 +290,35 @@ def test_text_and_dict_output():
     assert same.to_dict()["verdict"] == "equivalent" and same.to_dict()["relative_error"] < 1e-12
     identical = check_equivalence(g, g).to_dict()     # measured as exactly 0: no peak frequency
     assert identical["peak_error"] == 0.0 and identical["peak_frequency"] is None
+
+
+def test_reference_peak_gain_uses_every_blas_thread_and_the_rest_one(monkeypatch):
+    # issue 17, item 6: above the one-thread size the peak gain of A (Hamiltonian
+    # eigenvalue problems) gains from a second thread, the certificate's solves do not
+    from threadpoolctl import threadpool_info, threadpool_limits
+
+    from plantcore.reduction import equivalence
+    from plantcore.structure import pbh_measures
+
+    def blas_threads():
+        return max(e["num_threads"] for e in threadpool_info() if e["user_api"] == "blas")
+
+    seen = {}
+    peak, certify = equivalence.peak_gain, equivalence._certify
+
+    def spy_peak(*args, **kwargs):
+        seen["peak"] = blas_threads()
+        return peak(*args, **kwargs)
+
+    def spy_certify(*args, **kwargs):
+        seen["certify"] = blas_threads()
+        return certify(*args, **kwargs)
+
+    monkeypatch.setattr(pbh_measures, "ONE_THREAD_SIZE", 2)      # 4 states count as large
+    monkeypatch.setattr(equivalence, "peak_gain", spy_peak)
+    monkeypatch.setattr(equivalence, "_certify", spy_certify)
+    g = pc.from_transfer_function([1.0, 3.0], [1.0, 5.0, 6.0, 2.0, 1.0])
+    with threadpool_limits(2, user_api="blas"):
+        outside = blas_threads()
+        assert pc.check_equivalence(g, g).equivalent
+    assert seen == {"peak": outside, "certify": 1}
