@@ -320,5 +320,7 @@ def test_reference_peak_gain_uses_every_blas_thread_and_the_rest_one(monkeypatch
     g = pc.from_transfer_function([1.0, 3.0], [1.0, 5.0, 6.0, 2.0, 1.0])
     with threadpool_limits(2, user_api="blas"):
         outside = blas_threads()
+        if outside < 2:
+            pytest.skip("BLAS runs on one thread here: the two parts could not be told apart")
         assert pc.check_equivalence(g, g).equivalent
     assert seen == {"peak": outside, "certify": 1}

@@ -142,8 +142,8 @@ singular values, certificate, report) runs on one BLAS thread: its factorization
 small for a second thread to pay for its start, and the loops of small operations around
 them only slow down with it (issue 17, item 6).  Measured on the 2-core machine, quiet,
 2026-12-05 (``python benchmarks/bench_real.py --sizes 400 700 --beams 700 --ports 3
---no-unstable --repeats 1 --threads 1 2``): with two threads every call *and* every
-reference routine was slower at n = 348-700 (``peak_gain`` on the 700-state beam 1.28 s on
+--no-unstable --repeats 1 --threads 1 2``, and ``--sizes 1000`` with the 348-state beam):
+with two threads every call *and* every reference routine was slower at n = 348-700 (``peak_gain`` on the 700-state beam 1.28 s on
 one thread, 9.43 s on two; ``ab13dd`` 4.03 s and 12.4 s; ``eig`` 0.21 s and 0.74 s), while at
 n = 1,000 ``peak_gain`` (3.55 s, 2.59 s) and ``eig`` (0.64 s, 0.49 s) gained from the second
 thread.  Was 200."""
